@@ -1,0 +1,5 @@
+"""tuikiln: a terminal companion for small electric heat-treat ovens."""
+
+from __future__ import annotations
+
+__version__ = "0.1.0"
