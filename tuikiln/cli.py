@@ -19,6 +19,7 @@ from tuikiln.errors import UserError
 COMMANDS: dict[str, str] = {
     "check": "tuikiln.commands.check",
     "plan": "tuikiln.commands.plan",
+    "sim": "tuikiln.commands.sim",
     "thermocouple": "tuikiln.commands.thermocouple",
     "temper": "tuikiln.commands.temper",
 }
@@ -27,6 +28,7 @@ COMMANDS: dict[str, str] = {
 COMMAND_HELP: dict[str, str] = {
     "check": "check profile files and print a one-line summary of each",
     "plan": "show the planned curve of a profile (table, --json or --csv)",
+    "sim": "the built-in software oven: `sim serve` answers Modbus RTU on a pty or TCP",
     "thermocouple": "convert thermocouple millivolts to temperature and back (NIST ITS-90)",
     "temper": "tempering parameter (Hollomon-Jaffe) and the equivalent time at another temperature",
 }
@@ -50,7 +52,26 @@ def _global_options() -> argparse.ArgumentParser:
     return common
 
 
-def build_parser() -> argparse.ArgumentParser:
+def _chosen_command(argv: Sequence[str]) -> str | None:
+    """The command named on the line; only its module is imported (Textual stays unloaded
+    for `check`, and a command still being written cannot break the others)."""
+    skip_next = False
+    for word in argv:
+        if skip_next:
+            skip_next = False
+            continue
+        if word in ("--data", "--kiln"):
+            skip_next = True
+            continue
+        if word in COMMANDS:
+            return word
+        if not word.startswith("-"):
+            return None
+    return None
+
+
+def build_parser(argv: Sequence[str] = ()) -> argparse.ArgumentParser:
+    chosen = _chosen_command(argv)
     common = _global_options()
     parser = argparse.ArgumentParser(
         prog="tuikiln",
@@ -65,8 +86,8 @@ def build_parser() -> argparse.ArgumentParser:
         help_text = COMMAND_HELP.get(name, "")
         p = sub.add_parser(name, help=help_text, description=help_text, parents=[common])
         p.set_defaults(_module=module_name)
-        module = importlib.import_module(module_name)
-        module.add_arguments(p)
+        if name == chosen:
+            importlib.import_module(module_name).add_arguments(p)
     return parser
 
 
@@ -77,7 +98,8 @@ def _version() -> str:
 
 
 def main(argv: Sequence[str] | None = None) -> int:
-    parser = build_parser()
+    argv = list(sys.argv[1:] if argv is None else argv)
+    parser = build_parser(argv)
     args = parser.parse_args(argv)
     if not getattr(args, "command", None):
         parser.print_help()
