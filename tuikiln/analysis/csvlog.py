@@ -1,0 +1,363 @@
+"""Read a temperature log written by another tool (CSV) into numpy arrays.
+
+The file has a header row; which columns hold the time and the chamber (and optionally the
+load) temperature, the temperature unit and how the time is written are given by a
+`CsvLayout`. Reading is all or nothing: either every data row is good and a `CsvLog` comes
+back, or `FileProblems` lists the bad rows by line number (the first `MAX_PROBLEMS` of them).
+"""
+
+from __future__ import annotations
+
+import csv
+import difflib
+import io
+import math
+from collections.abc import Callable, Sequence
+from dataclasses import dataclass
+from datetime import datetime
+from pathlib import Path
+from typing import TypeVar
+
+import numpy as np
+
+from tuikiln.errors import FileProblems, Problem
+from tuikiln.units import ABSOLUTE_ZERO_C, UNITS, f_to_c, symbol, to_c
+
+MAX_PROBLEMS = 20
+TIME_FORMATS = ("seconds", "minutes", "iso")
+_SECONDS_PER = {"seconds": 1.0, "minutes": 60.0}
+_T = TypeVar("_T")
+_Row = tuple[int, tuple[str, ...]]  # (first line of the row, its cells)
+
+
+@dataclass(frozen=True)
+class CsvLayout:
+    """Where things are in the file and how they are written.
+
+    `time_format` is "seconds" or "minutes" (from any start; the log is shifted to start at
+    0), "iso" (ISO 8601 timestamps such as 2024-03-01T14:05:00 or ...+01:00), or a strftime
+    format such as "%d/%m/%Y %H:%M:%S". Timestamps without a zone are taken as they are, so a
+    clock change inside a local-time log shows up as time going backwards (and is reported).
+    """
+
+    time_column: str = "time"
+    chamber_column: str = "chamber"
+    load_column: str | None = None
+    units: str = "C"
+    time_format: str = "seconds"
+    delimiter: str = ","
+    encoding: str = "utf-8-sig"  # "-sig": a byte-order mark from spreadsheet exports is dropped
+
+    def __post_init__(self) -> None:
+        if self.units not in UNITS:
+            raise ValueError(f'the temperature unit must be "C" or "F", not "{self.units}"')
+        if self.time_format not in TIME_FORMATS and "%" not in self.time_format:
+            raise ValueError(
+                f'the time format must be "seconds", "minutes", "iso" or a strftime format '
+                f'such as "%Y-%m-%d %H:%M:%S", not "{self.time_format}"'
+            )
+        if len(self.delimiter) != 1:
+            raise ValueError(f'the column separator must be one character, not "{self.delimiter}"')
+
+
+@dataclass(frozen=True, eq=False)
+class CsvLog:
+    """A complete log: seconds from the first row, temperatures in °C."""
+
+    source: str
+    time_s: np.ndarray
+    chamber_c: np.ndarray
+    load_c: np.ndarray | None
+
+
+class _Collector:
+    """Gathers problems, keeping the first MAX_PROBLEMS and counting the rest."""
+
+    def __init__(self, source: str) -> None:
+        self.source = source
+        self.kept: list[Problem] = []
+        self.dropped = 0
+
+    def add(self, line: int | None, message: str) -> None:
+        if len(self.kept) < MAX_PROBLEMS:
+            self.kept.append(Problem(self.source, line, message))
+        else:
+            self.dropped += 1
+
+    def raise_if_any(self) -> None:
+        if not self.kept:
+            return
+        problems = list(self.kept)
+        if self.dropped:
+            problems.append(Problem(self.source, None, f"and {self.dropped} more problems"))
+        raise FileProblems(problems)
+
+
+def read_csv_log(path: str | Path, layout: CsvLayout | None = None) -> CsvLog:
+    """Read the CSV log at `path`; raises FileProblems for anything wrong with the file."""
+    layout = layout or CsvLayout()
+    source = str(path)
+    try:
+        data = Path(path).read_bytes()
+    except OSError as exc:
+        message = f"cannot be read: {exc.strerror or exc}"
+        raise FileProblems([Problem(source, None, message)]) from None
+    return parse_csv_log(data, source, layout)
+
+
+def parse_csv_log(data: bytes | str, source: str, layout: CsvLayout | None = None) -> CsvLog:
+    """Like `read_csv_log`, for the file's content; `source` names it in messages."""
+    layout = layout or CsvLayout()
+    if isinstance(data, bytes):
+        try:
+            text = data.decode(layout.encoding)
+        except UnicodeDecodeError as exc:
+            line = data[: exc.start].count(b"\n") + 1
+            raise FileProblems(
+                [
+                    Problem(
+                        source,
+                        line,
+                        f"is not {layout.encoding} text (byte "
+                        f"0x{data[exc.start]:02x}); save it as UTF-8",
+                    )
+                ]
+            ) from None
+    else:
+        text = data.removeprefix("\ufeff")
+    problems = _Collector(source)
+    rows = _read_rows(text, layout.delimiter, problems)
+    problems.raise_if_any()
+    header_at = next((i for i, (_, cells) in enumerate(rows) if not _blank(cells)), None)
+    if header_at is None:
+        raise FileProblems([Problem(source, None, "is empty: expected a header row and data")])
+    header_line, header = rows[header_at]
+    columns = _find_columns(header, header_line, layout, problems)
+    problems.raise_if_any()
+    return _parse_rows(rows[header_at + 1 :], columns, layout, problems)
+
+
+def _read_rows(text: str, delimiter: str, problems: _Collector) -> list[_Row]:
+    """(first line of the row, cells) for every row, blank ones included."""
+    reader = csv.reader(io.StringIO(text, newline=""), delimiter=delimiter)
+    cells_of: list[tuple[str, ...]] = []
+    last_lines: list[int] = []  # a quoted field may hold line breaks: rows can span lines
+    try:
+        for cells in reader:
+            # Tuples of strings drop out of the garbage collector's sight; a million lists
+            # would make its passes cost more than the reading itself.
+            cells_of.append(tuple(cells))
+            last_lines.append(reader.line_num)
+    except csv.Error as exc:
+        problems.add(reader.line_num or 1, f"is not readable as CSV: {exc}")
+    first_lines = [1, *(line + 1 for line in last_lines)][: len(cells_of)]
+    return list(zip(first_lines, cells_of, strict=True))
+
+
+def _blank(cells: Sequence[str]) -> bool:
+    # The first test alone settles almost every data row; the join catches ",,," rows.
+    return not ((cells and cells[0].strip()) or "".join(cells).strip())
+
+
+def _find_columns(
+    header: Sequence[str], line: int, layout: CsvLayout, problems: _Collector
+) -> dict[str, int]:
+    names = [cell.strip() for cell in header]
+    wanted = {"time": layout.time_column, "chamber": layout.chamber_column}
+    if layout.load_column is not None:
+        wanted["load"] = layout.load_column
+    found: dict[str, int] = {}
+    for role, name in wanted.items():
+        exact = [i for i, n in enumerate(names) if n == name]
+        if not exact:
+            exact = [i for i, n in enumerate(names) if n.casefold() == name.casefold()]
+        if len(exact) == 1:
+            found[role] = exact[0]
+            continue
+        if len(exact) > 1:
+            problems.add(line, f'the header has more than one column "{name}"')
+            continue
+        listed = ", ".join(f'"{n}"' for n in names if n) or "none"
+        message = f'no {role} column "{name}" (the columns are {listed})'
+        close = difflib.get_close_matches(name, names, n=1, cutoff=0.5)
+        if close:
+            message += f'; did you mean "{close[0]}"?'
+        problems.add(line, message)
+    return found
+
+
+def _parse_rows(
+    rows: list[_Row],
+    columns: dict[str, int],
+    layout: CsvLayout,
+    problems: _Collector,
+) -> CsvLog:
+    data = [(line, cells) for line, cells in rows if not _blank(cells)]
+    if not data:
+        raise FileProblems([Problem(problems.source, None, "has a header but no data rows")])
+    lines = [line for line, _ in data]
+    parsed = _numbers_at_once(data, columns, layout)
+    if parsed is None:
+        parsed = _row_by_row(data, columns, layout, problems)
+    seconds, temps = parsed
+    for index in np.flatnonzero(np.diff(seconds) <= 0):
+        problems.add(
+            lines[index + 1],
+            f"time is not after the previous row's (line {lines[index]}): the times must increase",
+        )
+    problems.raise_if_any()
+    return CsvLog(
+        source=problems.source,
+        time_s=seconds,
+        chamber_c=temps["chamber"],
+        load_c=temps.get("load"),
+    )
+
+
+_Parsed = tuple[np.ndarray, dict[str, np.ndarray]]
+
+
+def _numbers_at_once(
+    data: list[_Row], columns: dict[str, int], layout: CsvLayout
+) -> _Parsed | None:
+    """The common case, a file of good numbers, in one numpy pass per column (a week of 1 s
+    samples in about a second rather than several). None when anything looks wrong: the row by
+    row reading then finds and names each problem."""
+    if layout.time_format not in _SECONDS_PER:
+        return None
+    widest = max(columns.values())
+    if any(len(cells) <= widest for _, cells in data):
+        return None
+    parsed: dict[str, np.ndarray] = {}
+    try:
+        for role, index in columns.items():
+            parsed[role] = np.array([cells[index] for _, cells in data], dtype=float)
+    except ValueError:
+        return None
+    if not all(np.isfinite(values).all() for values in parsed.values()):
+        return None
+    seconds = parsed.pop("time") * _SECONDS_PER[layout.time_format]
+    temps = {
+        role: values if layout.units == "C" else f_to_c(values) for role, values in parsed.items()
+    }
+    if any((values < ABSOLUTE_ZERO_C).any() for values in temps.values()):
+        return None
+    return seconds - seconds[0], temps
+
+
+def _row_by_row(
+    data: list[_Row],
+    columns: dict[str, int],
+    layout: CsvLayout,
+    problems: _Collector,
+) -> _Parsed:
+    parse_time = _time_parser(layout.time_format)
+    lines: list[int] = []
+    stamps: list[float | datetime] = []
+    temps: dict[str, list[float]] = {role: [] for role in columns if role != "time"}
+    for line, cells in data:
+        wrong: list[str] = []
+        stamp = _cell(cells, columns["time"], layout.time_column, parse_time, wrong)
+        values = {
+            role: _cell(
+                cells,
+                columns[role],
+                _column_name(layout, role),
+                lambda text: _temperature(text, layout.units),
+                wrong,
+            )
+            for role in temps
+        }
+        if wrong:
+            problems.add(line, "; ".join(wrong))
+            continue
+        # Nothing is None here: `wrong` would have said so.
+        lines.append(line)
+        stamps.append(stamp)  # type: ignore[arg-type]
+        for role, value in values.items():
+            temps[role].append(value)  # type: ignore[arg-type]
+    problems.raise_if_any()
+    seconds = _seconds_from_start(stamps, lines, layout.time_format, problems)
+    problems.raise_if_any()
+    return seconds, {role: np.array(values, dtype=float) for role, values in temps.items()}
+
+
+def _column_name(layout: CsvLayout, role: str) -> str:
+    return layout.chamber_column if role == "chamber" else str(layout.load_column)
+
+
+def _cell(
+    cells: Sequence[str], index: int, name: str, parse: Callable[[str], _T], wrong: list[str]
+) -> _T | None:
+    """Parse one cell, noting what is wrong with it in `wrong` instead of raising."""
+    if index >= len(cells) or not cells[index].strip():
+        wrong.append(f'"{name}" is empty')
+        return None
+    try:
+        return parse(cells[index].strip())
+    except ValueError as exc:
+        wrong.append(f'"{name}": {exc}')
+        return None
+
+
+def _number(text: str) -> float:
+    try:
+        value = float(text)
+    except ValueError:
+        hint = " (write decimals with a point)" if "," in text else ""
+        raise ValueError(f'"{text}" is not a number{hint}') from None
+    if not math.isfinite(value):
+        raise ValueError(f'"{text}" is not a number')
+    return value
+
+
+def _temperature(text: str, units: str) -> float:
+    celsius = to_c(_number(text), units)
+    if celsius < ABSOLUTE_ZERO_C:
+        raise ValueError(f"{text} {symbol(units)} is below absolute zero")
+    return celsius
+
+
+def _time_parser(time_format: str) -> Callable[[str], float | datetime]:
+    if time_format in _SECONDS_PER:
+        return _number
+    if time_format == "iso":
+
+        def parse_iso(text: str) -> datetime:
+            try:
+                return datetime.fromisoformat(text)
+            except ValueError:
+                raise ValueError(
+                    f'"{text}" is not an ISO 8601 time such as 2024-03-01T14:05:00'
+                ) from None
+
+        return parse_iso
+
+    def parse_strftime(text: str) -> datetime:
+        try:
+            return datetime.strptime(text, time_format)
+        except ValueError:
+            raise ValueError(f'"{text}" does not match the time format "{time_format}"') from None
+
+    return parse_strftime
+
+
+def _seconds_from_start(
+    stamps: list[float | datetime], lines: list[int], time_format: str, problems: _Collector
+) -> np.ndarray:
+    if time_format in _SECONDS_PER:
+        values = np.array(stamps, dtype=float) * _SECONDS_PER[time_format]
+        return values - values[0]
+    dates: list[datetime] = stamps  # type: ignore[assignment]
+    zoned = dates[0].tzinfo is not None
+    seconds = np.empty(len(dates))
+    for i, (line, stamp) in enumerate(zip(lines, dates, strict=True)):
+        if (stamp.tzinfo is not None) != zoned:
+            has = "has" if stamp.tzinfo is not None else "has no"
+            problems.add(
+                line, f"the time {has} a time zone, unlike the first row's (line {lines[0]})"
+            )
+            seconds[i] = math.nan
+            continue
+        seconds[i] = (stamp - dates[0]).total_seconds()
+    return seconds
