@@ -1,0 +1,191 @@
+"""`tuikiln sim serve` as a real Modbus RTU device: real pty, real TCP, mbpoll and pymodbus."""
+
+from __future__ import annotations
+
+import os
+import select
+import signal
+import subprocess
+import sys
+import time
+from collections.abc import Iterator
+from pathlib import Path
+
+import pytest
+from pymodbus import FramerType
+from pymodbus.client import AsyncModbusSerialClient, AsyncModbusTcpClient
+from pymodbus.exceptions import ModbusException
+from pymodbus.framer.rtu import FramerRTU
+
+from simulator.modbus_rtu import crc16, with_crc
+
+REPO = Path(__file__).resolve().parents[1]
+MBPOLL = "/usr/bin/mbpoll"
+
+
+def test_crc_matches_pymodbus_and_the_spec_example() -> None:
+    # Modbus over Serial Line v1.02, 6.2.2 (from memory): the request 01 03 00 00 00 01 is
+    # sent with CRC bytes 84 0A; pymodbus's FramerRTU is a second, independent implementation.
+    assert with_crc(bytes.fromhex("010300000001"))[-2:] == bytes.fromhex("840a")
+    for frame in (b"\x01\x03\x00\x00\x00\x06", b"\x11\x06\x00\x01\x13\x88", bytes(range(40))):
+        assert crc16(frame).to_bytes(2, "little") == FramerRTU.compute_CRC(frame).to_bytes(2, "big")
+
+
+class Served:
+    """A `tuikiln sim serve` subprocess; always killed at teardown."""
+
+    def __init__(self, *options: str) -> None:
+        self.proc = subprocess.Popen(
+            [sys.executable, "-m", "tuikiln", "sim", "serve", *options],
+            cwd=REPO, stdout=subprocess.PIPE, stderr=subprocess.PIPE, text=True,
+            start_new_session=True,
+        )
+        assert self.proc.stdout is not None
+        ready, _, _ = select.select([self.proc.stdout], [], [], 15.0)
+        line = self.proc.stdout.readline().strip() if ready else ""
+        if not line:
+            self.stop()
+            raise AssertionError(f"sim serve printed nothing: {self.proc.stderr.read()}")
+        self.where = line
+
+    def stop(self) -> None:
+        if self.proc.poll() is None:
+            os.killpg(self.proc.pid, signal.SIGTERM)
+            try:
+                self.proc.wait(timeout=5)
+            except subprocess.TimeoutExpired:
+                os.killpg(self.proc.pid, signal.SIGKILL)
+                self.proc.wait(timeout=5)
+
+
+@pytest.fixture
+def served(request: pytest.FixtureRequest) -> Iterator[Served]:
+    options = getattr(request, "param", ("--pty", "--speed", "60"))
+    server = Served(*options)
+    try:
+        yield server
+    finally:
+        server.stop()
+
+
+def _mbpoll(*args: str) -> str:
+    done = subprocess.run([MBPOLL, "-m", "rtu", "-b", "9600", "-P", "none", "-a", "1", *args],
+                          capture_output=True, text=True, timeout=10)
+    assert done.returncode == 0, done.stdout + done.stderr
+    return done.stdout
+
+
+def _values(output: str) -> dict[int, int]:
+    values = {}
+    for line in output.splitlines():
+        if line.startswith("[") and "]:" in line:
+            ref, value = line.split("]:")
+            values[int(ref.strip("[ "))] = int(value.split()[0])
+    return values
+
+
+@pytest.mark.skipif(not os.path.exists(MBPOLL), reason="mbpoll is not installed (Debian mbpoll)")
+def test_mbpoll_reads_writes_and_the_oven_heats(served: Served) -> None:
+    assert served.where.startswith("/dev/")
+    first = _values(_mbpoll("-r", "1", "-c", "6", "-1", served.where))
+    assert set(first) == {1, 2, 3, 4, 5, 6}
+    assert 100 <= first[1] <= 400  # room temperature in tenths of a degree
+    assert first[2] == 0 and first[5] == 0 and first[4] & 2 == 0
+    assert "Written 1 references" in _mbpoll("-r", "2", served.where, "5000")
+    assert "Written 1 references" in _mbpoll("-r", "5", served.where, "1")
+    time.sleep(1.5)  # 90 s simulated at 60x
+    later = _values(_mbpoll("-r", "1", "-c", "6", "-1", served.where))
+    assert later[2] == 5000 and later[5] == 1 and later[4] & 2
+    assert later[3] > 500  # output in tenths of a percent: heating hard
+    assert later[1] > first[1] + 150  # more than 15 °C warmer already
+
+
+async def test_pymodbus_client_over_the_pty(served: Served) -> None:
+    client = AsyncModbusSerialClient(served.where, framer=FramerType.RTU, baudrate=9600,
+                                     timeout=1, retries=1)
+    assert await client.connect()
+    try:
+        regs = (await client.read_holding_registers(0, count=6, device_id=1)).registers
+        assert len(regs) == 6 and regs[5] != 32767
+        assert not (await client.write_register(1, 6000, device_id=1)).isError()
+        assert (await client.read_holding_registers(1, count=1, device_id=1)).registers == [6000]
+        refused = await client.write_register(0, 1, device_id=1)  # the reading is read-only
+        assert refused.isError() and refused.exception_code == 2
+        # Wire time: 8 + 17 bytes at 9600 baud 8N1 is 26 ms per 6-register read.
+        start = time.monotonic()
+        for _ in range(8):
+            await client.read_holding_registers(0, count=6, device_id=1)
+        assert time.monotonic() - start >= 8 * 0.9 * 25 * 10 / 9600
+    finally:
+        client.close()
+
+
+@pytest.mark.parametrize("served", [("--tcp", "0", "--speed", "max", "--no-load-tc")],
+                         indirect=True)
+async def test_pymodbus_client_over_tcp_at_full_speed(served: Served) -> None:
+    port = int(served.where.rsplit(":", 1)[1])
+    client = AsyncModbusTcpClient("127.0.0.1", port=port, framer=FramerType.RTU, timeout=1,
+                                  retries=1)
+    assert await client.connect()
+    try:
+        refused = await client.write_registers(1, [4000, 0, 0, 1], device_id=1)
+        assert refused.isError() and refused.exception_code == 2  # 2 and 3 are read-only
+        assert (await client.read_holding_registers(1, count=1, device_id=1)).registers == [0]
+        assert not (await client.write_registers(1, [4000], device_id=1)).isError()
+        assert not (await client.write_registers(4, [1], device_id=1)).isError()
+        first = (await client.read_holding_registers(0, count=6, device_id=1)).registers
+        assert first[5] == 32767  # no load thermocouple: over-range
+        time.sleep(0.5)
+        later = (await client.read_holding_registers(0, count=6, device_id=1)).registers
+        # "max" runs hours per second: the oven is already holding 400 °C.
+        assert abs(later[0] - 4000) < 30 and later[2] < 1000
+    finally:
+        client.close()
+
+
+@pytest.mark.parametrize("served", [("--pty", "--fault", "link-drop@0+1h")], indirect=True)
+async def test_link_drop_on_the_wire(served: Served) -> None:
+    client = AsyncModbusSerialClient(served.where, framer=FramerType.RTU, baudrate=9600,
+                                     timeout=0.3, retries=0)
+    assert await client.connect()
+    try:
+        with pytest.raises(ModbusException):
+            await client.read_holding_registers(0, count=6, device_id=1)
+    finally:
+        client.close()
+
+
+@pytest.mark.parametrize("served", [("--pty", "--fault", "line-noise@0", "--seed", "3")],
+                         indirect=True)
+def test_line_noise_on_the_wire(served: Served) -> None:
+    fd = os.open(served.where, os.O_RDWR | os.O_NOCTTY)
+    try:
+        import tty
+
+        tty.setraw(fd)
+        bad = 0
+        for _ in range(12):
+            os.write(fd, with_crc(bytes([1, 3, 0, 0, 0, 6])))
+            reply = b""
+            deadline = time.monotonic() + 0.15
+            while time.monotonic() < deadline:
+                ready, _, _ = select.select([fd], [], [], 0.05)
+                if ready:
+                    reply += os.read(fd, 256)
+                elif reply:
+                    break
+            if len(reply) < 4 or crc16(reply[:-2]) != int.from_bytes(reply[-2:], "little"):
+                bad += 1
+        assert 2 <= bad <= 10  # about half garbled by default
+    finally:
+        os.close(fd)
+
+
+def test_bad_option_is_a_plain_message() -> None:
+    done = subprocess.run(
+        [sys.executable, "-m", "tuikiln", "sim", "serve", "--fault", "door@5m"],
+        cwd=REPO, capture_output=True, text=True, timeout=20,
+    )
+    assert done.returncode == 2
+    assert 'did you mean "door-open"' in done.stderr and "Traceback" not in done.stderr
+
