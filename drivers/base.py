@@ -78,6 +78,8 @@ class Device(ABC):
     capabilities: Capabilities
     description: str = "device"
     clock: Clock = WallClock()
+    poll_s: float = 2.0
+    """Seconds between polls the device's settings ask for (kiln file `poll`)."""
 
     @abstractmethod
     async def connect(self) -> None:

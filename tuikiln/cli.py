@@ -17,20 +17,56 @@ from tuikiln.errors import UserError
 
 # command name -> module (one line each, so adding a command touches one line).
 COMMANDS: dict[str, str] = {
+    "demo": "tuikiln.commands.demo",
+    "home": "tuikiln.commands.home",
+    "watch": "tuikiln.commands.watch",
+    "review": "tuikiln.commands.review",
     "check": "tuikiln.commands.check",
     "plan": "tuikiln.commands.plan",
+    "probe": "tuikiln.commands.probe",
     "sim": "tuikiln.commands.sim",
     "thermocouple": "tuikiln.commands.thermocouple",
     "temper": "tuikiln.commands.temper",
+    "run": "tuikiln.commands.run",
+    "status": "tuikiln.commands.ctl",
+    "pause": "tuikiln.commands.ctl",
+    "resume": "tuikiln.commands.ctl",
+    "skip": "tuikiln.commands.ctl",
+    "abort": "tuikiln.commands.ctl",
+    "ack": "tuikiln.commands.ctl",
+    "note": "tuikiln.commands.ctl",
+    "runs": "tuikiln.commands.runs",
+    "export": "tuikiln.commands.runs",
+    "replay": "tuikiln.commands.replay",
+    "report": "tuikiln.commands.replay",
+    "import": "tuikiln.commands.replay",
 }
 
 # Shown in `tuikiln --help`; the modules' HELP lines are read lazily.
 COMMAND_HELP: dict[str, str] = {
+    "demo": "watch a whole harden-and-temper cycle on the built-in simulator, sped up",
+    "home": "the home screen: kiln, profiles and recent runs; start, watch or replay a run",
+    "watch": "watch the run going on in the live screen (leaving it leaves the run going)",
+    "review": "look back at a past run on screen: chart against the plan, cursor, verdicts",
     "check": "check profile files and print a one-line summary of each",
     "plan": "show the planned curve of a profile (table, --json or --csv)",
+    "probe": "connect to the kiln's device and print readings, to check wiring and settings",
     "sim": "the built-in software oven: `sim serve` answers Modbus RTU on a pty or TCP",
     "thermocouple": "convert thermocouple millivolts to temperature and back (NIST ITS-90)",
     "temper": "tempering parameter (Hollomon-Jaffe) and the equivalent time at another temperature",
+    "run": "run a heat-treatment profile (in the background, or --headless in the foreground)",
+    "status": "show what the run going on is doing (--json: the status object)",
+    "pause": "pause the run: hold the current setpoint and stop the step clocks",
+    "resume": "resume a paused run",
+    "skip": "end the current step now and go on with the next",
+    "abort": "end the run now and turn the heat off",
+    "ack": "acknowledge an alarm (or all of them) or a pause step's prompt",
+    "note": "add a note to the run log",
+    "runs": "list the logged runs (--json)",
+    "export": "write a logged run's samples as CSV",
+    "replay": "hold a logged run against its profile: verdict per step, alarms, what-if",
+    "report": "write a run's report as HTML (with its chart) or Markdown (.md)",
+    "import": "replay another tool's CSV temperature log against a profile",
 }
 
 

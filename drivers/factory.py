@@ -1,0 +1,343 @@
+"""From a kiln file's `[device]` table to a Device: check the settings, then build it.
+
+    [device]
+    kind = "modbus"                  # "sim" (default), "modbus", "lines"
+    port = "/dev/ttyUSB0"            # or "tcp://192.0.2.10:502" (modbus: RTU over TCP)
+    baud = 9600
+    parity = "N"                     # "N", "E", "O"
+    stopbits = 1                     # 1 or 2
+    bytesize = 8                     # 7 or 8
+    address = 1                      # modbus device address 1-247
+    map = "generic-pid"              # a map in drivers/maps/, or a path to one
+    poll = 2                         # seconds between readings
+    timeout = 1                      # seconds to wait for an answer
+    retries = 2                      # extra tries before a poll counts as failed
+    setpoint_min_interval = 10       # seconds between setpoint writes (EEPROM wear)
+    reconnect_max = 30               # longest wait between tries to reopen a lost port, s
+
+A line thermometer (kind = "lines") takes port, baud, parity, stopbits, bytesize, poll,
+timeout and reconnect_max, plus format, pattern, separator, pair_separator, header and
+[device.channels] (see drivers/lines.py). The simulator's keys are its own
+(simulator/config.py), checked by its own checker.
+
+`check_device_settings` never raises; `open_device` raises SettingsError listing the same
+problems.
+"""
+
+from __future__ import annotations
+
+import difflib
+import math
+import re
+from collections.abc import Mapping
+from typing import Any
+
+from drivers.base import Device
+from drivers.errors import SettingsError
+from drivers.guard import DEFAULT_MIN_INTERVAL_S
+from drivers.lines import DEFAULT_OPEN, FORMATS, ChannelSpec, LineSettings, LineThermometer
+from drivers.maps import MapError, RegisterMap, load_map
+from drivers.modbus import ModbusDevice, ModbusSettings, parse_tcp
+
+KeyPath = tuple[str | int, ...]
+Problems = list[tuple[KeyPath, str]]
+
+KINDS = ("sim", "modbus", "lines")
+SERIAL_KEYS = ("kind", "port", "baud", "parity", "stopbits", "bytesize", "poll", "timeout",
+               "reconnect_max")
+MODBUS_KEYS = SERIAL_KEYS + ("address", "map", "retries", "setpoint_min_interval")
+LINES_KEYS = SERIAL_KEYS + ("format", "pattern", "separator", "pair_separator", "header",
+                            "channels")
+CHANNEL_KEYS = ("field", "unit", "thermocouple", "cold_junction", "cold_junction_field",
+                "cold_junction_unit", "open")
+STANDARD_BAUDS = (300, 600, 1200, 2400, 4800, 9600, 14400, 19200, 38400, 57600, 115200)
+PARITIES = ("N", "E", "O")
+THERMOCOUPLES = ("B", "E", "J", "K", "N", "R", "S", "T")
+
+
+class DeviceSettingsError(SettingsError):
+    """The [device] table is wrong; `problems` holds (key path, message) pairs."""
+
+    def __init__(self, problems: Problems) -> None:
+        self.problems = list(problems)
+        lines = [f"{'.'.join(str(p) for p in path)}: {msg}" for path, msg in self.problems]
+        super().__init__("the device settings are wrong:\n" + "\n".join(lines))
+
+
+def _device_table(table: Mapping[str, Any]) -> Mapping[str, Any]:
+    inner = table.get("device") if isinstance(table, Mapping) else None
+    return inner if isinstance(inner, Mapping) else table
+
+
+def _suggest(word: str, choices: tuple[str, ...] | list[str]) -> str:
+    close = difflib.get_close_matches(word, list(choices), n=1)
+    return f' (did you mean "{close[0]}"?)' if close else ""
+
+
+class _Check:
+    def __init__(self, device: Mapping[str, Any]) -> None:
+        self.device = device
+        self.problems: Problems = []
+
+    def add(self, key: str | KeyPath, message: str) -> None:
+        path = (key,) if isinstance(key, str) else key
+        self.problems.append((("device", *path), message))
+
+    def unknown(self, allowed: tuple[str, ...]) -> None:
+        for key in self.device:
+            if key not in allowed:
+                self.add(str(key), f'unknown key "{key}"{_suggest(str(key), allowed)}')
+
+    def number(self, key: str, default: float, lo: float, hi: float, *, whole: bool = False
+               ) -> float:
+        value = self.device.get(key, default)
+        ok = isinstance(value, int | float) and not isinstance(value, bool)
+        if ok and whole and not float(value).is_integer():
+            ok = False
+        if not ok or not math.isfinite(value):
+            kind = "a whole number" if whole else "a number"
+            self.add(key, f'"{key}" must be {kind}, not {value!r}')
+            return default
+        if not lo <= value <= hi:
+            self.add(key, f'"{key}" must be from {lo:g} to {hi:g}, not {value:g}')
+            return default
+        return value
+
+    def text(self, key: str, default: str | None = None) -> str | None:
+        value = self.device.get(key, default)
+        if value is not None and not isinstance(value, str):
+            self.add(key, f'"{key}" must be text in quotes, not {value!r}')
+            return default
+        return value
+
+    def choice(self, key: str, default: str, choices: tuple[str, ...]) -> str:
+        value = self.device.get(key, default)
+        if isinstance(value, str) and value.upper() in choices:
+            return value.upper()
+        shown = ", ".join(f'"{c}"' for c in choices)
+        self.add(key, f'"{key}" must be one of {shown}, not {value!r}')
+        return default
+
+    def serial(self) -> dict[str, Any]:
+        port = self.text("port")
+        if not port:
+            self.add("port", 'say which port: port = "/dev/ttyUSB0" (or "tcp://HOST:PORT")')
+            port = ""
+        elif port.startswith("tcp://"):
+            try:
+                parse_tcp(port)
+            except ValueError as exc:
+                self.add("port", str(exc))
+        baud = int(self.number("baud", 9600, 300, 1_000_000, whole=True))
+        if "baud" in self.device and baud not in STANDARD_BAUDS and baud == self.device["baud"]:
+            near = min(STANDARD_BAUDS, key=lambda b: abs(b - baud))
+            self.add("baud", f"{baud} is not a usual baud rate (did you mean {near}?)")
+        stopbits = self.number("stopbits", 1, 1, 2, whole=True)
+        bytesize = self.number("bytesize", 8, 7, 8, whole=True)
+        return dict(
+            port=port, baud=baud, parity=self.choice("parity", "N", PARITIES),
+            stopbits=int(stopbits), bytesize=int(bytesize),
+            timeout_s=self.number("timeout", 1.0, 0.05, 60.0),
+            reconnect_max_s=self.number("reconnect_max", 30.0, 0.1, 3600.0),
+        )
+
+
+def _check_modbus(device: Mapping[str, Any], base_dir: str
+                  ) -> tuple[ModbusSettings | None, RegisterMap | None, float, Problems]:
+    check = _Check(device)
+    check.unknown(MODBUS_KEYS)
+    common = check.serial()
+    address = int(check.number("address", 1, 1, 247, whole=True))
+    poll = check.number("poll", 2.0, 0.05, 3600.0)
+    retries = int(check.number("retries", 2, 0, 10, whole=True))
+    interval = check.number("setpoint_min_interval", DEFAULT_MIN_INTERVAL_S, 0.0, 3600.0)
+    map_name = check.text("map")
+    register_map: RegisterMap | None = None
+    if not map_name:
+        check.add("map", 'say which register map: map = "generic-pid" (a shipped name) or '
+                  "a path to your own .toml file")
+    else:
+        try:
+            register_map = load_map(map_name, base_dir)
+        except MapError as exc:
+            for problem in exc.problems:
+                check.add("map", f"register map: {problem}")
+    if check.problems:
+        return None, None, poll, check.problems
+    settings = ModbusSettings(address=address, poll_s=poll, retries=retries,
+                              setpoint_min_interval_s=interval, **common)
+    return settings, register_map, poll, []
+
+
+def _check_lines(device: Mapping[str, Any]) -> tuple[LineSettings | None, float, Problems]:
+    check = _Check(device)
+    check.unknown(LINES_KEYS)
+    common = check.serial()
+    common["timeout_s"] = check.number("timeout", 5.0, 0.05, 600.0)
+    poll = check.number("poll", 1.0, 0.05, 3600.0)
+    fmt = device.get("format")
+    if fmt not in FORMATS:
+        shown = ", ".join(f'"{f}"' for f in FORMATS)
+        extra = _suggest(str(fmt), FORMATS) if isinstance(fmt, str) else ""
+        check.add("format", f'"format" must be one of {shown}{extra}'
+                  if fmt is not None else f"say how to read a line: format = one of {shown}")
+    pattern = check.text("pattern")
+    groups: set[str] | None = None
+    if fmt == "regex":
+        if not pattern:
+            check.add("pattern", 'format = "regex" needs a pattern with named groups, e.g. '
+                      "pattern = 'T1=(?P<t1>[-0-9.]+)'")
+        else:
+            try:
+                compiled = re.compile(pattern)
+                groups = set(compiled.groupindex)
+            except re.error as exc:
+                check.add("pattern", f"the pattern is not a valid regular expression ({exc})")
+                groups = None
+    separator = check.text("separator", ",") or ","
+    pair_separator = check.text("pair_separator")
+    header = device.get("header", False)
+    if not isinstance(header, bool):
+        check.add("header", '"header" must be true or false')
+        header = False
+    channels: list[ChannelSpec] = []
+    raw_channels = device.get("channels")
+    if not isinstance(raw_channels, Mapping) or not raw_channels:
+        check.add("channels", "say which field is which channel: [device.channels] with "
+                  'chamber = { field = "T1" }')
+        raw_channels = {}
+    for name, spec in raw_channels.items():
+        path: KeyPath = ("channels", name)
+        if not isinstance(spec, Mapping):
+            check.add(path, 'must be a table such as { field = "T1", unit = "C" }')
+            continue
+        for key in spec:
+            if key not in CHANNEL_KEYS:
+                check.add((*path, key), f'unknown key "{key}"{_suggest(str(key), CHANNEL_KEYS)}')
+        fld = spec.get("field")
+        if not isinstance(fld, str | int) or isinstance(fld, bool) or fld == "":
+            check.add((*path, "field"), "give the field: a name, or a column number from 0")
+            continue
+        if isinstance(fld, int) and fmt != "csv":
+            check.add((*path, "field"), "column numbers work with format = \"csv\" only")
+        if fmt == "regex" and pattern and isinstance(fld, str) and groups is not None \
+                and fld not in groups:
+            check.add((*path, "field"), f'the pattern has no group named "{fld}"')
+        unit = spec.get("unit", "C")
+        if unit not in ("C", "F", "mV"):
+            check.add((*path, "unit"), f'"unit" must be "C", "F" or "mV", not {unit!r}')
+            continue
+        tc = spec.get("thermocouple")
+        cold_c: float | None = None
+        cold_field: str | int | None = None
+        if unit == "mV":
+            if not isinstance(tc, str) or tc.upper() not in THERMOCOUPLES:
+                check.add((*path, "thermocouple"), 'a millivolt channel needs the type: '
+                          f'thermocouple = one of {", ".join(THERMOCOUPLES)}')
+                continue
+            tc = tc.upper()
+            cold = spec.get("cold_junction")
+            cold_field = spec.get("cold_junction_field")
+            if (cold is None) == (cold_field is None):
+                check.add((*path, "cold_junction"), "say where the cold junction is: a "
+                          "temperature in °C (cold_junction = 23) or a field holding it "
+                          '(cold_junction_field = "cj"), one of the two')
+                continue
+            if cold is not None:
+                if not isinstance(cold, int | float) or isinstance(cold, bool):
+                    check.add((*path, "cold_junction"), "must be a temperature in °C")
+                    continue
+                cold_c = float(cold)
+            elif not isinstance(cold_field, str | int) or isinstance(cold_field, bool):
+                check.add((*path, "cold_junction_field"), "must be a field name or column")
+                continue
+        elif tc is not None or "cold_junction" in spec or "cold_junction_field" in spec:
+            check.add((*path, "unit"), 'thermocouple and cold_junction need unit = "mV"')
+        cj_unit = spec.get("cold_junction_unit", "C")
+        if cj_unit not in ("C", "F"):
+            check.add((*path, "cold_junction_unit"), 'must be "C" or "F"')
+            cj_unit = "C"
+        open_words = spec.get("open", list(DEFAULT_OPEN))
+        if not isinstance(open_words, list) or not all(isinstance(w, str) for w in open_words):
+            check.add((*path, "open"), 'must be a list of words, e.g. open = ["OPEN", "----"]')
+            open_words = list(DEFAULT_OPEN)
+        channels.append(ChannelSpec(
+            name=str(name), field=fld, unit=unit, thermocouple=tc, cold_junction_c=cold_c,
+            cold_junction_field=cold_field, cold_junction_unit=cj_unit,
+            open_words=tuple(w.lower() for w in open_words),
+        ))
+    if check.problems:
+        return None, poll, check.problems
+    common.pop("reconnect_max_s")
+    settings = LineSettings(
+        format=str(fmt), channels=tuple(channels), pattern=pattern, separator=separator,
+        pair_separator=pair_separator, header=header,
+        reconnect_max_s=check.number("reconnect_max", 30.0, 0.1, 3600.0), **common,
+    )
+    return settings, poll, []
+
+
+def _kind(device: Mapping[str, Any]) -> tuple[str | None, Problems]:
+    kind = device.get("kind", "sim")
+    if kind in KINDS:
+        return kind, []
+    shown = ", ".join(f'"{k}"' for k in KINDS)
+    extra = _suggest(str(kind), KINDS) if isinstance(kind, str) else ""
+    return None, [(("device", "kind"), f'"kind" must be one of {shown}, not {kind!r}{extra}')]
+
+
+def check_device_settings(table: Mapping[str, Any], base_dir: str) -> Problems:
+    """Every problem in the [device] table as (key path from the file's root, message)."""
+    try:
+        device = _device_table(table)
+        if not isinstance(device, Mapping):
+            return [(("device",), "[device] must be a table")]
+        kind, problems = _kind(device)
+        if kind == "modbus":
+            problems += _check_modbus(device, base_dir)[3]
+        elif kind == "lines":
+            problems += _check_lines(device)[2]
+        elif kind == "sim":
+            from drivers.simdevice import check_sim_table
+
+            problems += check_sim_table(device)[1]
+        return problems
+    except Exception as exc:  # noqa: BLE001 - a checker bug must not become a traceback
+        return [(("device",), f"could not check the device settings ({exc})")]
+
+
+def open_device(table: Mapping[str, Any], base_dir: str, *, speed: float | None = None
+                ) -> Device:
+    """Build the device the [device] table describes (not yet connected).
+
+    `speed` applies to the simulator: None keeps the kiln file's (default 1 = real time);
+    0 or infinity means as fast as possible.
+    """
+    device = _device_table(table) if table else {}
+    kind, problems = _kind(device)
+    if problems:
+        raise DeviceSettingsError(problems)
+    built: Device
+    if kind == "modbus":
+        settings, register_map, poll, problems = _check_modbus(device, base_dir)
+        if problems or settings is None or register_map is None:
+            raise DeviceSettingsError(problems)
+        built = ModbusDevice(settings, register_map)
+    elif kind == "lines":
+        line_settings, poll, problems = _check_lines(device)
+        if problems or line_settings is None:
+            raise DeviceSettingsError(problems)
+        built = LineThermometer(line_settings)
+    else:
+        from drivers.simdevice import SimulatorDevice, check_sim_table
+
+        config, problems = check_sim_table(device)
+        if problems or config is None:
+            raise DeviceSettingsError(problems)
+        sim_speed = config.speed if speed is None else speed
+        if sim_speed is not None and (sim_speed <= 0 or math.isinf(sim_speed)):
+            sim_speed = None
+        built = SimulatorDevice.from_config(config, sim_speed)
+        poll = 1.0
+    built.poll_s = poll
+    return built

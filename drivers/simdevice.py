@@ -1,0 +1,110 @@
+"""The built-in software oven as a Device, in-process (no serial port, no Modbus).
+
+The only module of `drivers` that imports `simulator`. Its clock is the simulation's:
+`now()` is a fixed start plus the simulated seconds, and `sleep(dt)` moves the oven on by
+dt -- at once (speed None: as fast as possible) or in dt/speed real seconds.
+
+Faults behave as on a wire: a dropped link or a rebooting controller -> NoAnswer, line
+noise -> BadReply for that share of polls, an open thermocouple -> Reading.sensor_fault.
+"""
+
+from __future__ import annotations
+
+import asyncio
+import random
+from collections.abc import Mapping
+from typing import Any
+
+from drivers.base import Capabilities, Device, Reading
+from drivers.errors import BadReply, NoAnswer
+from simulator import SimConfig, SimulatedKiln
+from simulator.config import check_sim_settings
+
+# 2026-01-01 00:00:00 UTC: simulated runs get stable, recognisable timestamps.
+SIM_EPOCH = 1_767_225_600.0
+
+Problems = list[tuple[tuple[str | int, ...], str]]
+
+
+def check_sim_table(table: Mapping[str, Any]) -> tuple[SimConfig | None, Problems]:
+    """The simulator's own check of a kiln file's [device] table (never raises)."""
+    return check_sim_settings({"device": dict(table)})
+
+
+class SimClock:
+    """Simulated time: reading it costs nothing, sleeping moves the oven on."""
+
+    def __init__(self, kiln: SimulatedKiln, speed: float | None, start: float = SIM_EPOCH
+                 ) -> None:
+        self.kiln = kiln
+        self.speed = speed
+        self.start = start
+
+    def now(self) -> float:
+        return self.start + self.kiln.time_s
+
+    async def sleep(self, seconds: float) -> None:
+        seconds = max(0.0, seconds)
+        if self.speed is None:
+            self.kiln.advance(seconds)
+            await asyncio.sleep(0)
+            return
+        # Real time passes first, so a reading taken meanwhile never comes from the future.
+        await asyncio.sleep(seconds / self.speed)
+        self.kiln.advance(seconds)
+
+
+class SimulatorDevice(Device):
+    def __init__(self, kiln: SimulatedKiln, speed: float | None = None, *,
+                 seed: int = 0) -> None:
+        self.kiln = kiln
+        self.clock = SimClock(kiln, speed)
+        config = kiln.config
+        self.capabilities = Capabilities(
+            can_write_setpoint=True, can_stop_heating=True,
+            has_load_thermocouple=bool(kiln.has_load_tc), has_output=True,
+            setpoint_resolution_c=0.1,
+        )
+        shown = "as fast as it goes" if speed is None else f"{speed:g}x"
+        self.description = f"built-in simulator ({shown})"
+        self._noise = random.Random(seed)
+        self._setpoint_max = config.oven.setpoint_max_c
+        self.polls = 0
+
+    @classmethod
+    def from_config(cls, config: SimConfig, speed: float | None) -> SimulatorDevice:
+        return cls(SimulatedKiln(config, seed=config.seed), speed, seed=config.seed)
+
+    def _check_link(self, what: str) -> None:
+        if not self.kiln.link_up:
+            raise NoAnswer(f"the simulated controller does not answer ({what})",
+                           hint="a simulated link drop or controller reboot; it comes back")
+        share = self.kiln.line_noise_share
+        if share > 0.0 and self._noise.random() < share:
+            raise BadReply(f"damaged reply from the simulated controller ({what})")
+
+    async def connect(self) -> None:
+        await asyncio.sleep(0)
+
+    async def read(self) -> Reading:
+        self.polls += 1
+        self._check_link("reading")
+        r = self.kiln.read()
+        return Reading(
+            time=self.clock.now(), chamber_c=r.chamber_c, load_c=r.load_c,
+            setpoint_c=r.setpoint_c, output_pct=r.output_pct, sensor_fault=r.sensor_fault,
+            running=r.running,
+        )
+
+    async def write_setpoint(self, celsius: float) -> None:
+        self._check_link("writing the setpoint")
+        self.kiln.set_setpoint(max(0.0, min(float(celsius), self._setpoint_max)))
+        self.kiln.set_running(True)
+
+    async def stop_heating(self) -> None:
+        self._check_link("stopping the heat")
+        self.kiln.set_setpoint(0.0)
+        self.kiln.set_running(False)
+
+    async def close(self) -> None:
+        await asyncio.sleep(0)

@@ -1,0 +1,52 @@
+"""Alerts: everything that tells the world what a run is doing.
+
+    AlertFanout (fanout.py)   the one AlertSink the engine talks to
+      TerminalSink            a line per event, a bell on alarms (headless runs)
+      MqttPublisher (mqtt.py) status, state, events, readings; remote commands (remote.py);
+                              dashboard discovery (discovery.py)
+      HookRunner (hooks.py)   programs run for chosen events
+
+The kiln file's `[mqtt]` and `[[hook]]` are checked by settings.py. `build_alerts` wires it
+all for the engine, which passes its emit (events the alerts raise themselves: refusals,
+failures) and its command handler.
+"""
+
+from __future__ import annotations
+
+import time
+from collections.abc import Callable, Sequence
+from typing import TextIO
+
+from tuikiln.alerts.fanout import AlertFanout, TerminalSink
+from tuikiln.alerts.hooks import HookRunner
+from tuikiln.alerts.mqtt import CommandCallback, MqttPublisher
+from tuikiln.alerts.settings import HookSpec, MqttSettings, check_hooks, check_mqtt_settings
+from tuikiln.events import AlertSink, Event
+
+__all__ = [
+    "AlertFanout", "HookRunner", "HookSpec", "MqttPublisher", "MqttSettings", "TerminalSink",
+    "build_alerts", "check_hooks", "check_mqtt_settings",
+]
+
+
+def build_alerts(
+    *,
+    kiln_name: str,
+    emit: Callable[[Event], None],
+    on_command: CommandCallback | None = None,
+    mqtt: MqttSettings | None = None,
+    hooks: Sequence[HookSpec] = (),
+    units: str = "C",
+    terminal: TextIO | None = None,
+    bell: bool = False,
+    clock: Callable[[], float] = time.time,
+) -> AlertFanout:
+    """The fan-out for one engine: terminal (when a stream is given), MQTT, hooks."""
+    sinks: list[AlertSink] = []
+    if terminal is not None:
+        sinks.append(TerminalSink(terminal, bell=bell))
+    if mqtt is not None:
+        sinks.append(MqttPublisher(mqtt, emit=emit, on_command=on_command, clock=clock))
+    if hooks:
+        sinks.append(HookRunner(hooks, kiln_name=kiln_name, emit=emit, units=units, clock=clock))
+    return AlertFanout(sinks)
