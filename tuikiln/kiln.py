@@ -6,6 +6,7 @@ With no kiln file the device is the built-in simulator, so the first run works a
 
 from __future__ import annotations
 
+import math
 import os
 from collections.abc import Mapping
 from dataclasses import dataclass, field
@@ -100,7 +101,8 @@ def parse_kiln(text: str, file: str = "<kiln>") -> Kiln:
         if str(device.get("kind", "sim")) != "sim":
             report((), f'the kiln file needs "max", the kiln\'s highest allowed temperature in '
                    f'°{units} (from its maker\'s plate or manual)')
-    elif isinstance(max_raw, bool) or not isinstance(max_raw, int | float) or max_raw <= 0:
+    elif (isinstance(max_raw, bool) or not isinstance(max_raw, int | float)
+          or not math.isfinite(max_raw) or max_raw <= 0):
         report(("max",), '"max" must be a temperature, such as 1100')
     else:
         max_c = to_c(float(max_raw), units)

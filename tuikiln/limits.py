@@ -8,6 +8,7 @@ its degrees per minute, durations as "5m"); inside they are kelvin, °C/s and se
 from __future__ import annotations
 
 import difflib
+import math
 from collections.abc import Callable, Mapping
 from dataclasses import dataclass, fields, replace
 from typing import Any
@@ -39,9 +40,9 @@ LIMIT_KEYS: tuple[LimitKey, ...] = (
     LimitKey("link_lost_safe", "duration", 120.0, "no good reading for this long: safe state"),
     LimitKey("pause_remind", "duration", 300.0, "repeat the operator alert this often"),
     LimitKey("pause_too_long", "duration", 3600.0, "a run paused longer than this alerts"),
-    LimitKey("equalize_window", "duration", 300.0, "slope is fitted over this window"),
+    LimitKey("equalize_window", "duration", 120.0, "slope is fitted over this window"),
     LimitKey("equalize_slope", "slope", 0.5, "slope below this (degrees/min) counts as level"),
-    LimitKey("equalize_confirm", "duration", 120.0, "level and in band for this long: equalized"),
+    LimitKey("equalize_confirm", "duration", 10.0, "level and in band for this long: equalized"),
 )
 LIMIT_NAMES = tuple(key.name for key in LIMIT_KEYS)
 _BY_NAME = {key.name: key for key in LIMIT_KEYS}
@@ -63,9 +64,9 @@ class Limits:
     link_lost_safe: float = 120.0
     pause_remind: float = 300.0
     pause_too_long: float = 3600.0
-    equalize_window: float = 300.0
+    equalize_window: float = 120.0
     equalize_slope: float = 0.5
-    equalize_confirm: float = 120.0
+    equalize_confirm: float = 10.0
 
     def merged(self, overrides: Mapping[str, float]) -> Limits:
         return replace(self, **{k: v for k, v in overrides.items() if k in LIMIT_NAMES})
@@ -109,6 +110,8 @@ def _parse_value(key: LimitKey, raw: Any, units: Units) -> float:
     if isinstance(raw, bool) or not isinstance(raw, int | float):
         what = "degrees per minute" if key.kind == "slope" else "degrees"
         raise ValueError(f"needs a number of {what}, such as 15")
+    if not math.isfinite(raw):
+        raise ValueError("needs a finite number, such as 15")
     if raw <= 0:
         raise ValueError("must be more than zero")
     return delta_to_c(float(raw), units)

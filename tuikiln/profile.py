@@ -331,7 +331,8 @@ class _Checker:
         band = table.get("band")
         band_c = None
         if band is not None:
-            if isinstance(band, bool) or not isinstance(band, int | float) or band <= 0:
+            if (isinstance(band, bool) or not isinstance(band, int | float)
+                    or not math.isfinite(band) or band <= 0):
                 self.report(where + ("band",), f'step {number}: "band" must be a number of '
                             "degrees above zero, such as 10")
             else:

@@ -91,6 +91,13 @@ def load_toml(text: str, file: str) -> tuple[dict | None, list[Problem]]:
         reason = reason[:1].lower() + reason[1:]
         col = f" (column {match.group(2)})" if match else ""
         return None, [Problem(file, line, f"this is not valid TOML{col}: {reason}")]
+    except RecursionError:
+        # tomllib recurses once per nested array or inline table
+        return None, [Problem(file, None, "this is not a file tuikiln can read: arrays or "
+                              "tables are nested far too deeply")]
+    except ValueError as exc:
+        # e.g. an integer of more than 4300 digits (Python's int conversion limit)
+        return None, [Problem(file, None, f"this is not valid TOML: {exc}")]
 
 
 def read_text(path: str) -> tuple[str | None, list[Problem]]:

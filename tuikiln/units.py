@@ -64,6 +64,8 @@ def parse_temperature(text: str, default_units: Units | None = None) -> float:
     if not match:
         raise ValueError(f'"{text}" is not a temperature such as "1750F" or "955C"')
     value = float(match.group(1))
+    if not math.isfinite(value):
+        raise ValueError(f'"{text[:40]}" is not a temperature: the number is far too large')
     units = (match.group(2) or default_units or "").upper()
     if units not in UNITS:
         raise ValueError(f'"{text}" needs a unit: write "{text}C" or "{text}F"')
@@ -97,6 +99,8 @@ def parse_duration(text: str | int | float) -> float:
         seen.add(unit)
         last = order.index(unit)
         total += float(number) * _UNIT_SECONDS[unit]
+    if not math.isfinite(total):
+        raise ValueError(f'"{text[:40]}" is not a duration: the number is far too large')
     return total
 
 
@@ -126,6 +130,8 @@ def parse_rate(text: str, units: Units) -> float | None:
     if not match:
         raise ValueError(f'"{text}" is not a rate such as "400/h", "10/min" or "max"')
     value = float(match.group(1))
+    if not math.isfinite(value):
+        raise ValueError(f'"{text[:40]}" is not a rate: the number is far too large')
     if value <= 0:
         raise ValueError(f'"{text}" is not a rate: it must be more than zero')
     per = 3600.0 if match.group(2).lower() in ("h", "hr", "hour") else 60.0
@@ -147,6 +153,8 @@ def parse_thickness(text: str) -> float:
     if not match:
         raise ValueError(f'"{text}" is not a thickness such as "4 mm" or "0.16 in"')
     value = float(match.group(1))
+    if not math.isfinite(value):
+        raise ValueError(f'"{text[:40]}" is not a thickness: the number is far too large')
     if value <= 0:
         raise ValueError(f'"{text}" is not a thickness: it must be more than zero')
     unit = match.group(2).lower()

@@ -1,0 +1,45 @@
+"""Every example profile runs to the end on the in-process simulator through
+`tuikiln run --headless --speed max`, and the log holds every sample and event.
+
+The shortest runs by default; the rest take several seconds each, so they run when
+TUIKILN_SLOW_TESTS=1 is set (the lead runs them before a release).
+"""
+
+from __future__ import annotations
+
+import contextlib
+import io
+import os
+from pathlib import Path
+
+import pytest
+
+from tuikiln.cli import main
+from tuikiln.runlog import RunLog
+
+PROFILES = sorted((Path(__file__).parent.parent / "profiles").glob("*.toml"))
+QUICK = {"dry-run.toml"}
+SLOW = os.environ.get("TUIKILN_SLOW_TESTS") == "1"
+
+
+@pytest.mark.parametrize("profile", PROFILES, ids=lambda p: p.name)
+def test_example_profile_completes_headless(tmp_path, monkeypatch, profile):
+    if profile.name not in QUICK and not SLOW:
+        pytest.skip("slow example: set TUIKILN_SLOW_TESTS=1")
+    monkeypatch.setenv("XDG_CONFIG_HOME", str(tmp_path / "config"))  # no user kiln file
+    out = io.StringIO()
+    with contextlib.redirect_stdout(out):
+        code = main(["run", str(profile), "--headless", "--speed", "max", "--auto-continue",
+                     "--data", str(tmp_path)])
+    text = out.getvalue()
+    assert code == 0, text
+    assert "Run complete" in text and "Warning" not in text and "ALARM" not in text
+    log = RunLog.in_folder(tmp_path)
+    run = log.runs()[-1]
+    assert run.outcome == "completed"
+    samples = log.samples(run.id)
+    # One sample per simulated second from start to end.
+    assert len(samples["t"]) == int(round(run.ended - run.started)) + 1
+    kinds = [e["kind"] for e in log.events(run.id)]
+    assert kinds[0] == "run-start" and kinds[-1] == "run-end"
+    assert kinds.count("step-start") == kinds.count("step-end")

@@ -1,0 +1,198 @@
+"""The engine on the in-process simulator (drivers/simdevice.py) at full speed, with the
+simulator's own faults (simulator/config.py). Each alarm meets the fault that should raise
+it; clean runs with realistic noise (0.3 °C, the simulator's default) raise nothing.
+
+Fault-to-alarm expectations are tuikiln's own design (tuikiln/engine/alarms.py).
+"""
+
+from __future__ import annotations
+
+import pytest
+
+from drivers.factory import open_device
+from tuikiln import events as ev
+from tuikiln.engine import states as st
+from tuikiln.engine.runner import KilnInfo, RunEngine
+from tuikiln.kiln import parse_kiln
+from tuikiln.limits import Limits
+from tuikiln.profile import parse_profile
+from tuikiln.runlog import RunLog
+
+SHORT = """
+name = "short"
+units = "C"
+[[step]]
+ramp = "max"
+to = 300
+[[step]]
+hold = "5m"
+start = "equalized"
+[[step]]
+cool = "300/h"
+to = 220
+[[step]]
+cool = "free"
+to = 150
+"""
+
+LONG_RAMP = """
+name = "long ramp"
+units = "C"
+[[step]]
+ramp = "600/h"
+to = 700
+[[step]]
+hold = "20m"
+[[step]]
+cool = "free"
+to = 300
+"""
+
+
+class Watcher:
+    """A sink that remembers events and can abort the run when an alarm shows."""
+
+    def __init__(self, abort_on: str | None = None) -> None:
+        self.events: list = []
+        self.abort_on = abort_on
+        self.engine: RunEngine | None = None
+
+    def event(self, event) -> None:
+        self.events.append(event)
+        if (self.abort_on and event.kind == ev.ALARM_RAISED
+                and event.detail.get("alarm") == self.abort_on and self.engine is not None):
+            self.engine.command("abort", "test saw the alarm")
+
+    def state(self, state) -> None:
+        pass
+
+    def reading(self, sample) -> None:
+        pass
+
+    def raised(self) -> list[str]:
+        return [e.detail["alarm"] for e in self.events if e.kind == ev.ALARM_RAISED]
+
+    def cleared(self) -> list[str]:
+        return [e.detail["alarm"] for e in self.events if e.kind == ev.ALARM_CLEARED]
+
+
+async def simulate(tmp_path, profile_text: str, *, seed: int = 1, faults: str = "",
+                   abort_on: str | None = None, max_c: float = 1100.0):
+    kiln = parse_kiln(f'name = "Test oven"\nunits = "C"\nmax = {max_c}\n[device]\n'
+                      f'kind = "sim"\nseed = {seed}\n{faults}', str(tmp_path / "kiln.toml"))
+    profile = parse_profile(profile_text, "p.toml", max_c=kiln.max_c)
+    device = open_device(kiln.device, kiln.base_dir, speed=0.0)
+    watcher = Watcher(abort_on)
+    log = RunLog.in_folder(tmp_path)
+    async with device:
+        engine = RunEngine(device, profile, kiln=KilnInfo(kiln.name, "C", kiln.max_c),
+                           limits=Limits().merged(kiln.alarms).merged(profile.limits),
+                           runlog=log, sinks=[watcher], auto_continue=True)
+        watcher.engine = engine
+        outcome = await engine.run()
+    return outcome, watcher, engine, device, log
+
+
+@pytest.mark.parametrize("seed", range(10))
+async def test_clean_runs_raise_no_alarm(tmp_path, seed):
+    outcome, watcher, engine, _, log = await simulate(tmp_path, SHORT, seed=seed)
+    assert outcome == st.COMPLETED
+    assert watcher.raised() == []
+    assert ev.EQUALIZED in [e.kind for e in watcher.events]
+    # The log holds every sample (one per tick, plus the last) and every event.
+    assert log.sample_count(engine.run_id) == engine.ticks + 1
+    assert len(log.events(engine.run_id)) == len(watcher.events)
+
+
+async def test_open_heater_is_falling_behind(tmp_path):
+    faults = '[[device.fault]]\nat = "10m"\nkind = "element-open"\n'
+    outcome, watcher, *_ = await simulate(tmp_path, LONG_RAMP, faults=faults,
+                                          abort_on="lagging")
+    assert "lagging" in watcher.raised()
+    assert "no-rise" in watcher.raised()
+    assert outcome == st.ABORTED
+    assert "heat-stuck-on" not in watcher.raised()
+
+
+async def test_welded_relay_is_heat_stuck_on_and_ends_safe(tmp_path):
+    faults = '[[device.fault]]\nat = "30m"\nkind = "relay-welded"\n'
+    outcome, watcher, engine, device, log = await simulate(tmp_path, LONG_RAMP, faults=faults)
+    assert outcome == st.STOPPED_BY_ALARM
+    assert "heat-stuck-on" in watcher.raised()
+    safe = [e for e in watcher.events if e.kind == ev.SAFE_STATE]
+    assert safe and safe[0].detail["done"]
+    # The controller was told to stop: setpoint down, output disabled.
+    assert not device.kiln.controller.running
+    assert device.kiln.controller.setpoint_c == 0.0
+    assert log.run(engine.run_id).outcome == st.STOPPED_BY_ALARM
+
+
+async def test_open_thermocouple_is_a_sensor_fault_and_ends_safe(tmp_path):
+    faults = '[[device.fault]]\nat = "15m"\nkind = "tc-open"\n'
+    outcome, watcher, engine, device, _ = await simulate(tmp_path, LONG_RAMP, faults=faults)
+    assert outcome == st.STOPPED_BY_ALARM
+    assert watcher.raised()[0] == "sensor-bad"
+    assert any(e.kind == ev.SAFE_STATE for e in watcher.events)
+    assert not device.kiln.controller.running
+    # It stopped within seconds of the fault, not minutes.
+    assert engine.clock.now() - engine.started < 15 * 60 + 30
+
+
+async def test_dropped_link_is_reported_and_the_run_recovers(tmp_path):
+    faults = '[[device.fault]]\nat = "10m"\nkind = "link-drop"\nfor = "60s"\n'
+    outcome, watcher, *_ = await simulate(tmp_path, SHORT, faults=faults)
+    assert outcome == st.COMPLETED
+    assert "no-link" in watcher.raised() and "no-link" in watcher.cleared()
+    assert "no-link-too-long" not in watcher.raised()
+
+
+async def test_long_lost_link_ends_the_run(tmp_path):
+    faults = '[[device.fault]]\nat = "10m"\nkind = "link-drop"\nfor = "10m"\n'
+    outcome, watcher, *_ = await simulate(tmp_path, SHORT, faults=faults)
+    assert outcome == st.STOPPED_BY_ALARM
+    assert "no-link-too-long" in watcher.raised()
+    safe = [e for e in watcher.events if e.kind == ev.SAFE_STATE]
+    assert safe  # it says what it could and could not do
+
+
+async def test_line_noise_alone_raises_nothing(tmp_path):
+    faults = '[[device.fault]]\nat = "5m"\nkind = "line-noise"\nshare = 0.3\nfor = "20m"\n'
+    outcome, watcher, *_ = await simulate(tmp_path, SHORT, faults=faults)
+    assert outcome == st.COMPLETED
+    assert watcher.raised() == []
+
+
+async def test_watch_only_follows_the_plan_without_writing(tmp_path):
+    from drivers.base import Capabilities
+
+    kiln = parse_kiln('name = "Watched"\nunits = "C"\nmax = 1100\n[device]\nkind = "sim"\n',
+                      str(tmp_path / "kiln.toml"))
+    profile = parse_profile(SHORT, "p.toml")
+    device = open_device(kiln.device, kiln.base_dir, speed=0.0)
+    device.capabilities = Capabilities(can_write_setpoint=False, can_stop_heating=False,
+                                       has_output=True)
+    device.kiln.set_setpoint(300.0)  # a person set the controller by hand
+    device.kiln.set_running(True)
+    watcher = Watcher()
+    async with device:
+        engine = RunEngine(device, profile, kiln=KilnInfo("Watched", "C", 1100.0),
+                           limits=Limits(), sinks=[watcher])
+        engine.command("abort")  # only to end the test quickly; the first tick acts on it
+        await engine.run()
+    assert engine.watch_only and engine.status()["watch_only"] is True
+    safe = [e for e in watcher.events if e.kind == ev.SAFE_STATE][0]
+    assert not safe.detail["done"] and "cannot turn" in safe.detail["words"]
+    assert device.kiln.controller.setpoint_c == 300.0  # nothing was written
+
+
+def test_a_profile_hotter_than_the_kiln_is_refused(tmp_path):
+    from tuikiln.cli import main
+
+    kiln = tmp_path / "kiln.toml"
+    kiln.write_text('name = "Small"\nunits = "C"\nmax = 900\n[device]\nkind = "sim"\n')
+    profile = tmp_path / "hot.toml"
+    profile.write_text('units = "C"\n[[step]]\nramp = "max"\nto = 1000\n')
+    code = main(["run", str(profile), "--kiln", str(kiln), "--headless", "--speed", "max",
+                 "--data", str(tmp_path / "data")])
+    assert code == 1
+    assert not (tmp_path / "data" / "runs.sqlite").exists()

@@ -1,0 +1,329 @@
+"""A replay in words: the terminal table, a Markdown report and an HTML report with its chart.
+
+Every output ends with the safety line. The HTML is one self-contained file: inline CSS and
+SVG, no script, no external asset.
+"""
+
+from __future__ import annotations
+
+from collections.abc import Mapping, Sequence
+from datetime import UTC, datetime
+from html import escape
+from typing import Any
+
+from tuikiln.analysis.replay import MET, MISSED, Replay, StepResult, clock
+from tuikiln.analysis.whatif import AlarmChange
+from tuikiln.limits import LIMIT_KEYS
+from tuikiln.profile import describe_step
+from tuikiln.units import Units, delta_from_c, format_duration, format_rate, format_temp, symbol
+
+SAFETY = ("tuikiln is not a safety device: the oven needs an independent over-temperature "
+          "limit.")
+QUENCH_CAUTION = ("Quench oil is a fire hazard: a lid within reach, no water near it, and a "
+                  "fire extinguisher for oil fires.")
+C_NOTE = "C depends on the steel"
+
+
+# ----- figures in words -----
+
+
+def _d(kelvin: float | None, units: Units) -> str:
+    if kelvin is None:
+        return "--"
+    return f"{delta_from_c(kelvin, units):.0f} {symbol(units)}"
+
+
+def step_figures(s: StepResult, units: Units) -> list[str]:
+    """Short phrases with the step's figures, for a table cell."""
+    f = s.figures
+    out: list[str] = []
+    if s.start_s is None:
+        return out
+    duration = f.get("duration_s")
+    if s.kind in ("ramp", "cool"):
+        planned = f.get("planned_s")
+        took = f"took {format_duration(duration)}"
+        if planned is not None:
+            took += f" (planned {format_duration(planned)})"
+        out.append(took)
+        if f.get("achieved_rate_c_per_h") is not None:
+            rate = f"{format_rate(f['achieved_rate_c_per_h'] / 3600.0, units)} achieved"
+            if f.get("planned_rate_c_per_h") is not None:
+                rate += f" of {format_rate(f['planned_rate_c_per_h'] / 3600.0, units)}"
+            out.append(rate)
+        if f.get("max_overshoot_c"):
+            out.append(f"overshoot {_d(f['max_overshoot_c'], units)} at "
+                       f"{clock(f.get('max_overshoot_at_s'))}")
+    elif s.kind == "hold":
+        if f.get("reached_at_s") is not None:
+            out.append(f"band reached {clock(f['reached_at_s'])}")
+        if f.get("equalized_at_s") is not None:
+            out.append(f"even {clock(f['equalized_at_s'])}")
+        if f.get("at_temperature_s") is not None:
+            out.append(f"{format_duration(f['at_temperature_s'])} in band of "
+                       f"{format_duration(f.get('planned_s'))}")
+        if f.get("out_of_band_s"):
+            out.append(f"{format_duration(f['out_of_band_s'])} out of band")
+        if f.get("max_overshoot_c") is not None:
+            out.append(f"overshoot {_d(f['max_overshoot_c'], units)}")
+        if f.get("lowest_c") is not None:
+            out.append(f"lowest {format_temp(f['lowest_c'], units)}")
+    elif s.kind == "pause":
+        out.append(f"waited {format_duration(f.get('waited_s'))}")
+    return out
+
+
+def _temper_lines(result: Replay) -> list[str]:
+    temper = result.temper
+    holds = temper.get("holds") or []
+    if not holds:
+        return []
+    c = temper.get("c", 20.0)
+    lines = []
+    for h in holds:
+        actual = h.get("parameter")
+        got = f"P = {actual:,.0f}" if actual is not None else "P not measured"
+        source = f" from the {h['source']}" if h.get("source") else ""
+        lines.append(f"step {h['index'] + 1} at {format_temp(h['target_c'], result.units)}: "
+                     f"{got}{source} (planned {h['planned_parameter']:,.0f})")
+    if temper.get("total") is not None:
+        lines.append(f"all tempers together: P = {temper['total']:,.0f} (planned "
+                     f"{temper['planned_total']:,.0f})")
+    lines.append(f"Hollomon-Jaffe P = T (C + log10 t), T in kelvin, t in hours, C = {c:g}; "
+                 f"{C_NOTE} (about 10 to 20; 20 is the usual default): compare only with the "
+                 "same C")
+    return lines
+
+
+def _quench_lines(result: Replay) -> list[str]:
+    lines = []
+    for q in result.quench:
+        head = f"after step {q['index'] + 1}: "
+        if q.get("reason"):
+            lines.append(head + q["reason"])
+            continue
+        t85 = (f"t8/5 (800 to 500 °C) {q['t8_5_s']:.1f} s" if q.get("t8_5_s") is not None
+               else f"t8/5 not measured: {q.get('t8_5_reason')}")
+        below = format_temp(q["below_c"], result.units)
+        to_below = (f"from the end of the hold to below {below}: "
+                    f"{format_duration(q['to_below_s'])}" if q.get("to_below_s") is not None
+                    else f"below {below} not measured: {q.get('to_below_reason')}")
+        lines.append(head + t85 + "; " + to_below)
+    return lines
+
+
+def _alarm_line(a: Mapping[str, Any]) -> str:
+    cleared = f", cleared {clock(a['cleared_s'])}" if a.get("cleared_s") is not None else ""
+    return f"{clock(a['raised_s'])} {a['severity']}: {a['words']}{cleared}"
+
+
+def _heading(result: Replay) -> str:
+    run = result.run
+    if "csv" in run:
+        return f"Log {run['csv']} against \"{result.profile.name}\""
+    when = ""
+    if run.get("started"):
+        when = datetime.fromtimestamp(run["started"], UTC).strftime(
+            " started %Y-%m-%d %H:%M UTC")
+    return (f"Run {run.get('id', '?')}: \"{result.profile.name}\" on {run.get('kiln', '?')}"
+            f"{when} ({result.outcome or 'unknown'})")
+
+
+def whatif_dict(baseline: Replay, result: Replay, changes: Sequence[AlarmChange],
+                overrides: Mapping[str, float]) -> dict[str, Any]:
+    start = result.trace.start_t
+    return {
+        "thresholds": dict(overrides),
+        "verdict_before": baseline.verdict,
+        "verdict": result.verdict,
+        "alarms": [{"code": c.code, "words": c.words, "change": c.change,
+                    "logged_s": None if c.logged_t is None else c.logged_t - start,
+                    "replayed_s": None if c.replayed_t is None else c.replayed_t - start}
+                   for c in changes],
+        "steps": [{"index": a.index, "before": a.verdict, "after": b.verdict}
+                  for a, b in zip(baseline.steps, result.steps, strict=True)],
+    }
+
+
+def _whatif_lines(whatif: Mapping[str, Any], units: Units) -> list[str]:
+    names = {k.name: k for k in LIMIT_KEYS}
+    shown = []
+    for name, value in whatif["thresholds"].items():
+        kind = names[name].kind
+        words = (format_duration(value) if kind == "duration"
+                 else f"{delta_from_c(value, units):g} {symbol(units)}"
+                 + ("/min" if kind == "slope" else ""))
+        shown.append(f"{name.replace('_', '-')} {words}")
+    lines = [f"What if: {', '.join(shown)} (the engine's rules run again over the logged "
+             f"samples; the readings stay as logged)",
+             f"verdict: {whatif['verdict_before']} with the run's thresholds, "
+             f"{whatif['verdict']} with these"]
+    for a in whatif["alarms"]:
+        at = a["replayed_s"] if a["replayed_s"] is not None else a["logged_s"]
+        lines.append(f"  {a['change']:<15} {clock(at)} {a['code']}: {a['words']}")
+    if not whatif["alarms"]:
+        lines.append("  no alarm fires either way")
+    for st in whatif["steps"]:
+        if st["before"] != st["after"]:
+            lines.append(f"  step {st['index'] + 1}: {st['before']} -> {st['after']}")
+    return lines
+
+
+# ----- text -----
+
+
+def render_text(result: Replay, whatif: Mapping[str, Any] | None = None) -> str:
+    u = result.units
+    lines = [_heading(result), f"Verdict: {result.verdict.upper()}"]
+    lines += [f"  {r}" for r in result.reasons if not r.startswith("step ")]
+    lines.append("")
+    for s in result.steps:
+        label = f" ({s.step.label})" if s.step.label else ""
+        lines.append(f"{s.index + 1:>2}  {describe_step(s.step, u)}{label}")
+        lines.append(f"    {s.verdict}" + (f" - {', '.join(step_figures(s, u))}"
+                                             if step_figures(s, u) else ""))
+        lines += [f"      * {r}" for r in s.reasons]
+    data = result.as_dict()
+    if data["alarms"]:
+        lines += ["", "Alarms:"] + [f"  {_alarm_line(a)}" for a in data["alarms"]]
+    if result.notes:
+        lines += ["", "Notes:"] + [f"  {clock(n['at_s'])} {n['text']}" for n in result.notes]
+    temper = _temper_lines(result)
+    if temper:
+        lines += ["", "Tempering parameter:"] + [f"  {t}" for t in temper]
+    quench = _quench_lines(result)
+    if quench:
+        lines += ["", "Quench:"] + [f"  {q}" for q in quench] + [f"  {QUENCH_CAUTION}"]
+    if whatif is not None:
+        lines += [""] + _whatif_lines(whatif, u)
+    if result.source == "rules":
+        lines += ["", "Steps found by running the engine's rules over the samples."]
+    lines += ["", SAFETY, ""]
+    return "\n".join(lines)
+
+
+# ----- Markdown -----
+
+
+def _md(text: str) -> str:
+    return text.replace("|", "\\|").replace("\n", " ")
+
+
+def render_markdown(result: Replay, whatif: Mapping[str, Any] | None = None) -> str:
+    u = result.units
+    out = [f"# {_md(_heading(result))}", "", f"**Verdict: {result.verdict}**", ""]
+    out += [f"- {_md(r)}" for r in result.reasons]
+    out += ["", "| # | step | verdict | figures | reasons |", "|---|---|---|---|---|"]
+    for s in result.steps:
+        out.append(f"| {s.index + 1} | {_md(s.title(u))} | {s.verdict} | "
+                   f"{_md('; '.join(step_figures(s, u)))} | {_md('; '.join(s.reasons))} |")
+    out += _md_section("Alarms", [_alarm_line(a) for a in result.as_dict()["alarms"]])
+    out += _md_section("Load", _load_lines(result))
+    out += _md_section("Notes", [f"{clock(n['at_s'])} {n['text']}" for n in result.notes])
+    out += _md_section("Tempering parameter", _temper_lines(result))
+    quench = _quench_lines(result)
+    out += _md_section("Quench", quench + ([QUENCH_CAUTION] if quench else []))
+    if whatif is not None:
+        out += _md_section("What if", _whatif_lines(whatif, u))
+    out += ["", f"*{SAFETY}*", ""]
+    return "\n".join(out)
+
+
+def _md_section(title: str, lines: list[str]) -> list[str]:
+    if not lines:
+        return []
+    return ["", f"## {title}", ""] + [f"- {_md(line.strip())}" for line in lines]
+
+
+def _load_lines(result: Replay) -> list[str]:
+    load = result.profile.load
+    lines = []
+    if load.material:
+        lines.append(f"material: {load.material}")
+    if load.thickness_text:
+        lines.append(f"thickness: {load.thickness_text}")
+    if load.pieces:
+        lines.append(f"pieces: {load.pieces}")
+    stored = result.run.get("load") or {}
+    for key, value in stored.items():
+        if key not in ("material", "thickness", "thickness_m", "pieces") and value is not None:
+            lines.append(f"{key}: {value}")
+    lines.append("load thermocouple: " + ("logged" if result.trace.has_load else "none"))
+    return lines
+
+
+# ----- HTML -----
+
+_CSS = """
+body { font-family: sans-serif; margin: 2em; color: #222; max-width: 1060px; }
+table { border-collapse: collapse; width: 100%; margin: 1em 0; }
+th, td { border: 1px solid #ccc; padding: 4px 8px; text-align: left; vertical-align: top; }
+th { background: #f0f0f0; }
+.met { color: #1b6e20; font-weight: bold; }
+.remarks { color: #8a5a00; font-weight: bold; }
+.missed { color: #b00020; font-weight: bold; }
+.safety { border: 2px solid #b00020; padding: 0.6em; margin-top: 2em; }
+"""
+
+
+def _verdict_class(verdict: str) -> str:
+    return {MET: "met", MISSED: "missed"}.get(verdict, "remarks")
+
+
+def _ul(lines: list[str]) -> str:
+    if not lines:
+        return "<p>none</p>"
+    return "<ul>" + "".join(f"<li>{escape(line.strip())}</li>" for line in lines) + "</ul>"
+
+
+def render_html(result: Replay, whatif: Mapping[str, Any] | None = None) -> str:
+    from tuikiln.analysis.report_svg import chart_svg
+
+    u = result.units
+    heading = escape(_heading(result))
+    rows = []
+    for s in result.steps:
+        reasons = "<br>".join(escape(r) for r in s.reasons) or "&nbsp;"
+        rows.append(f"<tr><td>{s.index + 1}</td><td>{escape(s.title(u))}</td>"
+                    f'<td class="{_verdict_class(s.verdict)}">{escape(s.verdict)}</td>'
+                    f"<td>{escape('; '.join(step_figures(s, u))) or '&nbsp;'}</td>"
+                    f"<td>{reasons}</td></tr>")
+    parts = [
+        "<!DOCTYPE html>",
+        '<html lang="en">',
+        "<head>",
+        '<meta charset="utf-8">',
+        f"<title>{heading}</title>",
+        f"<style>{_CSS}</style>",
+        "</head>",
+        "<body>",
+        f"<h1>{heading}</h1>",
+        f'<p>Verdict: <span class="{_verdict_class(result.verdict)}">'
+        f"{escape(result.verdict)}</span></p>",
+        _ul(result.reasons) if result.reasons else "",
+        "<h2>Plan and actual</h2>",
+        chart_svg(result),
+        "<h2>Steps</h2>",
+        "<table><thead><tr><th>#</th><th>step</th><th>verdict</th><th>figures</th>"
+        "<th>reasons</th></tr></thead><tbody>",
+        *rows,
+        "</tbody></table>",
+        "<h2>Alarms</h2>",
+        _ul([_alarm_line(a) for a in result.as_dict()["alarms"]]),
+        "<h2>Load</h2>",
+        _ul(_load_lines(result)),
+        "<h2>Notes</h2>",
+        _ul([f"{clock(n['at_s'])} {n['text']}" for n in result.notes]),
+        "<h2>Tempering parameter</h2>",
+        _ul(_temper_lines(result) or ["no temper hold in this profile"]),
+        "<h2>Quench</h2>",
+        _ul((_quench_lines(result) + [QUENCH_CAUTION]) if result.quench
+            else ["no hardening hold in this profile"]),
+    ]
+    if whatif is not None:
+        parts += ["<h2>What if</h2>", _ul(_whatif_lines(whatif, u))]
+    if result.source == "rules":
+        parts.append("<p>Steps found by running the engine's rules over the samples.</p>")
+    parts += [f'<p class="safety"><strong>{escape(SAFETY)}</strong></p>', "</body>", "</html>",
+              ""]
+    return "\n".join(parts)

@@ -1,0 +1,232 @@
+"""Run the live engine's rules again over logged samples: the same code, other thresholds.
+
+    result = rerun_rules(trace, profile, limits, events=logged_events, max_c=kiln_max_c)
+    result.step, result.state     # per sample, as the engine would have logged them
+    result.events                 # what the engine would have said, in the run log's shape
+    compare_alarms(logged_events, result.events)   # what would have fired, what would not
+
+The stepper, the alarm rules and the equalization detector are `tuikiln.engine.rules.RunRules`
+itself, fed one logged sample at a time: nothing is implemented twice. What cannot be
+replayed is the oven's answer to a different setpoint: the readings stay the ones logged.
+
+The person's commands (pause, resume, skip, abort) are applied again at their logged times.
+A pause step is acknowledged at the next logged acknowledgement after it began, or at once
+when the log has none (another tool's log), so a replay never waits for a person.
+"""
+
+from __future__ import annotations
+
+import math
+from collections.abc import Mapping, Sequence
+from dataclasses import dataclass, field
+from typing import Any
+
+import numpy as np
+
+from tuikiln import events as ev
+from tuikiln.engine import states as st
+from tuikiln.engine.rules import RunRules, TickInput
+from tuikiln.limits import Limits
+from tuikiln.profile import Profile
+from tuikiln.units import Units
+
+REPLAYED_COMMANDS = ("pause", "resume", "skip", "abort")
+_DONE_CODE = st.STATE_CODE[st.DONE]
+
+
+@dataclass
+class Rerun:
+    """What the engine's rules decide over a logged trace."""
+
+    step: np.ndarray
+    """Step index per sample (len(profile.steps) once every step is done)."""
+    state: np.ndarray
+    """Step state code per sample (tuikiln.engine.states.STATE_CODE)."""
+    setpoint_c: np.ndarray
+    """The setpoint the rules would have asked for (NaN before the first)."""
+    events: list[dict[str, Any]] = field(default_factory=list)
+    outcome: str | None = None
+    end_reason: str = ""
+    ended_at: float | None = None
+
+
+def _finite_or_none(value: float) -> float | None:
+    return value if math.isfinite(value) else None
+
+
+def _as_dict(event: ev.Event) -> dict[str, Any]:
+    return {"id": None, "time": event.time, "kind": event.kind, "severity": event.severity,
+            "message": event.message, "detail": dict(event.detail)}
+
+
+def _logged_commands(events: Sequence[Mapping[str, Any]], with_skips: bool
+                     ) -> tuple[list[tuple[float, str, str | None]], list[float]]:
+    """(time, name, arg) of the person's commands to apply again, and acknowledgement times."""
+    commands: list[tuple[float, str, str | None]] = []
+    acks: list[float] = []
+    for event in events:
+        detail = event.get("detail") or {}
+        if event["kind"] == ev.OPERATOR_ACKNOWLEDGED:
+            acks.append(float(event["time"]))
+        elif event["kind"] == ev.COMMAND:
+            name = detail.get("name")
+            if name in REPLAYED_COMMANDS and (with_skips or name != "skip"):
+                commands.append((float(event["time"]), str(name), None))
+    commands.sort(key=lambda c: c[0])
+    acks.sort()
+    return commands, acks
+
+
+def rerun_rules(
+    t: np.ndarray,
+    chamber_c: np.ndarray,
+    load_c: np.ndarray,
+    output_pct: np.ndarray,
+    profile: Profile,
+    limits: Limits,
+    *,
+    events: Sequence[Mapping[str, Any]] = (),
+    flags: np.ndarray | None = None,
+    max_c: float | None = None,
+    units: Units | None = None,
+    same_profile: bool = True,
+) -> Rerun:
+    """Feed the samples to a fresh RunRules; `load_c` is the load thermocouple (NaN: none;
+    the rules keep their own core estimate, as in a live run)."""
+    n = t.size
+    step = np.full(n, -1, dtype=np.int64)
+    state = np.zeros(n, dtype=np.int64)
+    setpoints = np.full(n, np.nan)
+    rules = RunRules(profile, limits, max_c=max_c, units=units)
+    commands, acks = _logged_commands(events, with_skips=same_profile)
+    next_command = 0
+    next_ack = 0
+    out: list[dict[str, Any]] = []
+    code = st.STATE_CODE
+    stepper = rules.stepper
+    pause_since: float | None = None
+    no_reading = st.FLAG_NO_READING
+    sensor_fault = st.FLAG_SENSOR_FAULT
+    ended_at: float | None = None
+    for i in range(n):
+        now = float(t[i])
+        while next_command < len(commands) and commands[next_command][0] <= now:
+            _, name, arg = commands[next_command]
+            next_command += 1
+            out.extend(_as_dict(e) for e in rules.command(now, name, arg, "replay").events)
+        if stepper.waiting_for_operator:
+            if pause_since is None:
+                pause_since = now
+                while next_ack < len(acks) and acks[next_ack] < pause_since:
+                    next_ack += 1
+            if next_ack >= len(acks) or acks[next_ack] <= now:
+                next_ack += 1
+                out.extend(_as_dict(e) for e in rules.command(now, "ack", "you", "replay").events)
+        else:
+            pause_since = None
+        chamber = _finite_or_none(float(chamber_c[i]))
+        sample_flags = int(flags[i]) if flags is not None else 0
+        decision = rules.tick(now, TickInput(
+            chamber_c=chamber,
+            load_c=_finite_or_none(float(load_c[i])),
+            output_pct=_finite_or_none(float(output_pct[i])),
+            link_ok=not (sample_flags & no_reading) and (chamber is not None
+                                                        or bool(sample_flags & sensor_fault)),
+            sensor_fault=bool(sample_flags & sensor_fault),
+        ))
+        out.extend(_as_dict(e) for e in decision.events)
+        step[i] = stepper.index
+        state[i] = code.get(stepper.state, _DONE_CODE)
+        if stepper.setpoint_c is not None:
+            setpoints[i] = stepper.setpoint_c
+        if decision.ended:
+            ended_at = now
+            step[i + 1:] = stepper.index
+            state[i + 1:] = _DONE_CODE
+            break
+    return Rerun(step, state, setpoints, out, rules.outcome, rules.end_reason, ended_at)
+
+
+@dataclass(frozen=True)
+class AlarmSpan:
+    code: str
+    severity: str
+    words: str
+    raised_t: float
+    cleared_t: float | None
+
+
+def alarm_spans(events: Sequence[Mapping[str, Any]]) -> list[AlarmSpan]:
+    """Raised alarms with when they cleared (None: still active at the end of the log)."""
+    open_: dict[str, dict[str, Any]] = {}
+    spans: list[AlarmSpan] = []
+    for event in events:
+        detail = event.get("detail") or {}
+        code = detail.get("alarm")
+        if not code:
+            continue
+        if event["kind"] == ev.ALARM_RAISED:
+            open_[code] = dict(event)
+        elif event["kind"] == ev.ALARM_CLEARED and code in open_:
+            raised = open_.pop(code)
+            spans.append(AlarmSpan(code, raised["severity"], _words(raised), raised["time"],
+                                   float(event["time"])))
+    for code, raised in open_.items():
+        spans.append(AlarmSpan(code, raised["severity"], _words(raised), raised["time"], None))
+    spans.sort(key=lambda s: s.raised_t)
+    return spans
+
+
+def _words(event: Mapping[str, Any]) -> str:
+    detail = event.get("detail") or {}
+    return str(detail.get("words") or event.get("message") or "")
+
+
+@dataclass(frozen=True)
+class AlarmChange:
+    """One alarm in the comparison: fired in the log, in the replay, or in both."""
+
+    code: str
+    words: str
+    logged_t: float | None
+    replayed_t: float | None
+
+    @property
+    def change(self) -> str:
+        if self.logged_t is None:
+            return "would fire"
+        if self.replayed_t is None:
+            return "would not fire"
+        return "fires in both"
+
+
+# Alarms raised within this of each other count as the same one fired at about the same time.
+MATCH_WITHIN_S = 600.0
+
+
+def compare_alarms(logged: Sequence[Mapping[str, Any]],
+                   replayed: Sequence[Mapping[str, Any]]) -> list[AlarmChange]:
+    """Pair the alarms raised in the log with those the replay raised, by code and time."""
+    left = alarm_spans(logged)
+    right = alarm_spans(replayed)
+    used: set[int] = set()
+    changes: list[AlarmChange] = []
+    for span in left:
+        best = None
+        for j, other in enumerate(right):
+            if j in used or other.code != span.code:
+                continue
+            gap = abs(other.raised_t - span.raised_t)
+            if gap <= MATCH_WITHIN_S and (best is None or gap < best[0]):
+                best = (gap, j)
+        if best is None:
+            changes.append(AlarmChange(span.code, span.words, span.raised_t, None))
+        else:
+            used.add(best[1])
+            changes.append(AlarmChange(span.code, right[best[1]].words, span.raised_t,
+                                       right[best[1]].raised_t))
+    for j, other in enumerate(right):
+        if j not in used:
+            changes.append(AlarmChange(other.code, other.words, None, other.raised_t))
+    changes.sort(key=lambda c: c.logged_t if c.logged_t is not None else c.replayed_t or 0.0)
+    return changes

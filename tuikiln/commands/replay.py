@@ -1,0 +1,295 @@
+"""`tuikiln replay`, `tuikiln report` and `tuikiln import`: hold a logged run against a profile.
+
+    tuikiln replay RUN [--against PROFILE] [--json] [--band 5 --hold-grace 1m ...]
+    tuikiln report RUN -o FILE.html|FILE.md [--against PROFILE]
+    tuikiln import CSV --against PROFILE [--time-column time --chamber-column chamber ...]
+    tuikiln replay --csv CSV --against PROFILE        (the same as import)
+
+RUN is a run id from `tuikiln runs`, or "last". Threshold options (`--band`, `--overshoot`,
+`--hold-grace`, ... every key of a profile's [limits]) run the engine's rules again over the
+logged samples with those thresholds: what would have fired, and when. A CSV is read whole
+before anything is analysed; nothing is stored in the run log (the engine is its only writer).
+"""
+
+from __future__ import annotations
+
+import argparse
+import json
+import math
+import sys
+from dataclasses import dataclass
+from pathlib import Path
+from typing import Any
+
+from tuikiln.errors import FileProblems, UserError
+from tuikiln.limits import LIMIT_KEYS, LimitKey, Limits
+
+HELP = "hold a logged run (or another tool's CSV log) against its profile, step by step"
+COMMAND_HELPS = {
+    "replay": "hold a logged run against its profile: verdict per step, alarms, what-if",
+    "report": "write a run's report as HTML (chart included) or Markdown (.md)",
+    "import": "replay another tool's CSV temperature log against a profile",
+}
+
+
+def _option(key: LimitKey) -> str:
+    return "--" + key.name.replace("_", "-")
+
+
+def add_arguments(parser: argparse.ArgumentParser) -> None:
+    command = parser.prog.split()[-1]
+    if command == "import":
+        parser.add_argument("csv", metavar="CSV", help="the log file (CSV with a header row)")
+    else:
+        parser.add_argument("run", metavar="RUN", nargs="?",
+                            help='a run id from `tuikiln runs`, or "last" (default)')
+        parser.add_argument("--csv", metavar="FILE", help="replay another tool's CSV log instead")
+    parser.add_argument("--against", metavar="PROFILE",
+                        help="the profile to hold the log against (default: the run's own)")
+    if command == "report":
+        parser.add_argument("-o", "--output", metavar="FILE", required=True,
+                            help="the report file: .html (with a chart) or .md")
+    else:
+        parser.add_argument("--json", dest="json_output", action="store_true",
+                            help="print JSON")
+    csv = parser.add_argument_group("CSV logs")
+    csv.add_argument("--time-column", default="time", metavar="NAME",
+                     help='header of the time column (default "time")')
+    csv.add_argument("--chamber-column", default="chamber", metavar="NAME",
+                     help='header of the chamber temperature column (default "chamber")')
+    csv.add_argument("--load-column", metavar="NAME",
+                     help="header of a load thermocouple column, if there is one")
+    csv.add_argument("--units", type=str.upper, choices=("C", "F"), default="C",
+                     help="the CSV's temperature unit (default C)")
+    csv.add_argument("--time-format", default="seconds", metavar="FORMAT",
+                     help='"seconds", "minutes", "iso" or a strftime format (default seconds)')
+    csv.add_argument("--delimiter", default=",", metavar="CHAR", help="column separator")
+    analysis = parser.add_argument_group("analysis")
+    analysis.add_argument("--c", type=float, default=None, metavar="C",
+                          help="Hollomon-Jaffe constant; it depends on the steel (default 20)")
+    analysis.add_argument("--quench-below", metavar="TEMP", default=None,
+                          help='quench timing: time from the hold to below this (default '
+                               '"65C", hand-warm)')
+    what = parser.add_argument_group(
+        "what if (thresholds in the profile's units; the rules are run again with them)")
+    for key in LIMIT_KEYS:
+        what.add_argument(_option(key), dest=f"limit_{key.name}", metavar="VALUE",
+                          default=None, help=key.help)
+
+
+@dataclass
+class Loaded:
+    """A log and everything needed to replay it."""
+
+    trace: Any
+    profile: Any
+    limits: Limits
+    events: list[dict[str, Any]]
+    outcome: str | None
+    units: str
+    max_c: float | None
+    run: dict[str, Any]
+    rerun: bool | None
+    same_profile: bool
+
+
+def run(args: argparse.Namespace) -> int:
+    from tuikiln.analysis import report as report_mod
+    from tuikiln.analysis.replay import replay_run
+
+    loaded = _load(args)
+    overrides = _limit_overrides(args, loaded.profile.units)
+    c, below_c = _analysis_options(args)
+    kwargs = dict(events=loaded.events, outcome=loaded.outcome, units=loaded.units,
+                  max_c=loaded.max_c, same_profile=loaded.same_profile, c=c,
+                  quench_below_c=below_c, run=loaded.run)
+    whatif: dict[str, Any] | None = None
+    if overrides:
+        from tuikiln.analysis.whatif import compare_alarms
+
+        baseline = replay_run(loaded.trace, loaded.profile, loaded.limits, rerun=True,
+                              **kwargs)  # type: ignore[arg-type]
+        changed = loaded.limits.merged(overrides)
+        result = replay_run(loaded.trace, loaded.profile, changed, rerun=True,
+                            **kwargs)  # type: ignore[arg-type]
+        changes = compare_alarms(baseline.events, result.events)
+        whatif = report_mod.whatif_dict(baseline, result, changes, overrides)
+    else:
+        result = replay_run(loaded.trace, loaded.profile, loaded.limits, rerun=loaded.rerun,
+                            **kwargs)  # type: ignore[arg-type]
+    if args.command == "report":
+        path = Path(args.output)
+        markdown = path.suffix.lower() in (".md", ".markdown")
+        text = (report_mod.render_markdown(result, whatif) if markdown
+                else report_mod.render_html(result, whatif))
+        try:
+            path.write_text(text, encoding="utf-8")
+        except OSError as exc:
+            raise UserError(f"{path}: cannot write the report: {exc.strerror or exc}") from None
+        print(f"Report written to {path} ({result.verdict})")
+        return 0
+    if getattr(args, "json_output", False):
+        out = result.as_dict()
+        if whatif is not None:
+            out["whatif"] = whatif
+        print(json.dumps(out, indent=2, ensure_ascii=False))
+    else:
+        sys.stdout.write(report_mod.render_text(result, whatif))
+    return 0
+
+
+# ----- options -----
+
+
+def _limit_overrides(args: argparse.Namespace, units: str) -> dict[str, float]:
+    from tuikiln.limits import parse_limits
+
+    table: dict[str, Any] = {}
+    for key in LIMIT_KEYS:
+        raw = getattr(args, f"limit_{key.name}", None)
+        if raw is None:
+            continue
+        if key.kind == "duration":
+            table[key.name] = raw
+        else:
+            try:
+                table[key.name] = float(raw)
+            except ValueError:
+                raise UserError(f'{_option(key)} {raw}: needs a number, such as 10') from None
+    problems: list[str] = []
+
+    def report(path: tuple, message: str) -> None:
+        name = str(path[-1]) if path else ""
+        problems.append(f"--{name.replace('_', '-')}: {message}")
+
+    values = parse_limits(table, units, report, ("options",))  # type: ignore[arg-type]
+    if problems:
+        raise UserError("\n".join(problems))
+    return values
+
+
+def _analysis_options(args: argparse.Namespace) -> tuple[float, float]:
+    from tuikiln.analysis.replay import DEFAULT_QUENCH_BELOW_C
+    from tuikiln.analysis.temper import DEFAULT_C
+    from tuikiln.units import parse_temperature
+
+    c = DEFAULT_C if args.c is None else float(args.c)
+    if not math.isfinite(c) or c <= 0:
+        raise UserError(f"--c {args.c:g}: C must be a number above zero (about 10 to 20)")
+    below = DEFAULT_QUENCH_BELOW_C
+    if args.quench_below is not None:
+        try:
+            below = parse_temperature(args.quench_below, None)
+        except ValueError as exc:
+            raise UserError(f'--quench-below: {exc} (write it with its unit, such as "150F")'
+                            ) from None
+    return c, below
+
+
+# ----- loading -----
+
+
+def _load(args: argparse.Namespace) -> Loaded:
+    csv_path = args.csv if args.command == "import" else getattr(args, "csv", None)
+    if csv_path is not None:
+        if getattr(args, "run", None):
+            raise UserError("give either a RUN or --csv FILE, not both")
+        return _load_csv(args, csv_path)
+    return _load_run(args)
+
+
+def _against(args: argparse.Namespace) -> Any:
+    from tuikiln.profile import load_profile
+
+    return load_profile(args.against)
+
+
+def _load_csv(args: argparse.Namespace, path: str) -> Loaded:
+    from tuikiln.analysis.csvlog import CsvLayout, read_csv_log
+    from tuikiln.analysis.replay import Trace
+    from tuikiln.kiln import load_kiln
+
+    if not args.against:
+        raise UserError("a CSV log needs --against PROFILE: the profile to hold it against")
+    try:
+        layout = CsvLayout(time_column=args.time_column, chamber_column=args.chamber_column,
+                           load_column=args.load_column, units=args.units,
+                           time_format=args.time_format, delimiter=args.delimiter)
+    except ValueError as exc:
+        raise UserError(str(exc)) from None
+    profile = _against(args)
+    log = read_csv_log(path, layout)  # all or nothing: FileProblems lists the bad lines
+    if log.time_s.size < 2:
+        raise UserError(f"{path}: the log has fewer than two rows of readings")
+    samples = {"t": log.time_s, "chamber_c": log.chamber_c}
+    if log.load_c is not None:
+        samples["load_c"] = log.load_c
+    kiln = load_kiln(args.kiln) if args.kiln else None
+    limits = Limits().merged(kiln.alarms if kiln else {}).merged(profile.limits)
+    return Loaded(Trace.from_samples(samples, float(log.time_s[0])), profile, limits, [],
+                  None, profile.units, kiln.max_c if kiln else None,
+                  {"csv": str(path), "profile": profile.name}, True, True)
+
+
+def _load_run(args: argparse.Namespace) -> Loaded:
+    from tuikiln.analysis.replay import Trace
+    from tuikiln.kiln import Kiln, parse_kiln
+    from tuikiln.profile import parse_profile
+    from tuikiln.runlog import RUNLOG_NAME, RunLog, default_data_dir
+
+    folder = default_data_dir(args.data)
+    path = folder / RUNLOG_NAME
+    if not path.exists():
+        raise UserError(f"no run log in {folder}: no run has been recorded there yet "
+                        "(or give --data DIR)")
+    log = RunLog(path)
+    try:
+        info = _find_run(log, args.run)
+        if args.against:
+            profile = _against(args)
+        else:
+            if not info.profile_text:
+                raise UserError(f"run {info.id} has no stored profile: give --against PROFILE")
+            try:
+                profile = parse_profile(info.profile_text, f"run {info.id}'s profile "
+                                        f"({info.profile_path or info.profile})")
+            except FileProblems as exc:
+                raise UserError(f"run {info.id}'s stored profile no longer checks:\n{exc}"
+                                ) from None
+        kiln = Kiln()
+        if info.kiln_text:
+            try:
+                kiln = parse_kiln(info.kiln_text, f"run {info.id}'s kiln file")
+            except FileProblems:
+                kiln = Kiln()  # a kiln file that no longer checks: default thresholds
+        limits = Limits().merged(kiln.alarms).merged(profile.limits)
+        samples = log.samples(info.id)
+        events = log.events(info.id)
+    finally:
+        log.close()
+    if samples["t"].size < 2:
+        raise UserError(f"run {info.id} has fewer than two samples: nothing to replay")
+    trace = Trace.from_samples(samples, info.started)
+    run_dict = info.summary()
+    run_dict["load"] = dict(info.load) if info.load else None
+    return Loaded(trace, profile, limits, events, info.status, info.units, kiln.max_c,
+                  run_dict, True if args.against else None, not args.against)
+
+
+def _find_run(log: Any, which: str | None) -> Any:
+    if which in (None, "", "last", "latest"):
+        info = log.latest_run()
+        if info is None:
+            raise UserError("the run log has no runs yet")
+        return info
+    try:
+        run_id = int(str(which))
+    except ValueError:
+        raise UserError(f'RUN must be a run id from `tuikiln runs` or "last", not "{which}"'
+                        ) from None
+    info = log.run(run_id)
+    if info is None:
+        known = [r.id for r in log.runs()]
+        hint = f" (runs: {known[0]}..{known[-1]})" if known else " (the log has no runs yet)"
+        raise UserError(f"there is no run {run_id}{hint}")
+    return info

@@ -1,0 +1,103 @@
+"""`tuikiln runs [--json]` lists the logged runs; `tuikiln export RUN --csv [-o FILE]` writes
+a run's samples as CSV (temperatures in °C, time in seconds from the run's start)."""
+
+from __future__ import annotations
+
+import argparse
+import csv
+import json
+import math
+import sys
+import time
+from typing import Any
+
+from tuikiln.errors import UserError
+
+HELP = "list logged runs, or export one"
+
+CSV_COLUMNS = ("t_s", "chamber_c", "load_c", "core_c", "setpoint_c", "output_pct", "step",
+               "state", "flags")
+
+
+def add_arguments(parser: argparse.ArgumentParser) -> None:
+    name = parser.prog.split()[-1]
+    if name == "export":
+        parser.add_argument("run_id", metavar="RUN", help='the run number (see `tuikiln runs`)'
+                            ' or "last"')
+        parser.add_argument("--csv", action="store_true", help="write CSV (the default)")
+        parser.add_argument("-o", "--output", metavar="FILE", default=None,
+                            help="write to FILE instead of the standard output")
+    else:
+        parser.add_argument("--json", action="store_true", help="print the list as JSON")
+
+
+def _open_log(args: argparse.Namespace) -> Any:
+    from tuikiln.runlog import RUNLOG_NAME, RunLog, default_data_dir
+
+    path = default_data_dir(args.data) / RUNLOG_NAME
+    if not path.exists():
+        raise UserError(f"no runs logged yet (no {path})")
+    return RunLog(path)
+
+
+def run(args: argparse.Namespace) -> int:
+    log = _open_log(args)
+    try:
+        if args.command == "export":
+            return _export(args, log)
+        return _list(args, log)
+    finally:
+        log.close()
+
+
+def _when(t: float | None) -> str:
+    return "--" if t is None else time.strftime("%Y-%m-%d %H:%M", time.localtime(t))
+
+
+def _list(args: argparse.Namespace, log: Any) -> int:
+    runs = log.runs()
+    if args.json:
+        print(json.dumps([r.summary() for r in runs], indent=2))
+        return 0
+    if not runs:
+        print("no runs logged yet")
+        return 0
+    print(f"{'id':>4}  {'started':16}  {'ended':16}  {'outcome':16}  profile")
+    for r in runs:
+        print(f"{r.id:>4}  {_when(r.started):16}  {_when(r.ended):16}  {r.status:16}  "
+              f"{r.profile}")
+    return 0
+
+
+def _export(args: argparse.Namespace, log: Any) -> int:
+    from tuikiln.engine.states import STEP_STATES
+
+    if args.run_id == "last":
+        info = log.latest_run()
+    else:
+        try:
+            info = log.run(int(args.run_id))
+        except ValueError:
+            raise UserError(f'RUN must be a run number or "last", not "{args.run_id}"') from None
+    if info is None:
+        raise UserError(f"no run {args.run_id} in the log (see `tuikiln runs`)")
+    samples = log.samples(info.id)
+    out = open(args.output, "w", newline="") if args.output else sys.stdout  # noqa: SIM115
+    try:
+        writer = csv.writer(out)
+        writer.writerow(CSV_COLUMNS)
+        t = samples["t"] - info.started
+        columns = [samples[c] for c in ("chamber_c", "load_c", "core_c", "setpoint_c",
+                                         "output_pct")]
+        for i in range(len(t)):
+            row: list[Any] = [f"{t[i]:.1f}"]
+            row += ["" if math.isnan(c[i]) else f"{c[i]:.2f}" for c in columns]
+            state = int(samples["state"][i])
+            row += [int(samples["step"][i]),
+                    STEP_STATES[state] if 0 <= state < len(STEP_STATES) else "",
+                    int(samples["flags"][i])]
+            writer.writerow(row)
+    finally:
+        if args.output:
+            out.close()
+    return 0

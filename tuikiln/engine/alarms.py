@@ -1,0 +1,414 @@
+"""Alarm rules (pure): what counts as wrong, when it is raised, and when it clears.
+
+Each alarm has a code of our own (stable: stored in logs, sent over MQTT), a severity and
+plain words. `AlarmRules.evaluate(obs)` looks at one tick and returns the events for every
+change: raised, cleared. `acknowledge` marks alarms seen. An alarm clears when its cause
+goes, acknowledged or not; if the cause comes back it is raised anew.
+
+Critical alarms (heat-stuck-on, sensor-bad, over-kiln-max, no-link-too-long) make the run
+drive the device safe and end (see rules.py). Thresholds come from tuikiln.limits.Limits;
+the few fixed numbers below are debounce counts and noise margins, chosen so a clean run
+with realistic noise (0.3 °C) raises nothing (tests/test_engine_sim.py runs ten seeds).
+"""
+
+from __future__ import annotations
+
+from collections import deque
+from dataclasses import dataclass, field
+from typing import Any
+
+from tuikiln import events as ev
+from tuikiln.engine import states as st
+from tuikiln.events import Event
+from tuikiln.limits import Limits
+from tuikiln.units import Units, delta_from_c, format_duration, format_temp, symbol
+
+WARNING = "warning"
+CRITICAL = "critical"
+
+# code -> (severity, short name for people)
+ALARMS: dict[str, tuple[str, str]] = {
+    "too-hot": (WARNING, "too hot"),
+    "hold-slipped": (WARNING, "hold out of band"),
+    "never-reached": (WARNING, "hold never reached"),
+    "lagging": (WARNING, "falling behind the ramp"),
+    "no-rise": (WARNING, "not heating"),
+    "heat-stuck-on": (CRITICAL, "heat stuck on"),
+    "sensor-bad": (CRITICAL, "thermocouple fault"),
+    "no-link": (WARNING, "no answer from the controller"),
+    "no-link-too-long": (CRITICAL, "controller silent too long"),
+    "over-kiln-max": (CRITICAL, "over the kiln's maximum"),
+    "paused-too-long": (WARNING, "paused too long"),
+    "log-trouble": (WARNING, "cannot write the run log"),
+}
+CRITICAL_CODES = frozenset(code for code, (sev, _) in ALARMS.items() if sev == CRITICAL)
+
+BAD_READINGS_TO_ALARM = 3      # consecutive impossible / faulty readings before sensor-bad
+GOOD_READINGS_TO_CLEAR = 5
+HOT_READINGS_TO_ALARM = 3      # consecutive readings over a threshold (noise spikes ignored)
+IMPOSSIBLE_LOW_C = -50.0       # no oven reads this: a thermocouple wired backwards or broken
+IMPOSSIBLE_HIGH_C = 1900.0     # above type K/N range (NIST ITS-90 tables end at 1372/1300 °C)
+JUMP_C = 50.0                  # between two readings a few seconds apart: not a real oven
+JUMPS_TO_ALARM = 3
+JUMP_WINDOW_S = 120.0
+FROZEN_S = 1200.0              # the very same reading this long while heating hard
+STUCK_OUTPUT_PCT = 1.0         # output at or below this counts as "off"
+STUCK_OFF_FOR_S = 180.0        # output off this long (element and lining lag) ...
+STUCK_RISE_WINDOW_S = 120.0    # ... and the temperature rose over the last this long ...
+STUCK_RISE_C = 5.0             # ... by at least this much: heat with no output
+FULL_OUTPUT_PCT = 90.0
+NO_RISE_C = 2.0                # less rise than this over stall_for at full output: no heat
+HISTORY_EVERY_S = 10.0
+SLOW_EVERY_S = 5.0
+
+
+@dataclass
+class Alarm:
+    code: str
+    severity: str
+    words: str
+    since: float
+    acknowledged: bool = False
+
+    def as_dict(self) -> dict[str, Any]:
+        return {"code": self.code, "severity": self.severity, "words": self.words,
+                "acknowledged": self.acknowledged, "since": self.since}
+
+
+@dataclass
+class Observation:
+    """What the alarm rules see in one tick."""
+
+    now: float
+    link_ok: bool = True
+    """The device answered this tick (a sensor-fault answer is still an answer)."""
+    chamber_c: float | None = None
+    sensor_fault: bool = False
+    output_pct: float | None = None
+    setpoint_c: float | None = None
+    """The setpoint the run wants now (the plan's, in a watch-only run)."""
+    target_c: float | None = None
+    step_kind: str | None = None
+    step_state: str = st.STARTING
+    state_since: float | None = None
+    step_started_at: float | None = None
+    rated_ramp: bool = False
+    """The step is a ramp with a rate (the lagging check applies)."""
+    heat_off: bool = False
+    paused_since: float | None = None
+
+
+@dataclass
+class AlarmRules:
+    limits: Limits
+    max_c: float | None = None
+    units: Units = "C"
+    active: dict[str, Alarm] = field(default_factory=dict)
+    _bad_count: int = 0
+    _good_count: int = 0
+    _hot_count: int = 0
+    _max_count: int = 0
+    _last_ok: float | None = None
+    _last_temp: tuple[float, float] | None = None
+    _jumps: deque[float] = field(default_factory=deque)
+    _frozen_since: float | None = None
+    _frozen_value: float | None = None
+    _lag_since: float | None = None
+    _demand_since: float | None = None
+    _off_since: float | None = None
+    _history: deque[tuple[float, float]] = field(default_factory=deque)
+    _slow_at: float = -1e300
+    _pending: list[Event] = field(default_factory=list)
+
+    # ----- public -----
+
+    def evaluate(self, obs: Observation) -> list[Event]:
+        now = obs.now
+        if self._last_ok is None:
+            self._last_ok = now
+        temp = self._usable_temp(obs)
+        if temp is not None:
+            self._remember(now, temp)
+        self._check_link(obs)
+        self._check_sensor(obs, temp)
+        # The slow checks judge minutes of history: every SLOW_EVERY_S is plenty, and it
+        # halves the cost of a tick in simulated runs going 10,000 times faster than life.
+        slow = now - self._slow_at >= SLOW_EVERY_S or now < self._slow_at
+        if slow:
+            self._slow_at = now
+        if temp is not None:
+            self._check_max(obs, temp)
+            self._check_too_hot(obs, temp)
+            if slow:
+                self._check_lagging(obs, temp)
+                self._check_no_rise(obs, temp)
+                self._check_stuck_on(obs, temp)
+        if slow:
+            self._check_hold(obs)
+            self._check_paused(obs)
+        out, self._pending = self._pending, []
+        return out
+
+    def set_condition(self, code: str, active: bool, now: float, words: str = "") -> list[Event]:
+        """Raise or clear an alarm whose cause the rules cannot see (e.g. log-trouble)."""
+        self._set(code, active, now, words)
+        out, self._pending = self._pending, []
+        return out
+
+    def acknowledge(self, now: float, code: str | None = None) -> list[Event]:
+        """Mark one alarm (or every active one) as seen; returns the events."""
+        out: list[Event] = []
+        for alarm in list(self.active.values()):
+            if (code is None or alarm.code == code) and not alarm.acknowledged:
+                alarm.acknowledged = True
+                out.append(Event(now, ev.ALARM_ACKNOWLEDGED, f"Acknowledged: {alarm.words}",
+                                 "info", {"alarm": alarm.code, "severity": alarm.severity}))
+        return out
+
+    def critical(self) -> Alarm | None:
+        for alarm in self.active.values():
+            if alarm.severity == CRITICAL:
+                return alarm
+        return None
+
+    def as_list(self) -> list[dict[str, Any]]:
+        return [a.as_dict() for a in self.active.values()]
+
+    # ----- raising and clearing -----
+
+    def _set(self, code: str, on: bool, now: float, words: str = "") -> None:
+        if not on and code not in self.active:
+            return  # the common case, every tick: nothing to clear
+        alarm = self.active.get(code)
+        if on and alarm is None:
+            severity, _ = ALARMS[code]
+            self.active[code] = Alarm(code, severity, words, now)
+            prefix = "ALARM" if severity == CRITICAL else "Warning"
+            self._pending.append(Event(now, ev.ALARM_RAISED, f"{prefix}: {words}", severity,
+                                       {"alarm": code, "severity": severity, "words": words}))
+        elif on and alarm is not None and words:
+            alarm.words = words
+        elif not on and alarm is not None:
+            del self.active[code]
+            _, name = ALARMS[code]
+            self._pending.append(Event(now, ev.ALARM_CLEARED, f"Cleared: {name}", "info",
+                                       {"alarm": code, "severity": alarm.severity,
+                                        "acknowledged": alarm.acknowledged}))
+
+    def _t(self, celsius: float | None) -> str:
+        return format_temp(celsius, self.units)
+
+    def _d(self, kelvin: float) -> str:
+        return f"{delta_from_c(kelvin, self.units):.0f} {symbol(self.units)}"
+
+    # ----- the checks -----
+
+    def _usable_temp(self, obs: Observation) -> float | None:
+        t = obs.chamber_c
+        if not obs.link_ok or obs.sensor_fault or t is None:
+            return None
+        if not (IMPOSSIBLE_LOW_C <= t <= IMPOSSIBLE_HIGH_C):
+            return None
+        return t
+
+    def _remember(self, now: float, temp: float) -> None:
+        hist = self._history
+        if not hist or now - hist[-1][0] >= HISTORY_EVERY_S:
+            hist.append((now, temp))
+            keep = max(self.limits.stall_for, STUCK_RISE_WINDOW_S, self.limits.behind_for) + 60
+            while hist and now - hist[0][0] > keep:
+                hist.popleft()
+
+    def _temp_ago(self, now: float, seconds: float) -> float | None:
+        """The remembered temperature about `seconds` ago (None if not that much history)."""
+        hist = self._history
+        if not hist or now - hist[0][0] < seconds - HISTORY_EVERY_S:
+            return None
+        # Entries are about HISTORY_EVERY_S apart: guess the index, then step to the right one.
+        i = max(0, len(hist) - 1 - int(seconds / HISTORY_EVERY_S))
+        while i > 0 and now - hist[i][0] < seconds - HISTORY_EVERY_S * 0.5:
+            i -= 1
+        return hist[i][1]
+
+    def _check_link(self, obs: Observation) -> None:
+        now = obs.now
+        if obs.link_ok:
+            self._last_ok = now
+            self._set("no-link", False, now)
+            self._set("no-link-too-long", False, now)
+            return
+        assert self._last_ok is not None
+        silent = now - self._last_ok
+        if silent >= self.limits.link_lost:
+            self._set("no-link", True, now, f"No answer from the controller for "
+                      f"{format_duration(silent)}: check the cable and its power")
+        if silent >= self.limits.link_lost_safe:
+            self._set("no-link-too-long", True, now, f"The controller has been silent for "
+                      f"{format_duration(silent)}: the run stops and the heat is turned off "
+                      "where the controller can still hear it")
+
+    def _check_sensor(self, obs: Observation, temp: float | None) -> None:
+        now = obs.now
+        if not obs.link_ok:
+            return
+        why = ""
+        if obs.sensor_fault:
+            why = "the controller reports the thermocouple open or out of range"
+        elif obs.chamber_c is None:
+            why = "the controller gives no temperature"
+        elif temp is None:
+            why = f"the reading {self._t(obs.chamber_c)} is impossible"
+        if why:
+            self._bad_count += 1
+            self._good_count = 0
+            if self._bad_count >= BAD_READINGS_TO_ALARM:
+                self._set("sensor-bad", True, now, f"Thermocouple fault: {why}")
+            self._last_temp = None
+            return
+        assert temp is not None
+        self._bad_count = 0
+        self._good_count += 1
+        last = self._last_temp
+        self._last_temp = (now, temp)
+        if last is not None and now - last[0] <= 10.0 and abs(temp - last[1]) > JUMP_C:
+            self._jumps.append(now)
+        while self._jumps and now - self._jumps[0] > JUMP_WINDOW_S:
+            self._jumps.popleft()
+        frozen = self._frozen(obs, temp)
+        if len(self._jumps) >= JUMPS_TO_ALARM:
+            self._set("sensor-bad", True, now, "Thermocouple fault: the reading jumps by more "
+                      f"than {self._d(JUMP_C)} from one second to the next")
+        elif frozen:
+            self._set("sensor-bad", True, now, f"Thermocouple fault: the reading has stayed at "
+                      f"exactly {self._t(temp)} for {format_duration(FROZEN_S)} while heating")
+        elif self._good_count >= GOOD_READINGS_TO_CLEAR and not self._jumps:
+            self._set("sensor-bad", False, now)
+
+    def _frozen(self, obs: Observation, temp: float) -> bool:
+        heating = obs.output_pct is not None and obs.output_pct >= 50.0
+        if not heating or temp != self._frozen_value:
+            self._frozen_value = temp
+            self._frozen_since = obs.now
+            return False
+        return self._frozen_since is not None and obs.now - self._frozen_since >= FROZEN_S
+
+    def _check_max(self, obs: Observation, temp: float) -> None:
+        if self.max_c is None:
+            return
+        if temp > self.max_c:
+            self._max_count += 1
+            if self._max_count >= HOT_READINGS_TO_ALARM:
+                self._set("over-kiln-max", True, obs.now, f"{self._t(temp)} is over the kiln's "
+                          f"maximum of {self._t(self.max_c)}")
+        else:
+            self._max_count = 0
+            if temp < self.max_c - 5.0:
+                self._set("over-kiln-max", False, obs.now)
+
+    def _check_too_hot(self, obs: Observation, temp: float) -> None:
+        target = obs.target_c
+        applies = target is not None and obs.step_kind in ("ramp", "hold", "pause")
+        limit = (target or 0.0) + self.limits.overshoot
+        if applies and temp > limit:
+            self._hot_count += 1
+            if self._hot_count >= HOT_READINGS_TO_ALARM:
+                self._set("too-hot", True, obs.now, f"Too hot: {self._t(temp)} is "
+                          f"{self._d(temp - (target or 0.0))} above the target {self._t(target)}")
+        else:
+            self._hot_count = 0
+            if not applies or temp < limit - 2.0:
+                self._set("too-hot", False, obs.now)
+
+    def _check_lagging(self, obs: Observation, temp: float) -> None:
+        now = obs.now
+        planned = obs.setpoint_c
+        lagging = (obs.rated_ramp and obs.paused_since is None and planned is not None
+                   and obs.step_state in (st.HEATING, st.REACHING))
+        gap = (planned - temp) if lagging and planned is not None else 0.0
+        if lagging and gap > self.limits.behind:
+            if self._lag_since is None:
+                self._lag_since = now
+            if now - self._lag_since >= self.limits.behind_for:
+                self._set("lagging", True, now, f"Falling behind the ramp: {self._t(temp)} is "
+                          f"{self._d(gap)} below the planned {self._t(planned)} — a heater "
+                          "failing, the door open, or a ramp too fast for this oven")
+        else:
+            self._lag_since = None
+            if not lagging or gap < self.limits.behind * 0.75:
+                self._set("lagging", False, now)
+
+    def _check_no_rise(self, obs: Observation, temp: float) -> None:
+        now = obs.now
+        if obs.output_pct is not None:
+            demand = obs.output_pct >= FULL_OUTPUT_PCT
+        else:
+            demand = obs.setpoint_c is not None and obs.setpoint_c - temp >= self.limits.behind
+        demand = demand and not obs.heat_off and obs.paused_since is None
+        if not demand:
+            self._demand_since = None
+            self._set("no-rise", False, now)
+            return
+        if self._demand_since is None:
+            self._demand_since = now
+        if now - self._demand_since < self.limits.stall_for:
+            return
+        before = self._temp_ago(now, self.limits.stall_for)
+        if before is None:
+            return
+        rise = temp - before
+        if rise < NO_RISE_C:
+            self._set("no-rise", True, now, f"Not heating: the heater is asked for full power "
+                      f"but the temperature has not risen in "
+                      f"{format_duration(self.limits.stall_for)} ({self._t(temp)}) — a heater "
+                      "or its fuse failing, or the door open")
+        elif rise > NO_RISE_C * 2:
+            self._set("no-rise", False, now)
+
+    def _check_stuck_on(self, obs: Observation, temp: float) -> None:
+        now = obs.now
+        out = obs.output_pct
+        if out is not None and out <= STUCK_OUTPUT_PCT:
+            if self._off_since is None:
+                self._off_since = now
+        else:
+            self._off_since = None
+        before = self._temp_ago(now, STUCK_RISE_WINDOW_S)
+        rise = None if before is None else temp - before
+        rising_off = (self._off_since is not None and now - self._off_since >= STUCK_OFF_FOR_S
+                      and rise is not None and rise >= STUCK_RISE_C)
+        sp = obs.setpoint_c
+        far_above = (sp is not None and temp > sp + self.limits.runaway
+                     and rise is not None and rise >= NO_RISE_C)
+        if rising_off or far_above:
+            how = ("while the heater output is off" if rising_off else
+                   f"{self._d(temp - (sp or 0.0))} above the setpoint")
+            self._set("heat-stuck-on", True, now, f"Heat stuck on: {self._t(temp)} and rising "
+                      f"{how} — a relay or contactor stuck closed")
+        elif rise is not None and rise < NO_RISE_C and not far_above:
+            self._set("heat-stuck-on", False, now)
+
+    def _check_hold(self, obs: Observation) -> None:
+        now = obs.now
+        in_hold = obs.step_kind == "hold"
+        slipped = in_hold and obs.step_state == st.SLIPPED and obs.state_since is not None
+        if slipped and now - (obs.state_since or now) >= self.limits.hold_grace:
+            self._set("hold-slipped", True, now, f"The hold at {self._t(obs.target_c)} has been "
+                      f"out of its band for {format_duration(now - (obs.state_since or now))}: "
+                      "its clock is stopped")
+        elif not slipped:
+            self._set("hold-slipped", False, now)
+        waiting = (in_hold and obs.step_state == st.REACHING and obs.step_started_at is not None
+                   and obs.paused_since is None)
+        if waiting and now - (obs.step_started_at or now) >= self.limits.reach_within:
+            self._set("never-reached", True, now, f"The hold at {self._t(obs.target_c)} has not "
+                      f"been reached in {format_duration(self.limits.reach_within)}")
+        elif not waiting:
+            self._set("never-reached", False, now)
+
+    def _check_paused(self, obs: Observation) -> None:
+        since = obs.paused_since
+        if since is not None and obs.now - since >= self.limits.pause_too_long:
+            self._set("paused-too-long", True, obs.now, f"The run has been paused for "
+                      f"{format_duration(obs.now - since)}: resume it or abort it")
+        elif since is None:
+            self._set("paused-too-long", False, obs.now)

@@ -1,0 +1,120 @@
+"""The status object: what `tuikiln status --json` prints, the MQTT `state` payload and what
+the live screen shows. Keep these keys (other programs read them):
+
+    run, kiln, profile, units, state, step, step_count, step_kind, step_state, step_words,
+    chamber_c, load_c, core_c, setpoint_c, target_c, output_pct, equalization,
+    time_to_next_step_s, time_to_operator_s, time_to_end_s, alarms, time, started, watch_only
+
+Temperatures are °C (None when unknown); `units` says how to show them.
+"""
+
+from __future__ import annotations
+
+from dataclasses import dataclass
+from typing import Any
+
+from tuikiln.engine.rules import RunRules
+from tuikiln.plan import step_duration_s
+from tuikiln.profile import Cool, Pause, Ramp
+
+STATUS_KEYS = (
+    "run", "kiln", "profile", "units", "state", "step", "step_count", "step_kind",
+    "step_state", "step_words", "chamber_c", "load_c", "core_c", "setpoint_c", "target_c",
+    "output_pct", "equalization", "time_to_next_step_s", "time_to_operator_s",
+    "time_to_end_s", "alarms", "time", "started", "watch_only",
+)
+
+
+@dataclass
+class LastReading:
+    chamber_c: float | None = None
+    load_c: float | None = None
+    core_c: float | None = None
+    output_pct: float | None = None
+
+
+def _round(value: float | None, digits: int = 2) -> float | None:
+    return None if value is None else round(float(value), digits)
+
+
+def _equalization(eq: Any) -> dict[str, Any] | None:
+    if eq is None:
+        return None
+    return {
+        "state": getattr(eq, "state", None),
+        "words": getattr(eq, "words", ""),
+        "slope_c_per_min": _round(getattr(eq, "slope_c_per_min", None), 3),
+        "eta_s": _round(getattr(eq, "eta_s", None), 0),
+        "eta_sigma_s": _round(getattr(eq, "eta_sigma_s", None), 0),
+        "rule_of_thumb_s": _round(getattr(eq, "rule_of_thumb_s", None), 0),
+    }
+
+
+def remaining_plan_s(rules: RunRules) -> tuple[float | None, float | None, float | None]:
+    """(time to the next step, to the next time the person is needed, to the end).
+
+    Later steps count at their planned length (open-ended ones at their known minimum, as in
+    tuikiln.plan); None where the current step's end cannot be told.
+    """
+    s = rules.stepper
+    if s.ended:
+        return 0.0, None, 0.0
+    left = s.step_time_left_s()
+    if s.waiting_for_operator:
+        return left, 0.0, None
+    steps = s.steps
+    temp = s.target_c if s.target_c is not None else (s.last_temp_c or 20.0)
+    to_end = left
+    to_operator: float | None = None
+    total_after = 0.0
+    for step in steps[s.index + 1:]:
+        if isinstance(step, Pause) and to_operator is None:
+            to_operator = None if left is None else left + total_after
+        duration, _ = step_duration_s(step, temp)
+        total_after += duration
+        if isinstance(step, Ramp | Cool):
+            temp = step.to_c
+    if to_end is not None:
+        to_end += total_after
+    return left, to_operator, to_end
+
+
+def build_status(
+    rules: RunRules,
+    *,
+    run_id: int | None,
+    kiln: str,
+    now: float,
+    started: float,
+    last: LastReading,
+    watch_only: bool,
+) -> dict[str, Any]:
+    s = rules.stepper
+    step = s.step
+    to_next, to_operator, to_end = remaining_plan_s(rules)
+    return {
+        "run": run_id,
+        "kiln": kiln,
+        "profile": rules.profile.name,
+        "units": rules.units,
+        "state": rules.run_state,
+        "step": min(s.index, len(s.steps) - 1) if s.steps else 0,
+        "step_count": len(s.steps),
+        "step_kind": None if step is None else step.kind,
+        "step_state": s.state,
+        "step_words": s.words(),
+        "chamber_c": _round(last.chamber_c),
+        "load_c": _round(last.load_c),
+        "core_c": _round(last.core_c),
+        "setpoint_c": _round(s.setpoint_c),
+        "target_c": _round(s.target_c),
+        "output_pct": _round(last.output_pct, 1),
+        "equalization": _equalization(s.equalize) if s.state == "evening" else None,
+        "time_to_next_step_s": _round(to_next, 0),
+        "time_to_operator_s": _round(to_operator, 0),
+        "time_to_end_s": _round(to_end, 0),
+        "alarms": rules.alarms.as_list(),
+        "time": now,
+        "started": started,
+        "watch_only": watch_only,
+    }

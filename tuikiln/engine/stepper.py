@@ -1,0 +1,472 @@
+"""Following a profile step by step: which setpoint now, and in which state (pure rules).
+
+`Stepper.tick(now, chamber_c, load_c)` is called once per reading; it moves the setpoint,
+runs the hold clock and moves to the next step. No clock is read and nothing is written
+here, so a replay of a logged run can drive the same code.
+
+The rules, as chosen for tuikiln (DEVELOPERS.md repeats them):
+
+- A rated ramp starts its setpoint from where the temperature is at the step's start (or from
+  the setpoint the previous step left, if that is higher and still below the target, so the
+  setpoint never jumps back down), moves it at the rate, and ends when the setpoint reaches
+  the target. When the next step is a hold, the hold waits for the band; otherwise (a pause,
+  another ramp, the end) the ramp waits in REACHING until the temperature is in the band, so
+  a quench pause never fires while the oven is still cold.
+- A `max` ramp sets the target at once and ends when the temperature enters the band.
+- A hold keeps the previous target. Its clock starts when the temperature is in the band
+  (`reached`) or when the load has evened out (`equalized`); while out of band its clock
+  stops and the time out of band is counted.
+- A rated cool lowers the setpoint at the rate and ends when the setpoint is at the target
+  and the temperature is within the band above it.
+- A `free` cool sets the setpoint to FREE_COOL_SETPOINT_C (the controller's output drops to
+  nothing; a setpoint at the target would let the temperature creep towards it for ever) and
+  ends when the temperature is at or below the target. Before a hold it sets the target
+  instead (the controller then catches the temperature at the hold's level rather than
+  letting it sink through the band) and ends once within the band above the target.
+- A pause keeps the last setpoint, alerts the person and repeats the alert every
+  `pause_remind` until acknowledged.
+- While the run is paused by the person, the setpoint is held and no step clock moves.
+"""
+
+from __future__ import annotations
+
+from collections.abc import Callable
+from dataclasses import dataclass, field
+from typing import Any, Protocol
+
+from tuikiln import events as ev
+from tuikiln.engine import states as st
+from tuikiln.events import Event
+from tuikiln.limits import Limits
+from tuikiln.profile import Cool, Hold, Pause, Profile, Ramp, Step, describe_step
+from tuikiln.units import ROOM_C, Units, format_duration, format_rate, format_temp
+
+FREE_COOL_SETPOINT_C = 0.0
+
+
+class EqualizeLike(Protocol):
+    """What tuikiln.equalize.EqualizeDetector gives back from `update` (duck-typed)."""
+
+    equalized: bool
+    words: str
+
+
+DetectorFactory = Callable[[float, float], Any]
+"""(target_c, band_c) -> an object with `update(now, temp_c) -> EqualizeStatus`."""
+
+
+@dataclass
+class StepTick:
+    """What the stepper wants this tick."""
+
+    setpoint_c: float | None
+    """The setpoint the device should hold (None: nothing to say yet)."""
+    heat_off: bool = False
+    """The step wants no heat at all (a free cool)."""
+    events: list[Event] = field(default_factory=list)
+
+
+class Stepper:
+    def __init__(
+        self,
+        profile: Profile,
+        limits: Limits,
+        units: Units | None = None,
+        *,
+        start_index: int = 0,
+        detector_factory: DetectorFactory | None = None,
+    ) -> None:
+        self.profile = profile
+        self.steps: tuple[Step, ...] = profile.steps
+        self.limits = limits
+        self.units: Units = units or profile.units
+        self.detector_factory = detector_factory
+        self.index = start_index
+        self.state = st.STARTING
+        self.setpoint_c: float | None = None
+        self.target_c: float | None = None
+        self.heat_off = False
+        self.ended = False
+        self.paused = False
+        self.paused_since: float | None = None
+        self.last_now: float | None = None
+        self.last_temp_c: float | None = None
+        # Per-step bookkeeping.
+        self.step_started_at: float | None = None
+        self.active_s = 0.0          # time in this step, not counting run pauses
+        self.ramp_from_c = 0.0
+        self.hold_clock_s = 0.0
+        self.out_of_band_s = 0.0
+        self.state_since: float | None = None
+        self.reached_at: float | None = None
+        self.detector: Any = None
+        self.equalize: Any = None    # the detector's last status
+        self.next_reminder_at: float | None = None
+        self.acknowledged = False
+        self._pending: list[Event] = []
+
+    # ----- the profile -----
+
+    @property
+    def index(self) -> int:
+        return self._index
+
+    @index.setter
+    def index(self, value: int) -> None:
+        # The current step is looked up several times a tick: keep it at hand.
+        self._index = value
+        self.step: Step | None = (self.steps[value] if 0 <= value < len(self.steps)
+                                  else None)
+
+    def band_c(self, step: Step | None = None) -> float:
+        step = step if step is not None else self.step
+        if isinstance(step, Hold) and step.band_c is not None:
+            return step.band_c
+        return self.limits.band
+
+    def _next_is_hold(self) -> bool:
+        nxt = self.index + 1
+        return nxt < len(self.steps) and isinstance(self.steps[nxt], Hold)
+
+    # ----- commands from the person -----
+
+    def pause(self, now: float) -> None:
+        if not self.paused and not self.ended:
+            self.paused = True
+            self.paused_since = now
+
+    def resume(self, now: float) -> None:
+        if self.paused:
+            self.paused = False
+            self.paused_since = None
+
+    def skip(self, now: float) -> list[Event]:
+        """End the current step now and start the next one."""
+        if self.ended:
+            return []
+        temp = self.last_temp_c
+        self._finish_step(now, skipped=True)
+        self._advance(now, temp)
+        return self._take_events()
+
+    def acknowledge(self, now: float) -> list[Event]:
+        """The person answered a pause step; it ends on the next tick."""
+        if isinstance(self.step, Pause) and self.state == st.WAITING_YOU and not self.acknowledged:
+            self.acknowledged = True
+            self._emit(now, ev.OPERATOR_ACKNOWLEDGED, "You acknowledged: carrying on",
+                       index=self.index)
+            return self._take_events()
+        return []
+
+    @property
+    def waiting_for_operator(self) -> bool:
+        return self.state == st.WAITING_YOU and not self.acknowledged
+
+    # ----- the tick -----
+
+    def tick(self, now: float, chamber_c: float | None, load_c: float | None = None) -> StepTick:
+        """One reading: `chamber_c` None when there is no usable reading this tick."""
+        dt = 0.0 if self.last_now is None else max(0.0, now - self.last_now)
+        self.last_now = now
+        if chamber_c is not None:
+            self.last_temp_c = chamber_c
+        if self.state == st.STARTING and not self.ended:
+            if chamber_c is None:
+                return StepTick(self.setpoint_c, self.heat_off, self._take_events())
+            self._enter(now, chamber_c)
+        elif not self.ended and not self.paused:
+            self.active_s += dt
+            self._progress(now, dt, chamber_c, load_c)
+        # Steps that end at once (a ramp already above its target) cascade in one tick.
+        for _ in range(len(self.steps) + 1):
+            if self.ended or not self._step_done(chamber_c):
+                break
+            self._finish_step(now)
+            self._advance(now, chamber_c)
+        return StepTick(self.setpoint_c, self.heat_off, self._take_events())
+
+    # ----- inside -----
+
+    def _emit(self, now: float, event_kind: str, message: str, severity: str = "info",
+              **detail: Any) -> None:
+        self._pending.append(Event(now, event_kind, message, severity, detail))
+
+    def _take_events(self) -> list[Event]:
+        out, self._pending = self._pending, []
+        return out
+
+    def _set_state(self, now: float, state: str) -> None:
+        if state != self.state:
+            self.state = state
+            self.state_since = now
+            self._emit(now, ev.STEP_STATE, self.words(), state=state, index=self.index,
+                       words=self.words())
+
+    def _enter(self, now: float, temp_c: float | None) -> None:
+        step = self.step
+        if step is None:
+            self._end(now)
+            return
+        self.step_started_at = now
+        self.active_s = 0.0
+        self.hold_clock_s = 0.0
+        self.out_of_band_s = 0.0
+        self.reached_at = None
+        self.detector = None
+        self.equalize = None
+        self.acknowledged = False
+        self.next_reminder_at = None
+        self.heat_off = False
+        temp = temp_c if temp_c is not None else (self.setpoint_c or ROOM_C)
+        previous = self.setpoint_c
+        new_state = st.HOLDING
+        if isinstance(step, Ramp):
+            self.target_c = step.to_c
+            if step.rate_c_per_s is None:
+                self.setpoint_c = step.to_c
+                new_state = st.HEATING_FULL
+            else:
+                start = temp
+                if previous is not None and temp < previous < step.to_c:
+                    start = previous
+                self.ramp_from_c = min(start, step.to_c)
+                self.setpoint_c = self.ramp_from_c
+                new_state = st.HEATING
+        elif isinstance(step, Hold):
+            if self.target_c is None:
+                self.target_c = temp
+            self.setpoint_c = self.target_c
+            new_state = st.REACHING
+        elif isinstance(step, Cool):
+            self.target_c = step.to_c
+            if step.rate_c_per_s is None:
+                # Before a hold (a temper after the quench) the controller is given the
+                # target, so it catches the temperature there instead of letting it sink
+                # through the band; otherwise the setpoint goes right down.
+                self.setpoint_c = step.to_c if self._next_is_hold() else FREE_COOL_SETPOINT_C
+                self.heat_off = True
+                new_state = st.COASTING
+            else:
+                start = temp
+                if previous is not None and step.to_c < previous < temp:
+                    start = previous
+                self.ramp_from_c = max(start, step.to_c)
+                self.setpoint_c = self.ramp_from_c
+                new_state = st.COOLING
+        else:
+            if self.setpoint_c is None:
+                self.setpoint_c = temp
+            new_state = st.WAITING_YOU
+        description = describe_step(step, self.units)
+        label = f" ({step.label})" if step.label else ""
+        self._emit(now, ev.STEP_START, f"Step {self.index + 1} of {len(self.steps)}{label}: "
+                   f"{description}", index=self.index, kind=step.kind, description=description,
+                   label=step.label)
+        self.state = ""  # force the state event
+        self._set_state(now, new_state)
+        if isinstance(step, Hold) and temp_c is not None:
+            self._hold(now, 0.0, temp_c, None)
+        if isinstance(step, Pause):
+            self._remind(now, first=True)
+
+    def _remind(self, now: float, first: bool = False) -> None:
+        step = self.step
+        assert isinstance(step, Pause)
+        again = "" if first else "Reminder: "
+        self._emit(now, ev.OPERATOR_NEEDED, f"{again}{step.message}", "warning",
+                   index=self.index, text=step.message, reminder=not first)
+        self.next_reminder_at = now + self.limits.pause_remind
+
+    def _progress(self, now: float, dt: float, temp: float | None, load_c: float | None) -> None:
+        step = self.step
+        if isinstance(step, Ramp):
+            if step.rate_c_per_s is not None and self.state == st.HEATING:
+                sp = self.ramp_from_c + step.rate_c_per_s * self.active_s
+                if sp >= step.to_c:
+                    sp = step.to_c
+                    if not self._next_is_hold():
+                        self._set_state(now, st.REACHING)
+                self.setpoint_c = sp
+        elif isinstance(step, Hold):
+            if temp is not None:
+                self._hold(now, dt, temp, load_c)
+        elif isinstance(step, Cool):
+            if step.rate_c_per_s is not None and self.state == st.COOLING:
+                sp = self.ramp_from_c - step.rate_c_per_s * self.active_s
+                if sp <= step.to_c:
+                    sp = step.to_c
+                    self._set_state(now, st.SETTLING)
+                self.setpoint_c = sp
+        elif isinstance(step, Pause):
+            if (not self.acknowledged and self.next_reminder_at is not None
+                    and now >= self.next_reminder_at):
+                self._remind(now)
+
+    def _hold(self, now: float, dt: float, temp: float, load_c: float | None) -> None:
+        step = self.step
+        assert isinstance(step, Hold) and self.target_c is not None
+        band = self.band_c(step)
+        in_band = abs(temp - self.target_c) <= band
+        if self.state == st.REACHING:
+            if not in_band:
+                return
+            self.reached_at = now
+            if step.start == "equalized" and self.detector_factory is not None:
+                self.detector = self.detector_factory(self.target_c, band)
+                self._set_state(now, st.EVENING)
+            else:
+                self._set_state(now, st.HOLDING)
+                return
+        if self.state == st.EVENING:
+            source = load_c if load_c is not None else temp
+            self.equalize = self.detector.update(now, source)
+            if getattr(self.equalize, "equalized", False):
+                self._emit(now, ev.EQUALIZED, f"The load has evened out at "
+                           f"{format_temp(source, self.units)}: the hold clock starts",
+                           index=self.index, core_c=source)
+                self._set_state(now, st.HOLDING)
+            return
+        if self.state == st.HOLDING:
+            if in_band:
+                self.hold_clock_s += dt
+            else:
+                self.out_of_band_s += dt
+                self._set_state(now, st.SLIPPED)
+        elif self.state == st.SLIPPED:
+            if in_band:
+                self.hold_clock_s += dt
+                self._set_state(now, st.HOLDING)
+            else:
+                self.out_of_band_s += dt
+
+    def _step_done(self, temp: float | None) -> bool:
+        step = self.step
+        if step is None or self.state == st.STARTING:
+            return False
+        if self.paused and not isinstance(step, Pause):
+            return False
+        if isinstance(step, Ramp):
+            in_band = temp is not None and temp >= step.to_c - self.limits.band
+            if step.rate_c_per_s is None:
+                return in_band
+            at_target = self.setpoint_c is not None and self.setpoint_c >= step.to_c
+            if not at_target:
+                return False
+            return self._next_is_hold() or in_band
+        if isinstance(step, Hold):
+            return self.hold_clock_s >= step.duration_s
+        if isinstance(step, Cool):
+            if temp is None:
+                return False
+            if step.rate_c_per_s is None:
+                if self._next_is_hold():
+                    return temp <= step.to_c + self.limits.band  # the hold waits for the band
+                return temp <= step.to_c
+            at_target = self.setpoint_c is not None and self.setpoint_c <= step.to_c
+            return at_target and temp <= step.to_c + self.limits.band
+        return self.acknowledged
+
+    def _finish_step(self, now: float, skipped: bool = False) -> None:
+        step = self.step
+        if step is None:
+            return
+        detail: dict[str, Any] = {"index": self.index, "kind": step.kind, "skipped": skipped,
+                                  "seconds": 0.0 if self.step_started_at is None
+                                  else now - self.step_started_at}
+        if isinstance(step, Hold):
+            detail["out_of_band_s"] = self.out_of_band_s
+            detail["hold_clock_s"] = self.hold_clock_s
+        how = "skipped" if skipped else "done"
+        extra = ""
+        if isinstance(step, Hold) and self.out_of_band_s >= 1.0:
+            extra = f" ({format_duration(self.out_of_band_s)} out of the band)"
+        self._emit(now, ev.STEP_END, f"Step {self.index + 1} {how}{extra}", **detail)
+
+    def _advance(self, now: float, temp: float | None) -> None:
+        self.index += 1
+        if self.index >= len(self.steps):
+            self._end(now)
+        else:
+            self._enter(now, temp)
+
+    def _end(self, now: float) -> None:
+        self.ended = True
+        self.index = len(self.steps)
+        self.state = st.DONE
+        self.state_since = now
+
+    # ----- for people -----
+
+    def step_time_left_s(self) -> float | None:
+        """Time until this step ends, where it can be told; None when it cannot."""
+        step = self.step
+        if step is None:
+            return 0.0
+        if isinstance(step, Ramp) and step.rate_c_per_s and self.setpoint_c is not None:
+            if self.state == st.HEATING:
+                return max(0.0, (step.to_c - self.setpoint_c) / step.rate_c_per_s)
+            return None
+        if isinstance(step, Hold):
+            left = max(0.0, step.duration_s - self.hold_clock_s)
+            if self.state == st.EVENING:
+                eta = getattr(self.equalize, "eta_s", None)
+                return None if eta is None else left + eta
+            if self.state in (st.HOLDING, st.SLIPPED):
+                return left
+            return None
+        if isinstance(step, Cool) and step.rate_c_per_s and self.setpoint_c is not None:
+            if self.state == st.COOLING:
+                return max(0.0, (self.setpoint_c - step.to_c) / step.rate_c_per_s)
+        return None
+
+    def words(self) -> str:
+        """The state in plain words, e.g. 'holding at 1750 °F, 12 min of 30 left'."""
+        step = self.step
+        u = self.units
+        target = format_temp(self.target_c, u)
+        now_t = format_temp(self.last_temp_c, u)
+        if self.ended:
+            return "all steps done"
+        if step is None or self.state == st.STARTING:
+            return "starting"
+        state = self.state
+        if state == st.HEATING and isinstance(step, Ramp):
+            left = self.step_time_left_s()
+            return (f"heating to {target} at {format_rate(step.rate_c_per_s, u)} "
+                    f"(now {now_t}, {format_duration(left)} to go)")
+        if state == st.HEATING_FULL:
+            return f"heating as fast as the oven goes to {target} (now {now_t})"
+        if state == st.REACHING:
+            return f"waiting to reach {target} (now {now_t})"
+        if state == st.EVENING:
+            eta = getattr(self.equalize, "eta_s", None)
+            about = f": about {_minutes(eta)}" if eta is not None else ""
+            return f"waiting for the load to even out at {target}{about}"
+        if state in (st.HOLDING, st.SLIPPED) and isinstance(step, Hold):
+            left = max(0.0, step.duration_s - self.hold_clock_s)
+            clock = f"{_minutes(left)} of {_minutes(step.duration_s)} left"
+            if state == st.SLIPPED:
+                return (f"out of the band at {target} (now {now_t}): hold clock stopped, "
+                        f"{clock}")
+            return f"holding at {target}, {clock}"
+        if state == st.COOLING and isinstance(step, Cool):
+            return f"cooling to {target} at {format_rate(step.rate_c_per_s, u)} (now {now_t})"
+        if state == st.SETTLING:
+            return f"waiting to cool to {target} (now {now_t})"
+        if state == st.COASTING:
+            return f"heater off, cooling to {target} (now {now_t})"
+        if state == st.WAITING_YOU and isinstance(step, Pause):
+            if self.acknowledged:
+                return "acknowledged: carrying on"
+            return f"waiting for you: {step.message}"
+        return state
+
+
+def _minutes(seconds: float | None) -> str:
+    if seconds is None:
+        return "--"
+    if seconds < 90:
+        return f"{max(0, round(seconds))} s"
+    if seconds < 5400:
+        return f"{round(seconds / 60)} min"
+    return format_duration(seconds)

@@ -1,0 +1,458 @@
+"""The run log: every run, every sample and every event, in one SQLite file (WAL).
+
+    log = RunLog(data_dir / "runs.sqlite")
+    recorder = log.start_run(kiln="Bench oven", profile=profile, ...)   # the engine only
+    recorder.sample(t, chamber_c, load_c, core_c, setpoint_c, output_pct, step, state, flags)
+    recorder.event(event)
+    recorder.end("completed", ended_t)
+    log.runs(); log.samples(run_id) -> dict of numpy arrays; log.events(run_id, after_id)
+
+The engine is the only writer. Samples and events are kept in memory and written in one
+transaction at least once a second of wall time (or every `batch` samples, for simulated
+runs faster than real time), so a kill loses at most about a second. Readers use their own
+connections; WAL keeps them from blocking the writer and the writer from blocking them.
+
+When a write fails (disk full, file made read-only) nothing is lost from memory: the
+recorder keeps the rows, sets `trouble` to the reason (the engine raises an alarm) and tries
+again a few seconds later. The run goes on.
+
+Reading a week of samples (604,800 rows) row by row through sqlite3 takes over a second in
+Python, so each sample is stored twice: as a row in `samples` (for SQL, exports, other tools)
+and packed into `sample_blocks`, BLOBs of up to BLOCK_ROWS samples in columns (t as float64,
+temperatures and output as float32, step, state and flags as integers), written in the same
+transaction. `samples()` reads the blocks: a few hundred BLOBs and `numpy.frombuffer`. The
+last block is rewritten as it grows, so a live run's reader sees every committed sample.
+
+Sample times `t` and event times are the engine's clock (epoch seconds; simulated time in a
+simulated run); `runs.started` is on the same clock, `runs.wall_started` on the wall clock.
+"""
+
+from __future__ import annotations
+
+import json
+import os
+import sqlite3
+import time
+from collections.abc import Mapping
+from dataclasses import dataclass
+from pathlib import Path
+from typing import Any
+
+import numpy as np
+
+from tuikiln.events import Event
+
+RUNLOG_NAME = "runs.sqlite"
+SCHEMA_VERSION = 1
+SAMPLE_COLUMNS = ("t", "chamber_c", "load_c", "core_c", "setpoint_c", "output_pct", "step",
+                  "state", "flags")
+_FLOAT_COLUMNS = SAMPLE_COLUMNS[:6]
+_INT_COLUMNS = SAMPLE_COLUMNS[6:]
+_NULL = -1.0e308  # stands for NULL while rows stream into numpy (NaN cannot be stored)
+RETRY_AFTER_S = 5.0
+BLOCK_ROWS = 1024
+# Column layout of one packed block (in this order, each n values, little-endian).
+_BLOCK_TYPES: tuple[tuple[str, str], ...] = (
+    ("t", "<f8"), ("chamber_c", "<f4"), ("load_c", "<f4"), ("core_c", "<f4"),
+    ("setpoint_c", "<f4"), ("output_pct", "<f4"), ("step", "<i2"), ("state", "<i2"),
+    ("flags", "<i4"),
+)
+MAX_KEPT_SAMPLES = 5_000_000  # a week at 1 s is 604,800: this is the memory cap while failing
+
+_SCHEMA = """
+CREATE TABLE IF NOT EXISTS meta (key TEXT PRIMARY KEY, value TEXT);
+CREATE TABLE IF NOT EXISTS runs (
+    id INTEGER PRIMARY KEY,
+    kiln TEXT NOT NULL,
+    profile TEXT NOT NULL,
+    profile_path TEXT,
+    profile_text TEXT,
+    kiln_text TEXT,
+    load_json TEXT,
+    units TEXT,
+    device TEXT,
+    speed TEXT,
+    watch_only INTEGER DEFAULT 0,
+    started REAL NOT NULL,
+    wall_started REAL,
+    ended REAL,
+    outcome TEXT,
+    pid INTEGER
+);
+CREATE TABLE IF NOT EXISTS samples (
+    run_id INTEGER NOT NULL,
+    t REAL NOT NULL,
+    chamber_c REAL,
+    load_c REAL,
+    core_c REAL,
+    setpoint_c REAL,
+    output_pct REAL,
+    step INTEGER,
+    state INTEGER,
+    flags INTEGER
+);
+CREATE INDEX IF NOT EXISTS samples_run_t ON samples (run_id, t);
+CREATE TABLE IF NOT EXISTS sample_blocks (
+    id INTEGER PRIMARY KEY,
+    run_id INTEGER NOT NULL,
+    first_t REAL NOT NULL,
+    last_t REAL NOT NULL,
+    n INTEGER NOT NULL,
+    data BLOB NOT NULL
+);
+CREATE INDEX IF NOT EXISTS sample_blocks_run ON sample_blocks (run_id, last_t);
+CREATE TABLE IF NOT EXISTS events (
+    id INTEGER PRIMARY KEY,
+    run_id INTEGER NOT NULL,
+    t REAL NOT NULL,
+    kind TEXT NOT NULL,
+    severity TEXT NOT NULL,
+    message TEXT NOT NULL,
+    detail TEXT
+);
+CREATE INDEX IF NOT EXISTS events_run ON events (run_id, id);
+"""
+
+
+def default_data_dir(data: str | None = None) -> Path:
+    """The data folder: `data` (from --data / TUIKILN_DATA) or the user's data folder."""
+    if data:
+        return Path(data).expanduser()
+    import platformdirs
+
+    return Path(platformdirs.user_data_dir("tuikiln"))
+
+
+@dataclass(frozen=True)
+class RunInfo:
+    id: int
+    kiln: str
+    profile: str
+    started: float
+    ended: float | None
+    outcome: str | None
+    """None while the run goes on (or if its process was killed: see `status`)."""
+    units: str = "C"
+    device: str = ""
+    speed: str = ""
+    watch_only: bool = False
+    wall_started: float | None = None
+    profile_path: str | None = None
+    profile_text: str = ""
+    kiln_text: str = ""
+    load: Mapping[str, Any] | None = None
+    pid: int | None = None
+
+    @property
+    def status(self) -> str:
+        """The outcome, "running", or "unfinished" when the engine died without ending it."""
+        if self.outcome:
+            return self.outcome
+        if self.pid and _pid_alive(self.pid):
+            return "running"
+        return "unfinished"
+
+    def summary(self) -> dict[str, Any]:
+        return {"id": self.id, "kiln": self.kiln, "profile": self.profile,
+                "started": self.started, "ended": self.ended, "outcome": self.status,
+                "units": self.units, "device": self.device, "speed": self.speed,
+                "watch_only": self.watch_only}
+
+
+def _pid_alive(pid: int) -> bool:
+    try:
+        os.kill(pid, 0)
+    except ProcessLookupError:
+        return False
+    except PermissionError:
+        return True
+    return True
+
+
+def _connect(path: Path) -> sqlite3.Connection:
+    conn = sqlite3.connect(str(path), timeout=10.0, isolation_level=None,
+                           check_same_thread=False)
+    conn.execute("PRAGMA journal_mode=WAL")
+    conn.execute("PRAGMA synchronous=NORMAL")  # WAL + NORMAL: durable at checkpoints, fast
+    conn.execute("PRAGMA busy_timeout=10000")
+    return conn
+
+
+class RunLog:
+    """Reader (and the door to the writer) for one `runs.sqlite`."""
+
+    def __init__(self, path: str | os.PathLike[str]) -> None:
+        self.path = Path(path)
+        self.path.parent.mkdir(parents=True, exist_ok=True)
+        self._conn = _connect(self.path)
+        self._conn.executescript(_SCHEMA)
+        self._conn.execute("INSERT OR IGNORE INTO meta VALUES ('schema', ?)",
+                           (str(SCHEMA_VERSION),))
+
+    @classmethod
+    def in_folder(cls, data_dir: str | os.PathLike[str]) -> RunLog:
+        return cls(Path(data_dir) / RUNLOG_NAME)
+
+    def close(self) -> None:
+        self._conn.close()
+
+    # ----- reading -----
+
+    def runs(self) -> list[RunInfo]:
+        rows = self._conn.execute(f"SELECT {_RUN_FIELDS} FROM runs ORDER BY id").fetchall()
+        return [_run_info(row) for row in rows]
+
+    def run(self, run_id: int) -> RunInfo | None:
+        row = self._conn.execute(f"SELECT {_RUN_FIELDS} FROM runs WHERE id = ?",
+                                 (run_id,)).fetchone()
+        return None if row is None else _run_info(row)
+
+    def latest_run(self) -> RunInfo | None:
+        row = self._conn.execute(f"SELECT {_RUN_FIELDS} FROM runs ORDER BY id DESC LIMIT 1"
+                                 ).fetchone()
+        return None if row is None else _run_info(row)
+
+    def sample_count(self, run_id: int) -> int:
+        return int(self._conn.execute("SELECT COUNT(*) FROM samples WHERE run_id = ?",
+                                      (run_id,)).fetchone()[0])
+
+    def samples(self, run_id: int, since_t: float | None = None) -> dict[str, np.ndarray]:
+        """Samples (after `since_t`, if given) as numpy arrays, one per column; NaN = none.
+
+        Temperatures and output come back as float64 (stored as float32: 0.0001 °C steps at
+        1000 °C, far below any thermocouple's resolution).
+        """
+        where, params = "run_id = ?", [run_id]
+        if since_t is not None:
+            where += " AND last_t > ?"
+            params.append(since_t)
+        rows = self._conn.execute(f"SELECT n, data FROM sample_blocks WHERE {where} ORDER BY id",
+                                  params).fetchall()
+        parts: dict[str, list[np.ndarray]] = {name: [] for name, _ in _BLOCK_TYPES}
+        for n, data in rows:
+            for name, array in _unpack_block(n, data).items():
+                parts[name].append(array)
+        out: dict[str, np.ndarray] = {}
+        for name, kind in _BLOCK_TYPES:
+            dtype = np.float64 if kind[1] == "f" else np.int64
+            out[name] = (np.concatenate(parts[name]).astype(dtype) if parts[name]
+                         else np.empty(0, dtype))
+        if since_t is not None and len(out["t"]):
+            keep = out["t"] > since_t
+            if not keep.all():
+                out = {name: array[keep] for name, array in out.items()}
+        return out
+
+    def events(self, run_id: int, after_id: int = 0) -> list[dict[str, Any]]:
+        rows = self._conn.execute(
+            "SELECT id, t, kind, severity, message, detail FROM events "
+            "WHERE run_id = ? AND id > ? ORDER BY id", (run_id, after_id)).fetchall()
+        return [{"id": r[0], "time": r[1], "kind": r[2], "severity": r[3], "message": r[4],
+                 "detail": json.loads(r[5]) if r[5] else {}, "run": run_id} for r in rows]
+
+    # ----- writing (the engine only) -----
+
+    def start_run(
+        self,
+        *,
+        kiln: str,
+        profile: str,
+        started: float,
+        profile_path: str | None = None,
+        profile_text: str = "",
+        kiln_text: str = "",
+        load: Mapping[str, Any] | None = None,
+        units: str = "C",
+        device: str = "",
+        speed: str = "",
+        watch_only: bool = False,
+        batch: int = 1000,
+    ) -> RunRecorder:
+        conn = _connect(self.path)
+        cursor = conn.execute(
+            "INSERT INTO runs (kiln, profile, profile_path, profile_text, kiln_text, load_json,"
+            " units, device, speed, watch_only, started, wall_started, pid)"
+            " VALUES (?, ?, ?, ?, ?, ?, ?, ?, ?, ?, ?, ?, ?)",
+            (kiln, profile, profile_path, profile_text, kiln_text,
+             json.dumps(dict(load)) if load is not None else None, units, device, speed,
+             int(watch_only), started, time.time(), os.getpid()))
+        run_id = int(cursor.lastrowid or 0)
+        return RunRecorder(conn, run_id, batch=batch)
+
+
+_RUN_FIELDS = ("id, kiln, profile, started, ended, outcome, units, device, speed, watch_only,"
+               " wall_started, profile_path, profile_text, kiln_text, load_json, pid")
+
+
+def _run_info(row: tuple[Any, ...]) -> RunInfo:
+    return RunInfo(
+        id=row[0], kiln=row[1], profile=row[2], started=row[3], ended=row[4], outcome=row[5],
+        units=row[6] or "C", device=row[7] or "", speed=row[8] or "",
+        watch_only=bool(row[9]), wall_started=row[10], profile_path=row[11],
+        profile_text=row[12] or "", kiln_text=row[13] or "",
+        load=json.loads(row[14]) if row[14] else None, pid=row[15])
+
+
+def _pack_block(rows: list[tuple[Any, ...]]) -> bytes:
+    """Rows as stored in `samples` (run_id first) -> one packed block."""
+    table = np.array([row[1:] for row in rows], dtype=np.float64)  # None -> NaN
+    chunks = []
+    for column, (_, kind) in enumerate(_BLOCK_TYPES):
+        values = table[:, column]
+        if kind[1] == "i":
+            values = np.nan_to_num(values, nan=-1.0)
+        chunks.append(values.astype(kind).tobytes())
+    return b"".join(chunks)
+
+
+def _unpack_block(n: int, data: bytes) -> dict[str, np.ndarray]:
+    out: dict[str, np.ndarray] = {}
+    offset = 0
+    for name, kind in _BLOCK_TYPES:
+        dtype = np.dtype(kind)
+        out[name] = np.frombuffer(data, dtype=dtype, count=n, offset=offset)
+        offset += n * dtype.itemsize
+    return out
+
+
+class RunRecorder:
+    """Buffered writer for one run. Never raises from `sample`, `event` or `flush`."""
+
+    def __init__(self, conn: sqlite3.Connection, run_id: int, *, batch: int = 1000,
+                 every_s: float = 1.0) -> None:
+        self.conn = conn
+        self.run_id = run_id
+        self.batch = batch
+        self.every_s = every_s
+        self._samples: list[tuple[Any, ...]] = []
+        self._block: list[tuple[Any, ...]] = []
+        """Rows of the last, still growing block (already written)."""
+        self._block_id: int | None = None
+        self._events: list[tuple[Any, ...]] = []
+        self._last_flush = time.monotonic()
+        self._retry_at = 0.0
+        self.trouble: str | None = None
+        """Why the last write failed; None when writing works."""
+        self.samples_written = 0
+        self.events_written = 0
+        self.longest_commit_s = 0.0
+        self.dropped = 0
+        self._closed = False
+
+    def sample(self, t: float, chamber_c: float | None, load_c: float | None,
+               core_c: float | None, setpoint_c: float | None, output_pct: float | None,
+               step: int, state: int, flags: int) -> None:
+        # x == x is False only for NaN, which SQLite would store as NULL anyway; kept explicit.
+        self._samples.append((
+            self.run_id, t,
+            chamber_c if chamber_c == chamber_c else None,
+            load_c if load_c == load_c else None,
+            core_c if core_c == core_c else None,
+            setpoint_c if setpoint_c == setpoint_c else None,
+            output_pct if output_pct == output_pct else None,
+            step, state, flags))
+        if len(self._samples) >= self.batch:
+            self.flush()
+        elif len(self._samples) & 63 == 0:
+            self.maybe_flush()
+
+    def event(self, event: Event, *, urgent: bool = False) -> None:
+        self._events.append((self.run_id, event.time, event.kind, event.severity, event.message,
+                             json.dumps(dict(event.detail), default=str)))
+        if urgent or event.severity == "critical":
+            self.flush()
+
+    def maybe_flush(self) -> None:
+        if time.monotonic() - self._last_flush >= self.every_s:
+            self.flush()
+
+    def flush(self, force: bool = False) -> bool:
+        """Write what is kept; False (and `trouble` set) when the write failed."""
+        if self._closed or (not self._samples and not self._events):
+            self._last_flush = time.monotonic()
+            return True
+        start = time.monotonic()
+        if not force and self.trouble is not None and start < self._retry_at:
+            return False
+        try:
+            self.conn.execute("BEGIN")
+            if self._samples:
+                self.conn.executemany(
+                    "INSERT INTO samples (run_id, t, chamber_c, load_c, core_c, setpoint_c,"
+                    " output_pct, step, state, flags) VALUES (?, ?, ?, ?, ?, ?, ?, ?, ?, ?)",
+                    self._samples)
+                block, block_id = self._write_blocks()
+            if self._events:
+                self.conn.executemany(
+                    "INSERT INTO events (run_id, t, kind, severity, message, detail)"
+                    " VALUES (?, ?, ?, ?, ?, ?)", self._events)
+            self.conn.execute("COMMIT")
+            if self._samples:
+                self._block, self._block_id = block, block_id
+        except sqlite3.Error as exc:
+            try:
+                self.conn.execute("ROLLBACK")
+            except sqlite3.Error:
+                pass
+            self.trouble = f"{exc} ({len(self._samples)} samples kept in memory)"
+            self._retry_at = start + RETRY_AFTER_S
+            if len(self._samples) > MAX_KEPT_SAMPLES:
+                # Keep the newest: the end of a run matters most when it went wrong.
+                cut = len(self._samples) - MAX_KEPT_SAMPLES
+                del self._samples[:cut]
+                self.dropped += cut
+            self._last_flush = time.monotonic()
+            return False
+        elapsed = time.monotonic() - start
+        self.longest_commit_s = max(self.longest_commit_s, elapsed)
+        self.samples_written += len(self._samples)
+        self.events_written += len(self._events)
+        self._samples.clear()
+        self._events.clear()
+        self.trouble = None
+        self._last_flush = time.monotonic()
+        return True
+
+    def _write_blocks(self) -> tuple[list[tuple[Any, ...]], int | None]:
+        """Append the kept samples to the growing block; returns the new growing block."""
+        rows = self._block + self._samples
+        block_id = self._block_id
+        while rows:
+            chunk, rows = rows[:BLOCK_ROWS], rows[BLOCK_ROWS:]
+            values = (chunk[0][1], chunk[-1][1], len(chunk), _pack_block(chunk))
+            if block_id is None:
+                cursor = self.conn.execute(
+                    "INSERT INTO sample_blocks (run_id, first_t, last_t, n, data)"
+                    " VALUES (?, ?, ?, ?, ?)", (self.run_id, *values))
+                block_id = int(cursor.lastrowid or 0)
+            else:
+                self.conn.execute("UPDATE sample_blocks SET first_t = ?, last_t = ?, n = ?,"
+                                  " data = ? WHERE id = ?", (*values, block_id))
+            if len(chunk) == BLOCK_ROWS:
+                block_id = None
+            else:
+                return chunk, block_id
+        return [], None
+
+    @property
+    def pending(self) -> int:
+        return len(self._samples) + len(self._events)
+
+    def end(self, outcome: str, ended: float) -> bool:
+        ok = self.flush(force=True)
+        try:
+            self.conn.execute("UPDATE runs SET outcome = ?, ended = ? WHERE id = ?",
+                              (outcome, ended, self.run_id))
+        except sqlite3.Error as exc:
+            self.trouble = str(exc)
+            return False
+        return ok
+
+    def close(self) -> None:
+        if not self._closed:
+            self.flush(force=True)
+            self._closed = True
+            try:
+                self.conn.close()
+            except sqlite3.Error:
+                pass
