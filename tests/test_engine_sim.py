@@ -196,3 +196,29 @@ def test_a_profile_hotter_than_the_kiln_is_refused(tmp_path):
                  "--data", str(tmp_path / "data")])
     assert code == 1
     assert not (tmp_path / "data" / "runs.sqlite").exists()
+
+
+async def test_an_engine_failure_drives_safe_and_is_logged(tmp_path):
+    from drivers.fake import FirstOrderOven, ScriptedDevice
+
+    device = ScriptedDevice(model=FirstOrderOven(), errors={50: RuntimeError("a bug")})
+    profile = parse_profile(LONG_RAMP, "p.toml")
+    log = RunLog.in_folder(tmp_path)
+    engine = RunEngine(device, profile, kiln=KilnInfo("k"), limits=Limits(), runlog=log)
+    with pytest.raises(RuntimeError):
+        await engine.run()
+    assert device.stop_calls  # heat off before the error went on up
+    run = log.run(engine.run_id)
+    assert run.outcome == st.ENGINE_FAILED
+    assert "safe-state" in [e["kind"] for e in log.events(run.id)]
+
+
+async def test_a_stop_request_from_a_signal_ends_safe(tmp_path):
+    from drivers.fake import FirstOrderOven, ScriptedDevice
+
+    device = ScriptedDevice(model=FirstOrderOven())
+    engine = RunEngine(device, parse_profile(LONG_RAMP, "p.toml"), kiln=KilnInfo("k"),
+                       limits=Limits())
+    engine.request_stop(st.STOPPED_BY_SIGNAL, "stopped by SIGTERM")
+    assert await engine.run() == st.STOPPED_BY_SIGNAL
+    assert device.stop_calls

@@ -176,14 +176,16 @@ def start_background(args: argparse.Namespace, kiln: Any, profile: Any, data_dir
             return code
         for active in control.active_runs(data_dir):
             if active.pid == child.pid:
-                return _announce(active, kiln, profile, log_path)
+                return _announce(active, kiln, profile, log_path,
+                                 parse_speed(args.speed, kiln.is_simulator))
         time.sleep(0.05)
     print(f"tuikiln: the run is taking long to start; see {log_path} and `tuikiln status`",
           file=sys.stderr)
     return EXIT_CANNOT_START
 
 
-def _announce(active: Any, kiln: Any, profile: Any, log_path: Path) -> int:
+def _announce(active: Any, kiln: Any, profile: Any, log_path: Path,
+              speed: float | None) -> int:
     from tuikiln import control
 
     status: dict[str, Any] = {}
@@ -191,7 +193,7 @@ def _announce(active: Any, kiln: Any, profile: Any, log_path: Path) -> int:
         status = control.request(active.socket, "status").get("status", {})
     simulated = kiln.is_simulator
     for line in plan_lines(profile, kiln, status.get("chamber_c"), "running in the background",
-                           None, simulated):
+                           speed, simulated):
         print(line)
     print(f"Started run {active.run} in the background (process {active.pid}); it goes on "
           "when this terminal closes.")
