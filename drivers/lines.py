@@ -107,7 +107,8 @@ class LineParser:
         if fmt == "json":
             try:
                 data = json.loads(line)
-            except ValueError as exc:
+            except (ValueError, RecursionError) as exc:
+                # RecursionError: json recurses once per nested array or object
                 raise BadReply("the line is not valid JSON") from exc
             if not isinstance(data, dict):
                 raise BadReply("the JSON line is not an object")
@@ -125,7 +126,11 @@ class LineParser:
             if not result:
                 raise BadReply("the line holds no key=value pairs")
             return result
-        row = [cell.strip() for cell in next(csv.reader([line], delimiter=self.settings.separator))]
+        try:
+            cells = next(csv.reader([line], delimiter=self.settings.separator))
+        except csv.Error as exc:  # e.g. a carriage return inside the line
+            raise BadReply(f"the line is not valid CSV ({exc})") from exc
+        row = [cell.strip() for cell in cells]
         if self.settings.header and (self.columns is None or row == self.columns):
             self.columns = row
             raise _HeaderLine()
@@ -213,6 +218,9 @@ class LineThermometer(Device):
         self._serial: Any = None
         self._fd = -1
         self._buffer = b""
+        self._skipping = False
+        """An overlong line was dropped: bytes up to the next newline are its tail."""
+        self._skipped = 0
         self._latest: ParsedLine | None = None
         self._fresh = asyncio.Event()
         self._lost = False
@@ -244,6 +252,7 @@ class LineThermometer(Device):
         self._fd = port.fileno()
         os.set_blocking(self._fd, False)
         self._buffer = b""
+        self._skipping, self._skipped = False, 0
         self._lost = False
         self._backoff = s.reconnect_min_s
         asyncio.get_running_loop().add_reader(self._fd, self._on_readable)
@@ -277,12 +286,27 @@ class LineThermometer(Device):
             self._drop_port()
             self._fresh.set()
             return
+        if self._skipping:
+            # the rest of a line already dropped as overlong: its tail is not a reading
+            end = data.find(b"\n")
+            if end < 0:
+                self._skipped += len(data)
+                if self._skipped > MAX_LINE:  # still no newline: keep saying so
+                    self._skipped = 0
+                    self._count_bad(f"no end of line in {MAX_LINE} bytes")
+                return
+            data = data[end + 1:]
+            self._skipping = False
         self._buffer += data
         *lines, self._buffer = self._buffer.split(b"\n")
         if len(self._buffer) > MAX_LINE:  # a stream with no newlines is not ours
             self._buffer = b""
-            self._count_bad("no end of line in 4096 bytes")
+            self._skipping, self._skipped = True, 0
+            self._count_bad(f"no end of line in {MAX_LINE} bytes")
         for raw in lines:
+            if len(raw) > MAX_LINE:  # a whole overlong line in one read: not ours either
+                self._count_bad(f"a line longer than {MAX_LINE} bytes")
+                continue
             self._take_line(raw)
 
     def _take_line(self, raw: bytes) -> None:

@@ -318,6 +318,10 @@ def parse_map(text: str, source: str = "<map>") -> RegisterMap:
         match = re.search(r"line (\d+)", str(exc))
         where = f"{name}:{match.group(1)}" if match else name
         raise MapError([f"{where}: not valid TOML ({exc})"]) from exc
+    except RecursionError:  # tomllib recurses once per nested array or inline table
+        raise MapError([f"{name}: not a register map: the file nests too deeply"]) from None
+    except ValueError:  # e.g. an integer of more than 4300 digits (Python's int limit)
+        raise MapError([f"{name}: not a register map: a number is too long"]) from None
     checker = _Checker(name, KeyLines(text))
     result = checker.check(data, source)
     if checker.problems or result is None:

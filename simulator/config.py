@@ -387,7 +387,9 @@ def _check(table: Mapping[str, Any], problems: Problems) -> SimConfig | None:
         problems.append(((*path, "kind"), f'the simulator needs kind = "sim", not {_shown(kind)}'))
     oven_values = _apply(device, _OVEN_KEYS, path, problems)
     control = device.get("control", "ssr")
-    if control not in ("ssr", "proportional"):
+    if not isinstance(control, str):
+        problems.append(((*path, "control"), 'control must be text: "ssr" or "proportional"'))
+    elif control not in ("ssr", "proportional"):
         problems.append(((*path, "control"), _unknown("control", str(control),
                                                       ["ssr", "proportional"])))
     else:
@@ -435,7 +437,12 @@ def _check_load(
         return None, False
     _unknown_keys(raw, [*_LOAD_KEYS, "material", "thermocouple"], lpath, problems)
     material = raw.get("material", "carbon steel")
-    if material not in MATERIALS:
+    if not isinstance(material, str):  # a list or table is unhashable: no dict lookup with it
+        names = [f'"{m}"' for m in MATERIALS]
+        problems.append(((*lpath, "material"),
+                         f"material must be text: {', '.join(names[:-1])} or {names[-1]}"))
+        material = "carbon steel"
+    elif material not in MATERIALS:
         problems.append(((*lpath, "material"), _unknown("material", str(material),
                                                         list(MATERIALS))))
         material = "carbon steel"
@@ -488,6 +495,9 @@ def _check_faults(
         kind = entry.get("kind")
         if kind is None:
             problems.append(((*fpath, "kind"), 'a fault needs a "kind", e.g. "door-open"'))
+            ok = False
+        elif not isinstance(kind, str):
+            problems.append(((*fpath, "kind"), 'a fault "kind" must be text, e.g. "door-open"'))
             ok = False
         elif kind not in FAULT_KINDS:
             problems.append(((*fpath, "kind"), _unknown("fault kind", str(kind), FAULT_KINDS)))

@@ -95,8 +95,15 @@ def load_config(args: argparse.Namespace) -> SimConfig:
             table = tomllib.loads(text)
         except OSError as exc:
             raise ServeError(f"{path}: cannot read it ({exc.strerror or exc})") from None
+        except UnicodeDecodeError as exc:
+            raise ServeError(f"{path}: not UTF-8 text (byte {exc.start} cannot be read); "
+                             "save it as UTF-8") from None
         except tomllib.TOMLDecodeError as exc:
             raise ServeError(f"{path}: not valid TOML: {exc}") from None
+        except RecursionError:  # tomllib recurses once per nested array or inline table
+            raise ServeError(f"{path}: not valid TOML: the file nests too deeply") from None
+        except ValueError:  # e.g. an integer of more than 4300 digits (Python's int limit)
+            raise ServeError(f"{path}: not valid TOML: a number is too long") from None
         device = table.get("device")
         if from_kiln_option and not (isinstance(device, dict) and device.get("kind") == "sim"):
             # --kiln names the user's real oven; serve the default simulator instead.

@@ -9,7 +9,6 @@ and keeps serving. Counts per parser go into the session summary (tests/test_hos
 from __future__ import annotations
 
 import asyncio
-import csv
 import json
 import math
 import os
@@ -25,7 +24,7 @@ from hypothesis import strategies as st
 
 from drivers.errors import BadReply
 from drivers.lines import ChannelSpec, LineParser, LineSettings, ParsedLine
-from tests.test_hostile_files import KNOWN_BUGS, TALLY, fuzz, no_hang
+from tests.test_hostile_files import TALLY, fuzz, no_hang
 from tuikiln.errors import FileProblems
 from tuikiln.kiln import parse_kiln
 
@@ -103,26 +102,17 @@ def test_line_parser_gives_bad_reply_or_a_reading(fmt: str, data: st.DataObject)
             except BadReply as exc:
                 assert str(exc)
                 continue
-            except csv.Error:
-                # known bug, see test_line_parser_carriage_return_in_csv_is_a_bad_reply
-                KNOWN_BUGS["csv.Error from a CR inside a line"] += 1
-                continue
             except Exception as exc:  # the header marker is private; it is "not a reading"
                 assert type(exc).__name__ == "_HeaderLine", repr(exc)
                 continue
         _check_parsed(parsed)
 
 
-@pytest.mark.xfail(reason="drivers/lines.py LineParser.fields: csv.reader raises csv.Error "
-                   "(not BadReply) for a line holding a carriage return, e.g. '85\\r1.5,840'; "
-                   "in the driver it escapes the add_reader callback", strict=False)
 def test_line_parser_carriage_return_in_csv_is_a_bad_reply() -> None:
     with pytest.raises(BadReply):
         _parser("csv", header=False).parse("85\r1.5,840,33,23")
 
 
-@pytest.mark.xfail(reason="drivers/lines.py LineParser.fields: json.loads of a deeply nested "
-                   "line (within MAX_LINE) raises RecursionError, not BadReply", strict=False)
 def test_line_parser_deep_json_is_a_bad_reply() -> None:
     with pytest.raises(BadReply):
         _parser("json", header=False).parse("[" * 4000)
@@ -169,9 +159,6 @@ def test_mqtt_command_payloads_are_allowed_commands_or_refusals(payload: bytes,
     assert len(payload) <= remote.MAX_PAYLOAD
 
 
-@pytest.mark.xfail(reason="tuikiln/alerts/remote.py parse_command: a payload of 4000 '[' "
-                   "(under MAX_PAYLOAD) makes json.loads raise RecursionError, which is not "
-                   "caught", strict=False)
 def test_mqtt_deeply_nested_payload_is_refused() -> None:
     assert isinstance(remote.parse_command(b"[" * 4000), remote.Refusal)
 

@@ -404,9 +404,6 @@ def test_zz_fault_totals(capsys) -> None:
 
 
 
-@pytest.mark.xfail(reason="drivers/lines.py LineThermometer._on_readable: after dropping an "
-                   "overlong line it parses the line's tail (up to the next newline) as a "
-                   "reading", strict=False)
 async def test_tail_of_an_overlong_line_is_not_a_reading(meter) -> None:
     m, device = meter
     await m.feed(b"1," * (MAX_LINE * 4) + b"\n")  # 32 KiB of "1,1,1,..." then a newline

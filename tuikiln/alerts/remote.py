@@ -62,7 +62,8 @@ def parse_command(
         return Refusal("?", f"the message is {len(raw)} bytes; at most {MAX_PAYLOAD} are accepted")
     try:
         data = json.loads(raw.decode("utf-8"))
-    except (UnicodeDecodeError, ValueError):
+    except (UnicodeDecodeError, ValueError, RecursionError):
+        # RecursionError: json recurses once per nested array or object ("[" * 4000)
         return Refusal("?", 'not a JSON object such as {"command": "abort"}')
     if not isinstance(data, dict):
         return Refusal("?", 'not a JSON object such as {"command": "abort"}')

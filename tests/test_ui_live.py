@@ -1,0 +1,151 @@
+"""The live run screen through Textual's Pilot, fed by a real SQLite run log."""
+
+from __future__ import annotations
+
+import re
+from pathlib import Path
+
+from textual.widgets import Input
+
+from tests.test_ui_fakes import ScriptedEngine, screen_text
+from tuikiln.ui.app import TuikilnApp
+from tuikiln.ui.screens.confirm import ConfirmScreen
+from tuikiln.ui.screens.live import LiveScreen
+from tuikiln.ui.screens.note import NoteScreen
+from tuikiln.ui.widgets.alarm_banner import AlarmBanner
+from tuikiln.units import c_to_f
+
+SIZE = (100, 30)
+
+
+def make_app(engine: ScriptedEngine, units: str = "F") -> TuikilnApp:
+    return TuikilnApp(lambda: LiveScreen(engine.link(), poll_s=0.1), units=units)
+
+
+async def settle(pilot, seconds: float = 0.2) -> None:
+    await pilot.pause(seconds)
+
+
+async def test_shows_chart_temperatures_and_step(tmp_path: Path) -> None:
+    engine = ScriptedEngine(tmp_path)
+    engine.advance(1800)  # 30 min at 0.2 °C/s: 380 °C
+    async with make_app(engine).run_test(size=SIZE) as pilot:
+        await settle(pilot, 0.3)
+        text = screen_text(pilot.app.screen)
+        assert f"chamber {c_to_f(engine.chamber_c):.0f} °F" in text
+        assert "heating to 1200 °F at 900°F/h" in text  # the demo profile's first step
+        assert "step 1 of 8: ramp (preheat)" in text
+        assert "━━ chamber" in text and "│ now" in text
+        assert any(0x2800 < ord(ch) <= 0x28FF for ch in text)  # braille dots were drawn
+        assert "next step" in text and "you're needed" in text and "end" in text
+
+
+async def test_alarm_shows_without_colour_and_is_acknowledged(tmp_path: Path) -> None:
+    engine = ScriptedEngine(tmp_path)
+    engine.advance(60)
+    async with make_app(engine).run_test(size=SIZE) as pilot:
+        await settle(pilot)
+        engine.raise_alarm("overshoot", "chamber 1530 °F, 40 °F above the target")
+        await settle(pilot)
+        banner = pilot.app.screen.query_one(AlarmBanner)
+        assert banner.display and banner.has_class("-active")
+        words = str(banner.content)
+        assert "▲ WARNING ALARM: chamber 1530 °F, 40 °F above the target" in words
+        assert "press a to acknowledge" in words
+        await pilot.press("a")
+        await settle(pilot)
+        assert ("ack", None) in engine.commands
+        assert "(seen)" in str(banner.content) and banner.has_class("-seen")
+
+
+async def test_unit_switch_converts_every_value(tmp_path: Path) -> None:
+    engine = ScriptedEngine(tmp_path)
+    engine.advance(1800)
+    engine.raise_alarm("overshoot", "chamber 1530 °F, 40 °F above the target")
+    async with make_app(engine, units="F").run_test(size=SIZE) as pilot:
+        await settle(pilot, 0.3)
+        fahrenheit = screen_text(pilot.app.screen)
+        await pilot.press("u")
+        await settle(pilot)
+        celsius = screen_text(pilot.app.screen)
+    assert "°F" in fahrenheit
+    assert "°F" not in celsius, [line for line in celsius.splitlines() if "°F" in line]
+    # 1530 °F = 832 °C; a 40 °F difference is 22 K (not 4 °C): differences convert as such.
+    assert "chamber 832 °C, 22 °C above the target" in celsius
+    assert f"chamber {engine.chamber_c:.0f} °C" in celsius
+    assert "heating to 649 °C" in celsius  # 1200 °F
+    # The big digits change too.
+    assert re.search(rf"\b{engine.chamber_c:.0f}\b", celsius)
+
+
+async def test_controls_send_commands_and_confirm_first(tmp_path: Path) -> None:
+    engine = ScriptedEngine(tmp_path)
+    engine.advance(60)
+    async with make_app(engine).run_test(size=SIZE) as pilot:
+        await settle(pilot)
+        await pilot.press("p")
+        await settle(pilot)
+        assert engine.commands[-1] == ("pause", None)
+        assert "PAUSED by you" in screen_text(pilot.app.screen)
+        await pilot.press("r")
+        await settle(pilot)
+        assert engine.commands[-1] == ("resume", None)
+        await pilot.press("s")
+        await settle(pilot)
+        assert isinstance(pilot.app.screen, ConfirmScreen)
+        assert "Skip step 1" in screen_text(pilot.app.screen)
+        await pilot.press("n")
+        await settle(pilot)
+        assert engine.commands[-1] == ("resume", None)  # said no: nothing sent
+        await pilot.press("s", "y")
+        await settle(pilot)
+        assert engine.commands[-1] == ("skip", None)
+        await pilot.press("x")
+        await settle(pilot)
+        assert isinstance(pilot.app.screen, ConfirmScreen)
+        await pilot.press("escape")
+        await settle(pilot)
+        assert all(name != "abort" for name, _ in engine.commands)
+        await pilot.press("n")
+        await settle(pilot)
+        assert isinstance(pilot.app.screen, NoteScreen)
+        pilot.app.screen.query_one(Input).value = "into the oil"  # typing is Input's own job
+        await pilot.press("enter")
+        await settle(pilot, 0.3)
+        assert engine.commands[-1] == ("note", "into the oil")
+        assert "into the oil" in screen_text(pilot.app.screen)  # back from the log
+        title = str(pilot.app.screen.query_one("#live-title").content)
+        await pilot.press("z")
+        await settle(pilot)
+        assert "whole run" in title
+        assert "last hour" in str(pilot.app.screen.query_one("#live-title").content)
+
+
+async def test_pause_step_names_the_key(tmp_path: Path) -> None:
+    engine = ScriptedEngine(tmp_path)
+    engine.advance(60)
+    engine.enter_pause()
+    async with make_app(engine).run_test(size=SIZE) as pilot:
+        await settle(pilot)
+        text = screen_text(pilot.app.screen)
+        assert "Quench: oil-quench the blade now, then acknowledge  [press a]" in text
+        assert "you're needed NOW" in text
+        await pilot.press("a")
+        await settle(pilot)
+        assert "cooling with the heater off to 400 °F" in screen_text(pilot.app.screen)
+
+
+async def test_leaving_keeps_the_run_going(tmp_path: Path) -> None:
+    engine = ScriptedEngine(tmp_path)
+    engine.advance(60)
+    app = make_app(engine)
+    async with app.run_test(size=SIZE) as pilot:
+        await settle(pilot)
+        await pilot.press("q")
+        await settle(pilot)
+    assert app.return_value is not None and "tuikiln watch" in app.return_value
+    assert all(name not in ("abort", "pause") for name, _ in engine.commands)
+    # The engine side still answers and the log still grows after the screen is gone.
+    assert (await engine.status())["state"] == "running"
+    engine.advance(10)
+    assert engine.log.sample_count(engine.run_id) == 70

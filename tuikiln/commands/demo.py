@@ -1,0 +1,86 @@
+"""`tuikiln demo`: a whole harden-and-temper cycle on the built-in simulator, sped up.
+
+The simulated oven runs profiles/demo-harden-temper.toml at --speed times real time (a few
+minutes for the whole cycle) in the live screen, in a temporary data folder unless --data
+is given. The quench pause waits for the key `a`; the demo acknowledges it by itself after
+--wait seconds, and says so. Quitting ends the demo's simulated run.
+"""
+
+from __future__ import annotations
+
+import argparse
+import asyncio
+import shutil
+import tempfile
+from dataclasses import replace
+from pathlib import Path
+
+from tuikiln.errors import UserError
+from tuikiln.kiln import Kiln
+from tuikiln.profile import load_profile
+
+HELP = "watch a whole harden-and-temper cycle on the built-in simulator, sped up"
+DEMO_PROFILE = Path(__file__).resolve().parents[2] / "profiles" / "demo-harden-temper.toml"
+DEFAULT_SPEED = 120.0
+
+
+def add_arguments(parser: argparse.ArgumentParser) -> None:
+    parser.add_argument("--speed", type=float, default=DEFAULT_SPEED, metavar="N",
+                        help=f"simulated seconds per real second (default {DEFAULT_SPEED:g})")
+    parser.add_argument("--profile", metavar="FILE", default=str(DEMO_PROFILE),
+                        help="run another profile in the demo (default: the demo profile)")
+    parser.add_argument("--wait", type=float, default=20.0, metavar="SECONDS",
+                        help="acknowledge the quench pause by itself after this many real "
+                        "seconds (default 20; 0: wait for the key)")
+    parser.add_argument("--units", type=str.upper, choices=("C", "F"),
+                        help="show temperatures in C or F (default: the profile's)")
+    parser.add_argument("--no-bell", action="store_true", help="do not ring the bell")
+
+
+def run(args: argparse.Namespace) -> int:
+    if not args.speed > 0:
+        raise UserError(f"--speed must be more than 0, not {args.speed:g}")
+    profile = load_profile(args.profile)
+    kiln = Kiln(name="Demo oven (simulated)", units=profile.units,
+                device={"kind": "sim", "speed": args.speed})
+    kiln = replace(kiln, text=f'name = "{kiln.name}"\n[device]\nkind = "sim"\n')
+    temporary = args.data is None
+    data_dir = Path(args.data) if args.data else Path(tempfile.mkdtemp(prefix="tuikiln-demo-"))
+    try:
+        words = asyncio.run(demo(kiln, profile, data_dir, args))
+    finally:
+        if temporary:
+            shutil.rmtree(data_dir, ignore_errors=True)
+    if words:
+        print(words)
+    return 0
+
+
+async def demo(kiln: Kiln, profile, data_dir: Path, args: argparse.Namespace) -> str:
+    from tuikiln.ui.app import TuikilnApp
+    from tuikiln.ui.inprocess import EngineControl, build_engine, run_engine, wait_for_run_id
+    from tuikiln.ui.loglink import LogLink
+    from tuikiln.ui.screens.live import LiveScreen
+
+    engine = build_engine(kiln, profile, data_dir, args.speed)
+    task = asyncio.create_task(run_engine(engine))
+    try:
+        run_id = await wait_for_run_id(engine, task)
+        link = LogLink(data_dir, run_id, control=EngineControl(engine))
+        wait = args.wait if args.wait > 0 else None
+        app = TuikilnApp(
+            lambda: LiveScreen(
+                link, poll_s=0.5, auto_acknowledge_s=wait,
+                title=f"tuikiln demo · simulated oven at {args.speed:g}× speed",
+                leave_words="The demo's simulated run has ended. Start your own with "
+                "`tuikiln home`, or run the demo again with `tuikiln demo`."),
+            units=args.units or profile.units, bell=not args.no_bell)
+        words = await app.run_async()
+    finally:
+        if not task.done():
+            engine.request_stop("stopped-by-signal", "the demo was closed")
+            try:
+                await asyncio.wait_for(task, 5.0)
+            except (TimeoutError, asyncio.CancelledError, Exception):
+                task.cancel()
+    return words or ""

@@ -1,0 +1,27 @@
+"""`tuikiln home`: the kiln and its device, the profiles, the recent runs; start, watch,
+or look back at a run from one screen."""
+
+from __future__ import annotations
+
+import argparse
+
+HELP = "the home screen: kiln, profiles and recent runs; start, watch or replay a run"
+
+
+def add_arguments(parser: argparse.ArgumentParser) -> None:
+    parser.add_argument("--units", type=str.upper, choices=("C", "F"),
+                        help="show temperatures in C or F (default: the kiln's)")
+
+
+def run(args: argparse.Namespace) -> int:
+    from tuikiln.ui.app import TuikilnApp
+    from tuikiln.ui.launcher import Launcher
+    from tuikiln.ui.screens.home import HomeScreen
+
+    launcher = Launcher(args.data, args.kiln)
+    app = TuikilnApp(lambda: HomeScreen(launcher), units=args.units or launcher.kiln.units,
+                     bell=launcher.kiln.bell)
+    words = app.run()
+    if words:
+        print(words)
+    return 0

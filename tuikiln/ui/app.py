@@ -1,0 +1,41 @@
+"""The Textual app: holds what every screen shares (units on show, the bell) and opens the
+first screen the command asked for."""
+
+from __future__ import annotations
+
+from collections.abc import Callable
+
+from textual.app import App
+from textual.reactive import reactive
+from textual.screen import Screen
+
+from tuikiln.units import Units
+
+
+class TuikilnApp(App[str]):
+    """Runs one first screen; `leave(words)` goes back a screen or ends with those words."""
+
+    CSS_PATH = "app.tcss"
+    TITLE = "tuikiln"
+    ENABLE_COMMAND_PALETTE = False
+
+    units: reactive[Units] = reactive("C")
+    """Units every screen shows temperatures in (u switches °C/°F)."""
+
+    def __init__(self, first_screen: Callable[[], Screen], *, units: Units = "C",
+                 bell: bool = True) -> None:
+        super().__init__()
+        self.first_screen = first_screen
+        self.bell_on = bell
+        self.set_reactive(TuikilnApp.units, units)
+
+    def on_mount(self) -> None:
+        self.push_screen(self.first_screen())
+
+    def leave(self, words: str) -> None:
+        """Leave the current screen: back to the one below, or out of the app."""
+        if len(self.screen_stack) > 2:
+            self.pop_screen()
+            self.notify(words, timeout=6)
+        else:
+            self.exit(words)

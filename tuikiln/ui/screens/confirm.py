@@ -1,0 +1,43 @@
+"""Ask before something that cannot be undone (skip a step, abort a run, start a run)."""
+
+from __future__ import annotations
+
+from textual.app import ComposeResult
+from textual.binding import Binding
+from textual.containers import Vertical
+from textual.screen import ModalScreen
+from textual.widgets import Static
+
+
+class ConfirmScreen(ModalScreen[bool]):
+    """A question answered with y (yes) or n / Escape (no)."""
+
+    DEFAULT_CSS = """
+    ConfirmScreen { align: center middle; }
+    ConfirmScreen > Vertical {
+        width: 70; max-width: 95%; height: auto; max-height: 90%;
+        border: thick $warning; background: $surface; padding: 1 2;
+    }
+    ConfirmScreen #confirm-keys { margin-top: 1; text-style: bold; }
+    """
+
+    BINDINGS = [
+        Binding("y", "answer(True)", "Yes"),
+        Binding("n,escape", "answer(False)", "No"),
+    ]
+
+    def __init__(self, question: str, details: str = "", yes: str = "yes") -> None:
+        super().__init__()
+        self.question = question
+        self.details = details
+        self.yes = yes
+
+    def compose(self) -> ComposeResult:
+        with Vertical():
+            yield Static(self.question, id="confirm-question")
+            if self.details:
+                yield Static(self.details, id="confirm-details", markup=False)
+            yield Static(f"[y] {self.yes}    [n] no, go back", id="confirm-keys", markup=False)
+
+    def action_answer(self, answer: bool) -> None:
+        self.dismiss(answer)

@@ -1,0 +1,137 @@
+"""A profile before it runs: the planned curve, the step table, the total time, the clock
+time it would end if started now, open-ended steps marked; or its mistakes, with lines."""
+
+from __future__ import annotations
+
+import time
+from collections.abc import Callable
+from pathlib import Path
+
+from rich.text import Text
+from textual.app import ComposeResult
+from textual.binding import Binding
+from textual.containers import Vertical
+from textual.screen import Screen
+from textual.widgets import DataTable, Footer, Static
+
+from tuikiln.errors import FileProblems, UserError
+from tuikiln.plan import Plan, plan_profile
+from tuikiln.profile import describe_step, load_profile
+from tuikiln.ui.chartdata import preview_chart
+from tuikiln.ui.screens.confirm import ConfirmScreen
+from tuikiln.ui.screens.help import SAFETY, HelpScreen
+from tuikiln.ui.widgets.chart import TemperatureChart
+from tuikiln.units import format_duration, format_temp
+
+ABOUT = ("A profile before it runs. Steps marked … are open-ended: their length is known "
+         "only at run time (a 'max' ramp, waiting for the load to even out, a free cool, a "
+         "pause for you), so the total and the end time are the earliest they can be.")
+OPEN_MARK = "…"
+
+
+def summary_text(plan: Plan, units: str, now: float) -> Text:
+    """Total, end clock time if started now, peak, and what 'open-ended' means here."""
+    text = Text()
+    total = format_duration(plan.total_s)
+    end = time.strftime("%a %H:%M", time.localtime(now + plan.total_s))
+    at_least = "at least " if plan.open_ended else ""
+    text.append(f"total {at_least}{total} · ends {at_least.strip() or 'at'} {end} if started "
+                f"now · peak {format_temp(plan.peak_c, units)}", style="bold")
+    if plan.open_ended:
+        count = sum(1 for s in plan.steps if s.open_ended)
+        text.append(f"\n{OPEN_MARK} {count} open-ended step(s): counted at their shortest.")
+    load = plan.profile.load
+    if load.material or load.thickness_text:
+        text.append(f"\nload: {load.material or '?'}, {load.thickness_text or '?'} thick")
+    return text
+
+
+class PreviewScreen(Screen[None]):
+    """Opened from home on a profile; s starts it (after a summary and a yes)."""
+
+    BINDINGS = [
+        Binding("s", "start", "Start this run"),
+        Binding("u", "switch_units", "°C/°F"),
+        Binding("question_mark,f1", "help", "Help"),
+        Binding("escape,q", "back", "Back"),
+    ]
+
+    def __init__(self, path: str | Path, *, max_c: float | None = None,
+                 start: Callable[[str], None] | None = None) -> None:
+        super().__init__()
+        self.path = str(path)
+        self.max_c = max_c
+        self.start = start
+        self.plan: Plan | None = None
+        self.problems: list[str] = []
+        try:
+            self.plan = plan_profile(load_profile(self.path, max_c=max_c))
+        except FileProblems as exc:
+            self.problems = [str(p) for p in exc.problems]
+        except UserError as exc:
+            self.problems = [str(exc)]
+
+    def compose(self) -> ComposeResult:
+        yield Static("", id="preview-title")
+        with Vertical(id="preview-main"):
+            if self.plan is None:
+                yield Static("", id="preview-problems")
+            else:
+                yield TemperatureChart(id="preview-chart")
+                yield Static("", id="preview-summary")
+                yield DataTable(id="preview-steps", cursor_type="row", zebra_stripes=True)
+        yield Footer()
+
+    def on_mount(self) -> None:
+        self.watch(self.app, "units", self.show, init=True)
+
+    def show(self, _units: str | None = None) -> None:
+        units = self.app.units
+        title = self.query_one("#preview-title", Static)
+        if self.plan is None:
+            title.update(f"Profile {Path(self.path).name}: it has mistakes")
+            text = Text(f"{len(self.problems)} mistake(s) to fix before it can run:\n\n")
+            for line in self.problems:
+                text.append(f"✖ {line}\n")
+            self.query_one("#preview-problems", Static).update(text)
+            return
+        plan = self.plan
+        title.update(f"Profile: {plan.profile.name}  ({self.path})")
+        self.query_one(TemperatureChart).spec = preview_chart(plan, units)
+        self.query_one("#preview-summary", Static).update(
+            summary_text(plan, units, time.time()))
+        table = self.query_one(DataTable)
+        table.clear(columns=True)
+        table.add_columns("#", "step", "from", "to", "starts", "length")
+        for step in plan.steps:
+            mark = f" {OPEN_MARK}" if step.open_ended else ""
+            length = ("until you acknowledge" if step.kind == "pause" else
+                      f"{format_duration(step.duration_s)}{mark}")
+            table.add_row(str(step.index + 1), describe_step(step.step, units),
+                          format_temp(step.from_c, units), format_temp(step.to_c, units),
+                          f"+{format_duration(step.start_s)}", length)
+
+    def action_start(self) -> None:
+        if self.plan is None:
+            self.notify("This profile has mistakes: fix them first.", severity="error")
+            return
+        if self.start is None:
+            self.notify("Starting runs is not available here.", severity="warning")
+            return
+        units = self.app.units
+        details = summary_text(self.plan, units, time.time()).plain + "\n\n" + "\n".join(
+            f"{s.index + 1}. {describe_step(s.step, units)}" for s in self.plan.steps
+        ) + f"\n\n{SAFETY}"
+        path, start = self.path, self.start
+        self.app.push_screen(
+            ConfirmScreen(f"Start “{self.plan.profile.name}” now?", details, yes="start it"),
+            lambda yes: start(path) if yes else None)
+
+    def action_switch_units(self) -> None:
+        self.app.units = "F" if self.app.units == "C" else "C"
+
+    def action_help(self) -> None:
+        self.app.push_screen(HelpScreen(self, ABOUT))
+
+    def action_back(self) -> None:
+        self.app.pop_screen() if len(self.app.screen_stack) > 2 else self.app.exit("")

@@ -1,0 +1,70 @@
+"""The run's event log: steps, alarms, notes, commands, newest at the bottom."""
+
+from __future__ import annotations
+
+import time
+from collections.abc import Mapping, Sequence
+from typing import Any
+
+from rich.text import Text
+from textual.reactive import reactive
+from textual.widgets import RichLog
+
+from tuikiln.ui.runfeed import convert_temperatures
+from tuikiln.units import Units
+
+SEVERITY_MARK = {"critical": "✖", "warning": "▲", "info": "·"}
+KIND_MARK = {"note": "✎", "operator-needed": "☛", "step-start": "▶", "run-end": "■"}
+
+
+def event_line(event: Mapping[str, Any], units: Units, started: float | None) -> Text:
+    """'+1h05 ▶ step 3: heat as fast as the oven goes to 1490 °F'."""
+    when = float(event.get("time") or 0.0)
+    if started is not None:
+        minutes = int(max(0.0, when - started) // 60)
+        stamp = f"+{minutes // 60}h{minutes % 60:02d}"
+    else:
+        stamp = time.strftime("%H:%M", time.localtime(when))
+    severity = str(event.get("severity") or "info")
+    kind = str(event.get("kind") or "")
+    mark = KIND_MARK.get(kind, SEVERITY_MARK.get(severity, "·"))
+    if severity in ("warning", "critical"):
+        mark = SEVERITY_MARK[severity]
+    style = {"critical": "bold reverse", "warning": "bold"}.get(severity, "")
+    text = Text(f"{stamp:>6} {mark} ", style="dim")
+    text.append(convert_temperatures(str(event.get("message") or kind), units), style=style)
+    return text
+
+
+class EventLog(RichLog):
+    """Holds the events it was given and redraws them all when the units change."""
+
+    DEFAULT_CSS = """
+    EventLog {
+        height: 6;
+        border-top: solid $primary 50%;
+        scrollbar-size-vertical: 1;
+    }
+    """
+
+    units: reactive[Units] = reactive("C")
+    """Units the temperatures in the messages are shown in."""
+
+    def __init__(self, *, id: str | None = None, started: float | None = None) -> None:
+        super().__init__(id=id, wrap=True, markup=False, auto_scroll=True, max_lines=2000)
+        self.started = started
+        self._events: list[Mapping[str, Any]] = []
+
+    def add_events(self, events: Sequence[Mapping[str, Any]]) -> None:
+        for event in events:
+            self._events.append(event)
+            self.write(event_line(event, self.units, self.started))
+
+    def watch_units(self) -> None:
+        self.clear()
+        for event in self._events[-2000:]:
+            self.write(event_line(event, self.units, self.started))
+
+    @property
+    def lines_text(self) -> list[str]:
+        return [event_line(e, self.units, self.started).plain for e in self._events]
