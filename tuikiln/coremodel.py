@@ -17,7 +17,13 @@ one that starts late only costs time, so the model takes values below half the t
 (emissivity 0.35 against a typical 0.8 for oxidised steel; h 4 W/(m^2 K) against a typical
 10 for still oven air: both typical values from memory, Incropera Table A.11 and Ch. 9), and
 ignores the heat taken in through the plate's edges. The estimate therefore lags a real load
-whose values are anywhere from half to twice the typical ones.
+whose values are anywhere from half to twice the typical ones (tests/bench/equalize.py checks
+this against the simulator's layered plate).
+
+Shapes: a round bar whose diameter is given as the thickness is estimated as a plate of that
+thickness (Lc = D/2 instead of the cylinder's D/4): slower, the safe side. Pieces shading
+each other in a crowded oven heat more slowly than one alone, which the factor-two margin
+covers only in part: give each its room, or use a load thermocouple.
 """
 
 from __future__ import annotations
@@ -32,8 +38,8 @@ KELVIN = 273.15
 
 TYPICAL_EMISSIVITY = 0.8  # oxidised steel, from memory (Incropera Table A.11: 0.79 at 800 K)
 TYPICAL_H_W_M2K = 10.0  # still air in a small oven, free convection; from memory
-SLOW_EMISSIVITY = 0.35  # below half the typical: the model must never run ahead of the load
-SLOW_H_W_M2K = 4.0
+SLOW_EMISSIVITY = 0.4  # half the typical: the model must never run ahead of the load
+SLOW_H_W_M2K = 5.0
 DEFAULT_THICKNESS_M = 0.025
 """With no thickness given, assume a thick part (25 mm): slow, so never early."""
 BIOT_LUMPED_LIMIT = 0.1
@@ -99,9 +105,9 @@ class LoadModel:
             parts.append(f"thin section (Biot number {self.biot:.2f} < 0.1): the core keeps "
                          "up with the surface")
         else:
-            parts.append(f"thick section (Biot number {self.biot:.2f}): the core lags the "
-                         f"surface; the estimate adds a conduction delay of "
-                         f"{self.conduction_lag_s:.0f} s")
+            parts.append(f"thick section: the core lags the surface; the estimate adds a "
+                         f"conduction delay (Biot number {self.biot:.2f} >= 0.1, delay "
+                         f"{self.conduction_lag_s:.0f} s)")
         parts.append("estimated on the slow side from the chamber temperature; a thermocouple "
                      "on the load is better")
         return "; ".join(parts)

@@ -3,14 +3,21 @@
 
 The watched temperature is the load thermocouple when the device has one, otherwise the
 slow-side core estimate of tuikiln.coremodel driven by the chamber thermocouple. The load
-counts as *even* when, for `confirm_s` on end,
+counts as *even* once the following have held together for `confirm_s`:
 
-* its smoothed temperature is inside the hold's band, less a margin for noise and for
-  whole-degree readings, and
-* the least-squares slope over the last `window_s` is below the limit.
-
-The smoothed temperature is the mean of the last stretch of readings: it lags the readings,
-so on the way into the band it reads farther out than the load, which errs on the late side.
+* In the band: a mean of the newest readings (30, 60 or 120 s of them) lies inside the
+  hold's band by a margin: three standard errors of that mean, half a reading step when
+  the noise is too small to smear whole-degree steps out, and for a thermocouple on the
+  surface moving toward the target, the lead of the surface over the core, slope * L^2/(2
+  alpha) (L half the thickness: the quasi-steady slab heated at a steady rate, Incropera &
+  DeWitt Ch. 5 / Carslaw & Jaeger Sec. 3.3). A mean lags the readings, so on the way in it
+  reads farther out than the load: the late, safe side.
+* Staying there: at the least-squares slope over the last `window_s` (O(1) per sample) the
+  load would not cross out of the band within half a window, and it is either closing in
+  on the target, or moving away no faster than the slope limit, or (when the chamber is
+  watched too) the chamber is itself settled in the band: a load heated by a chamber that
+  stays in the band cannot leave it.
+* The chamber, when given, is in the band (an overshooting chamber drags the load out).
 
 While the load approaches, the remaining distance to the target is fitted with a first-order
 exponential (log-linear weighted least squares of target - T over a sliding window, O(1) per
@@ -19,6 +26,7 @@ of an hour per inch of thickness.
 
 Replaying a logged run through `detect_over` gives the same decisions as the live run, because
 it is the same code fed the same samples. Never reads a clock: `now` is always an argument.
+Benchmark against the simulator's true core: tests/bench/equalize.py.
 """
 
 from __future__ import annotations
@@ -30,7 +38,7 @@ from dataclasses import dataclass
 
 from tuikiln.coremodel import LoadModel
 from tuikiln.equalize_slope import SlopeWindow
-from tuikiln.materials import STEELS, steel_for
+from tuikiln.materials import STEELS
 from tuikiln.units import Units, delta_from_c, format_duration, format_temp, symbol
 
 __all__ = [
@@ -57,7 +65,8 @@ LOAD_TC = "load thermocouple"
 CORE_ESTIMATE = "core estimate"
 
 SMOOTH_S = 30.0
-"""The band test uses the mean of this much of the newest readings."""
+"""The band test uses means of this much of the newest readings, and of two and four times
+as much (up to the slope window)."""
 NOISE_SIGMAS = 3.0
 """Margin inside the band: this many standard errors of that mean."""
 SLOWEST_DIFFUSIVITY = min(steel.diffusivity_m2_s for steel in STEELS.values())
