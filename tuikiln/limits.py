@@ -41,7 +41,8 @@ LIMIT_KEYS: tuple[LimitKey, ...] = (
     LimitKey("pause_remind", "duration", 300.0, "repeat the operator alert this often"),
     LimitKey("pause_too_long", "duration", 3600.0, "a run paused longer than this alerts"),
     LimitKey("equalize_window", "duration", 120.0, "slope is fitted over this window"),
-    LimitKey("equalize_slope", "slope", 0.5, "slope below this (degrees/min) counts as level"),
+    LimitKey("equalize_slope", "slope", 0.5,
+             "moving away from the target slower than this (degrees/min) counts as level"),
     LimitKey("equalize_confirm", "duration", 10.0, "level and in band for this long: equalized"),
 )
 LIMIT_NAMES = tuple(key.name for key in LIMIT_KEYS)
