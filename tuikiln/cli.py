@@ -40,6 +40,7 @@ COMMANDS: dict[str, str] = {
     "replay": "tuikiln.commands.replay",
     "report": "tuikiln.commands.replay",
     "import": "tuikiln.commands.replay",
+    "service": "tuikiln.commands.service",
 }
 
 # Shown in `tuikiln --help`; the modules' HELP lines are read lazily.
@@ -67,6 +68,7 @@ COMMAND_HELP: dict[str, str] = {
     "replay": "hold a logged run against its profile: verdict per step, alarms, what-if",
     "report": "write a run's report as HTML (with its chart) or Markdown (.md)",
     "import": "replay another tool's CSV temperature log against a profile",
+    "service": "print a systemd unit that resumes unfinished runs at boot and after a crash",
 }
 
 

@@ -12,6 +12,18 @@ transaction at least once a second of wall time (or every `batch` samples, for s
 runs faster than real time), so a kill loses at most about a second. Readers use their own
 connections; WAL keeps them from blocking the writer and the writer from blocking them.
 
+Commits stay short: the writer never copies the WAL back into the database itself (SQLite's
+automatic checkpoint would land, every thousand pages, inside one unlucky commit); a small
+thread with its own connection does it beside the engine (`_WalCheckpointer`). The writer
+commits with `synchronous=FULL`, so a committed second survives a power cut of the whole
+machine, not only a killed process.
+
+Restart recovery: with every commit the engine's resume point (which step, its state, the
+hold clock; `RunRecorder.resume_point`) replaces the run's row in `resume_points`, in the
+same transaction as the samples it belongs to. A restarted engine reads it back
+(`RunLog.resume_point`) and appends to the same run (`RunLog.resume_run`), so replay sees one
+run with a GAP event where the engine was away.
+
 When a write fails (disk full, file made read-only) nothing is lost from memory: the
 recorder keeps the rows, sets `trouble` to the reason (the engine raises an alarm) and tries
 again a few seconds later. The run goes on.
@@ -33,7 +45,7 @@ import json
 import os
 import sqlite3
 import time
-from collections.abc import Mapping
+from collections.abc import Callable, Mapping
 from dataclasses import dataclass
 from pathlib import Path
 from typing import Any
@@ -111,7 +123,14 @@ CREATE TABLE IF NOT EXISTS events (
     detail TEXT
 );
 CREATE INDEX IF NOT EXISTS events_run ON events (run_id, id);
+CREATE TABLE IF NOT EXISTS resume_points (
+    run_id INTEGER PRIMARY KEY,
+    t REAL NOT NULL,
+    data TEXT NOT NULL
+);
 """
+CHECKPOINT_EVERY_ROWS = 20_000  # about 2-4 MB of WAL: copied back by the side thread
+CHECKPOINT_EVERY_S = 30.0
 
 
 def default_data_dir(data: str | None = None) -> Path:
@@ -169,11 +188,17 @@ def _pid_alive(pid: int) -> bool:
     return True
 
 
-def _connect(path: Path) -> sqlite3.Connection:
+def _connect(path: Path, *, writer: bool = False) -> sqlite3.Connection:
     conn = sqlite3.connect(str(path), timeout=10.0, isolation_level=None,
                            check_same_thread=False)
     conn.execute("PRAGMA journal_mode=WAL")
-    conn.execute("PRAGMA synchronous=NORMAL")  # WAL + NORMAL: durable at checkpoints, fast
+    if writer:
+        # FULL: the WAL is synced at every commit, so a power cut loses at most the second
+        # not yet committed. No automatic checkpoint: _WalCheckpointer does it off the loop.
+        conn.execute("PRAGMA synchronous=FULL")
+        conn.execute("PRAGMA wal_autocheckpoint=0")
+    else:
+        conn.execute("PRAGMA synchronous=NORMAL")
     conn.execute("PRAGMA busy_timeout=10000")
     return conn
 
@@ -243,6 +268,34 @@ class RunLog:
                 out = {name: array[keep] for name, array in out.items()}
         return out
 
+    def last_sample(self, run_id: int) -> dict[str, Any] | None:
+        """The run's newest committed sample (time and readings), or None."""
+        row = self._conn.execute(
+            "SELECT t, chamber_c, load_c, setpoint_c, step, state FROM samples "
+            "WHERE run_id = ? ORDER BY t DESC LIMIT 1", (run_id,)).fetchone()
+        if row is None:
+            return None
+        return {"t": row[0], "chamber_c": row[1], "load_c": row[2], "setpoint_c": row[3],
+                "step": row[4], "state": row[5]}
+
+    def resume_point(self, run_id: int) -> dict[str, Any] | None:
+        """The engine's last committed resume point for the run (see RunRecorder)."""
+        row = self._conn.execute("SELECT t, data FROM resume_points WHERE run_id = ?",
+                                 (run_id,)).fetchone()
+        if row is None:
+            return None
+        data = json.loads(row[1])
+        data["t"] = row[0]
+        return data
+
+    def unfinished_runs(self, kiln: str | None = None) -> list[RunInfo]:
+        """Runs with no end whose engine process is dead (killed, power cut), newest last."""
+        where = "outcome IS NULL" + (" AND kiln = ?" if kiln is not None else "")
+        params = (kiln,) if kiln is not None else ()
+        rows = self._conn.execute(f"SELECT {_RUN_FIELDS} FROM runs WHERE {where} ORDER BY id",
+                                  params).fetchall()
+        return [info for info in map(_run_info, rows) if info.status == "unfinished"]
+
     def events(self, run_id: int, after_id: int = 0) -> list[dict[str, Any]]:
         rows = self._conn.execute(
             "SELECT id, t, kind, severity, message, detail FROM events "
@@ -266,9 +319,9 @@ class RunLog:
         device: str = "",
         speed: str = "",
         watch_only: bool = False,
-        batch: int = 1000,
+        batch: int = 250,
     ) -> RunRecorder:
-        conn = _connect(self.path)
+        conn = _connect(self.path, writer=True)
         cursor = conn.execute(
             "INSERT INTO runs (kiln, profile, profile_path, profile_text, kiln_text, load_json,"
             " units, device, speed, watch_only, started, wall_started, pid)"
@@ -277,7 +330,13 @@ class RunLog:
              json.dumps(dict(load)) if load is not None else None, units, device, speed,
              int(watch_only), started, time.time(), os.getpid()))
         run_id = int(cursor.lastrowid or 0)
-        return RunRecorder(conn, run_id, batch=batch)
+        return RunRecorder(conn, run_id, batch=batch, path=self.path)
+
+    def resume_run(self, run_id: int, *, batch: int = 250) -> RunRecorder:
+        """A writer that appends to an unfinished run (after a crash or power cut)."""
+        conn = _connect(self.path, writer=True)
+        conn.execute("UPDATE runs SET pid = ? WHERE id = ?", (os.getpid(), run_id))
+        return RunRecorder(conn, run_id, batch=batch, path=self.path)
 
 
 _RUN_FIELDS = ("id, kiln, profile, started, ended, outcome, units, device, speed, watch_only,"
@@ -315,12 +374,57 @@ def _unpack_block(n: int, data: bytes) -> dict[str, np.ndarray]:
     return out
 
 
+class _WalCheckpointer:
+    """Copies the WAL back into the database from a thread of its own (own connection), so
+    no commit of the engine's ever carries that cost. PASSIVE: it never blocks the writer."""
+
+    def __init__(self, path: Path) -> None:
+        import threading
+
+        self.path = path
+        self._wake = threading.Event()
+        self._stop = False
+        self.done = 0
+        self._thread = threading.Thread(target=self._run, name="wal-checkpoint", daemon=True)
+        self._thread.start()
+
+    def nudge(self) -> None:
+        self._wake.set()
+
+    def _run(self) -> None:
+        try:
+            conn = sqlite3.connect(str(self.path), timeout=1.0, isolation_level=None)
+        except sqlite3.Error:
+            return
+        try:
+            while not self._stop:
+                self._wake.wait(CHECKPOINT_EVERY_S)
+                self._wake.clear()
+                try:
+                    conn.execute("PRAGMA wal_checkpoint(PASSIVE)").fetchall()
+                    self.done += 1
+                except sqlite3.Error:
+                    pass  # busy or the disk is full: the next turn tries again
+        finally:
+            conn.close()
+
+    def stop(self) -> None:
+        self._stop = True
+        self._wake.set()
+        self._thread.join(timeout=5.0)
+
+
 class RunRecorder:
     """Buffered writer for one run. Never raises from `sample`, `event` or `flush`."""
 
-    def __init__(self, conn: sqlite3.Connection, run_id: int, *, batch: int = 1000,
-                 every_s: float = 1.0) -> None:
+    def __init__(self, conn: sqlite3.Connection, run_id: int, *, batch: int = 250,
+                 every_s: float = 1.0, path: Path | None = None) -> None:
         self.conn = conn
+        self._checkpointer = _WalCheckpointer(path) if path is not None else None
+        self._rows_since_checkpoint = 0
+        self._resume_point: tuple[float, str] | None = None
+        self.resume_source: Callable[[], tuple[float, Mapping[str, Any]]] | None = None
+        """Called at each commit for the run's resume point (the engine sets it)."""
         self.run_id = run_id
         self.batch = batch
         self.every_s = every_s
@@ -362,13 +466,20 @@ class RunRecorder:
         if urgent or event.severity == "critical":
             self.flush()
 
+    def resume_point(self, t: float, state: Mapping[str, Any]) -> None:
+        """What a restarted engine needs to carry on (written with the next commit)."""
+        self._resume_point = (t, json.dumps(dict(state), default=str))
+
     def maybe_flush(self) -> None:
+        """Commit when `every_s` of wall time has passed since the last commit. The engine
+        calls this every tick; a real-time run (one tick a second) commits every tick."""
         if time.monotonic() - self._last_flush >= self.every_s:
             self.flush()
 
     def flush(self, force: bool = False) -> bool:
         """Write what is kept; False (and `trouble` set) when the write failed."""
-        if self._closed or (not self._samples and not self._events):
+        if self._closed or (not self._samples and not self._events
+                            and self._resume_point is None):
             self._last_flush = time.monotonic()
             return True
         start = time.monotonic()
@@ -386,7 +497,16 @@ class RunRecorder:
                 self.conn.executemany(
                     "INSERT INTO events (run_id, t, kind, severity, message, detail)"
                     " VALUES (?, ?, ?, ?, ?, ?)", self._events)
+            if self.resume_source is not None:
+                t, state = self.resume_source()
+                self._resume_point = (t, json.dumps(dict(state), default=str))
+            point = self._resume_point
+            if point is not None:
+                self.conn.execute("INSERT OR REPLACE INTO resume_points (run_id, t, data)"
+                                  " VALUES (?, ?, ?)", (self.run_id, *point))
             self.conn.execute("COMMIT")
+            if point is self._resume_point:
+                self._resume_point = None
             if self._samples:
                 self._block, self._block_id = block, block_id
         except sqlite3.Error as exc:
@@ -407,6 +527,10 @@ class RunRecorder:
         self.longest_commit_s = max(self.longest_commit_s, elapsed)
         self.samples_written += len(self._samples)
         self.events_written += len(self._events)
+        self._rows_since_checkpoint += len(self._samples)
+        if self._checkpointer is not None and self._rows_since_checkpoint >= CHECKPOINT_EVERY_ROWS:
+            self._rows_since_checkpoint = 0
+            self._checkpointer.nudge()
         self._samples.clear()
         self._events.clear()
         self.trouble = None
@@ -452,6 +576,8 @@ class RunRecorder:
         if not self._closed:
             self.flush(force=True)
             self._closed = True
+            if self._checkpointer is not None:
+                self._checkpointer.stop()
             try:
                 self.conn.close()
             except sqlite3.Error:

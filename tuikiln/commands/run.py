@@ -9,6 +9,16 @@ returns once the run is up. Watch it with `tuikiln status`, steer it with `tuiki
 Exit status of a headless run (documented in `tuikiln run --help`):
 0 completed, 1 a mistake in the files or options, 2 aborted or stopped by a signal,
 3 stopped by an alarm, 4 unable to start (device not reachable, kiln busy), 5 engine failure.
+
+`--resume` carries on the kiln's unfinished run (its engine was killed, the power was cut,
+the machine rebooted) per the kiln file's `on_restart` (tuikiln/engine/recovery.py), in the
+same run of the log. With no unfinished run it starts PROFILE if one is given, else says
+there is nothing to resume and exits 0: `tuikiln run --resume --headless` is what a service
+runs at boot. A resumed run that ends per `on_restart = "end"` exits 2.
+
+Under a service manager (systemd sets INVOCATION_ID) SIGTERM drives the device safe and
+leaves the run unfinished, so a reboot or `systemctl stop` is carried on at the next start;
+elsewhere SIGTERM, SIGHUP and Ctrl-C end the run.
 """
 
 from __future__ import annotations
@@ -42,7 +52,12 @@ class CannotStart(UserError):
 
 
 def add_arguments(parser: argparse.ArgumentParser) -> None:
-    parser.add_argument("profile", metavar="PROFILE", help="the profile file (TOML)")
+    parser.add_argument("profile", metavar="PROFILE", nargs="?", default=None,
+                        help="the profile file (TOML); optional with --resume")
+    parser.add_argument("--resume", action="store_true",
+                        help="carry on the kiln's unfinished run (after a crash, power cut or "
+                        "reboot) as the kiln file's on_restart says; with none, start PROFILE "
+                        "or exit 0")
     parser.add_argument("--speed", metavar="N|max", default=None,
                         help="simulator only: run N times faster than real time, or as fast "
                         "as it goes (max)")
@@ -94,11 +109,59 @@ def _prepare(args: argparse.Namespace) -> tuple[Any, Any, float | None, int]:
     return kiln, profile, speed, start_index
 
 
+def _prepare_resume(args: argparse.Namespace, data_dir: Path) -> tuple[Any, Any, Any] | None:
+    """(kiln, profile, ResumePlan) for the kiln's unfinished run, or None when there is none."""
+    from tuikiln.engine.recovery import find_unfinished, plan_resume
+    from tuikiln.errors import FileProblems
+    from tuikiln.kiln import load_kiln
+    from tuikiln.profile import parse_profile
+    from tuikiln.runlog import RUNLOG_NAME, RunLog
+
+    if args.from_step is not None:
+        raise UserError("--from and --resume do not go together: a resumed run carries on "
+                        "where it was")
+    kiln = load_kiln(args.kiln)
+    if not (data_dir / RUNLOG_NAME).exists():
+        return None
+    runlog = RunLog.in_folder(data_dir)
+    try:
+        info = find_unfinished(runlog, kiln.name)
+        if info is None:
+            return None
+        where = info.profile_path or f"run {info.id}'s profile"
+        try:
+            profile = parse_profile(info.profile_text, where, max_c=kiln.max_c)
+        except FileProblems as exc:
+            raise UserError(f"run {info.id} cannot be carried on: its logged profile no longer "
+                            f"checks ({exc}). End it with `tuikiln run --resume` after setting "
+                            'on_restart = "end", or start a new run') from None
+        return kiln, profile, plan_resume(runlog, info, kiln.on_restart, now=time.time())
+    finally:
+        runlog.close()
+
+
 def run(args: argparse.Namespace) -> int:
     from tuikiln.runlog import default_data_dir
 
-    kiln, profile, speed, start_index = _prepare(args)
     data_dir = default_data_dir(args.data)
+    if args.resume:
+        prepared = _prepare_resume(args, data_dir)
+        if prepared is not None:
+            kiln, profile, plan = prepared
+            speed = parse_speed(args.speed, kiln.is_simulator)
+            if args.headless:
+                return asyncio.run(run_headless(kiln, profile, data_dir, speed=speed,
+                                                auto_continue=args.auto_continue,
+                                                speed_text=args.speed or "", resume=plan))
+            return start_background(args, kiln, profile, data_dir)
+        if args.profile is None:
+            print("Nothing to resume: no unfinished run for this kiln "
+                  f"(data folder {data_dir}).")
+            return EXIT_COMPLETED
+    if args.profile is None:
+        raise UserError("say which profile to run: tuikiln run PROFILE (or `tuikiln run "
+                        "--resume` to carry on an unfinished run)")
+    kiln, profile, speed, start_index = _prepare(args)
     if args.headless:
         return asyncio.run(run_headless(kiln, profile, data_dir, speed=speed,
                                         start_index=start_index,
@@ -149,8 +212,12 @@ def start_background(args: argparse.Namespace, kiln: Any, profile: Any, data_dir
     logs = data_dir / "logs"
     logs.mkdir(parents=True, exist_ok=True)
     log_path = logs / f"run-{time.strftime('%Y%m%d-%H%M%S')}-{os.getpid()}.log"
-    command = [sys.executable, "-m", "tuikiln", "run", str(Path(args.profile).resolve()),
-               "--headless", "--detached", "--data", str(data_dir.resolve())]
+    command = [sys.executable, "-m", "tuikiln", "run"]
+    if args.profile is not None:
+        command.append(str(Path(args.profile).resolve()))
+    if args.resume:
+        command.append("--resume")
+    command += ["--headless", "--detached", "--data", str(data_dir.resolve())]
     if args.kiln:
         command += ["--kiln", str(Path(args.kiln).resolve())]
     if args.speed is not None:
@@ -208,7 +275,8 @@ def _announce(active: Any, kiln: Any, profile: Any, log_path: Path,
 
 async def run_headless(kiln: Any, profile: Any, data_dir: Path, *, speed: float | None,
                        start_index: int = 0, auto_continue: bool = False,
-                       speed_text: str = "", stream: Any = None) -> int:
+                       speed_text: str = "", stream: Any = None, resume: Any = None,
+                       watchdog_s: float | None = None) -> int:
     from drivers.errors import DeviceError
     from drivers.factory import open_device
     from tuikiln import control
@@ -237,17 +305,30 @@ async def run_headless(kiln: Any, profile: Any, data_dir: Path, *, speed: float 
             for line in plan_lines(profile, kiln, start_c, device.description, speed,
                                    kiln.is_simulator):
                 print(line, file=out, flush=True)
+            if resume is not None:
+                print(f"Resuming run {resume.run.id} after {format_duration(resume.away_s)} "
+                      f'away: on_restart = "{resume.policy}"'
+                      + (f" ({resume.why})" if resume.why else ""), file=out, flush=True)
             if not device.capabilities.can_write_setpoint:
                 print("Watching only: this device cannot take a setpoint, so tuikiln follows "
                       "the plan and tells you what the oven should be doing.", file=out,
                       flush=True)
             engine_box: list[RunEngine] = []
             sinks = _sinks(kiln, out, engine_box, device)
+            def spare_device() -> Any:
+                # The watchdog's separate path to the heat: a second connection.
+                return open_device(kiln.device, kiln.base_dir, speed=speed)
+
+            extra: dict[str, Any] = {}
+            if watchdog_s is not None:
+                extra["watchdog_s"] = watchdog_s
             engine = RunEngine(device, profile, kiln=KilnInfo(kiln.name, kiln.units,
                                                               kiln.max_c, kiln.text),
                                limits=limits, runlog=RunLog.in_folder(data_dir), sinks=sinks,
                                start_index=start_index, speed=speed_text,
-                               auto_continue=auto_continue)
+                               auto_continue=auto_continue, resume=resume,
+                               safe_device=None if kiln.is_simulator else spare_device,
+                               **extra)
             engine_box.append(engine)
             return await _serve_run(engine, kiln, data_dir, sinks, out, st)
         finally:
@@ -324,12 +405,18 @@ class _Printer:
 async def _serve_run(engine: Any, kiln: Any, data_dir: Path, sinks: list[Any], out: Any,
                      st: Any) -> int:
     from tuikiln import control
+    from tuikiln.engine.recovery import ENDED_AFTER_RESTART
 
     loop = asyncio.get_running_loop()
+    under_service = bool(os.environ.get("INVOCATION_ID"))
     for signum in (signal.SIGTERM, signal.SIGHUP, signal.SIGINT):
         with contextlib.suppress(NotImplementedError, RuntimeError):
-            loop.add_signal_handler(signum, engine.request_stop, st.STOPPED_BY_SIGNAL,
-                                    f"stopped by {signal.Signals(signum).name}")
+            if signum == signal.SIGTERM and under_service:
+                loop.add_signal_handler(signum, engine.request_suspend,
+                                        "the service is stopping (SIGTERM)")
+            else:
+                loop.add_signal_handler(signum, engine.request_stop, st.STOPPED_BY_SIGNAL,
+                                        f"stopped by {signal.Signals(signum).name}")
     server = control.ControlServer(engine, control.socket_path(data_dir, kiln.name))
     for sink in sinks:
         with contextlib.suppress(Exception):
@@ -350,7 +437,8 @@ async def _serve_run(engine: Any, kiln: Any, data_dir: Path, sinks: list[Any], o
             print(f"tuikiln: {engine.end_words or 'the engine failed'}", file=sys.stderr)
             return EXIT_ENGINE_FAILED
         return {st.COMPLETED: EXIT_COMPLETED, st.ABORTED: EXIT_ABORTED,
-                st.STOPPED_BY_SIGNAL: EXIT_ABORTED, st.STOPPED_BY_ALARM: EXIT_ALARM
+                st.STOPPED_BY_SIGNAL: EXIT_ABORTED, st.STOPPED_BY_ALARM: EXIT_ALARM,
+                ENDED_AFTER_RESTART: EXIT_ABORTED, "suspended": EXIT_ABORTED,
                 }.get(outcome, EXIT_ENGINE_FAILED)
     finally:
         server.notify_end(engine.outcome or "")

@@ -10,11 +10,26 @@ control socket in the same event loop and act at once on the rules.
 
 Anything unexpected inside the loop drives the device safe, records the failure and is
 raised again: a bug must never leave an oven heating unattended.
+
+A watchdog task beside the loop watches the wall clock: when a tick has not finished within
+`watchdog_s` (a read that hangs despite the driver's own timeout), it cancels the loop,
+stops heating through a separate path (the same device once the stuck call is cancelled,
+else a fresh connection from `safe_device`) and ends the run (engine-failed, exit 5). It
+cannot help when the event loop itself is blocked by a call that never yields.
+
+After a restart (`resume=ResumePlan`, see recovery.py) the engine appends to the same run,
+writes a GAP event on its first reading and carries on, holds safe or ends per the kiln
+file's `on_restart`. With every commit the stepper's resume point goes into the run log.
+
+A controller that rebooted comes back with its own setpoint and often stopped: when it
+reports another setpoint than ours, or "not running" while the run wants heat, the engine
+arms it again (stop, then setpoint and run written afresh) and says so.
 """
 
 from __future__ import annotations
 
 import asyncio
+import contextlib
 import logging
 import math
 import time
@@ -25,14 +40,17 @@ from typing import Any
 from drivers.base import Device, Reading
 from drivers.errors import DeviceError, NotSupported, SensorFault
 from tuikiln import events as ev
+from tuikiln.engine import recovery
 from tuikiln.engine import states as st
-from tuikiln.engine.rules import CommandResult, RunRules, TickInput
-from tuikiln.engine.safety import drive_safe
+from tuikiln.engine.recovery import ResumePlan
+from tuikiln.engine.rules import CommandResult, Decision, RunRules, TickInput
+from tuikiln.engine.safety import SafeResult, drive_safe
 from tuikiln.engine.status import LastReading, build_status
 from tuikiln.events import Event
 from tuikiln.limits import Limits
 from tuikiln.profile import Profile
 from tuikiln.runlog import RunLog, RunRecorder
+from tuikiln.units import format_duration, format_temp
 
 log = logging.getLogger(__name__)
 
@@ -40,6 +58,13 @@ STATUS_EVERY_WALL_S = 1.0
 REWRITE_AFTER_S = 5.0      # a moving setpoint is written at most this often ...
 REWRITE_STEP_C = 1.0       # ... unless it moved at least this much
 DEVICE_DRIFT_C = 1.0       # the device holds another setpoint than ours: write it again
+DRIFT_TICKS = 3            # ... after this many readings in a row (a write may be in flight)
+STOPPED_TICKS = 2          # readings of "not running" in a row before the controller is re-armed
+WATCHDOG_S = 30.0          # a tick unfinished this long (wall time): the loop is stalled
+SAFE_PATH_TIMEOUT_S = 10.0  # the watchdog's own attempt to stop the heat, per path
+SUSPENDED = "suspended"     # not an outcome in the log: the run stays unfinished, to resume
+COMMIT_EVERY_S = 0.5       # the run log commits at least this often: a one-second tick commits
+                           # every tick, so a kill loses at most the tick under way
 
 
 @dataclass(frozen=True)
@@ -68,6 +93,9 @@ class RunEngine:
         start_index: int = 0,
         speed: str = "",
         auto_continue: bool = False,
+        resume: ResumePlan | None = None,
+        watchdog_s: float | None = WATCHDOG_S,
+        safe_device: Callable[[], Device] | None = None,
     ) -> None:
         self.device = device
         self.clock = device.clock
@@ -96,12 +124,30 @@ class RunEngine:
         self._status_at = 0.0
         self._log_trouble = False
         self.ticks = 0
+        self.resume = resume
+        self._resume_pending = resume is not None
+        self.held_for_restart = False
+        """Hold safe after a restart: heat off, clocks stopped, until `resume` or `ack`."""
+        self._stopped_ticks = 0
+        self._rearm = False
+        self.rearms = 0
+        self.watchdog_s = watchdog_s
+        self.safe_device = safe_device
+        self._tick_began: float | None = None
+        self._stalled = False
+        self._suspend_request: str | None = None
 
     # ----- outside -----
 
     def command(self, name: str, arg: str | None = None, source: str = "command") -> dict:
         """Apply a person's command at once; returns {"ok", "message"}."""
         now = self.clock.now()
+        if self.held_for_restart:
+            held = self._command_while_held(now, name, arg, source)
+            if held is not None:
+                self._emit_all(held.events)
+                self._publish_status(force=True)
+                return {"ok": held.ok, "message": held.message}
         result: CommandResult = self.rules.command(now, name, arg, source)
         self._emit_all(result.events)
         self._publish_status(force=True)
@@ -112,6 +158,13 @@ class RunEngine:
         if self._stop_request is None:
             self._stop_request = (outcome, reason)
 
+    def request_suspend(self, reason: str) -> None:
+        """From a service manager's SIGTERM (a reboot, `systemctl stop`): drive the device
+        safe at the next tick and leave the run unfinished, to be carried on (per the kiln
+        file's on_restart) when the engine starts again."""
+        if self._suspend_request is None and self._stop_request is None:
+            self._suspend_request = reason
+
     def status(self) -> dict[str, Any]:
         return build_status(self.rules, run_id=self.run_id, kiln=self.kiln.name,
                             now=self.clock.now(), started=self.started, last=self.last,
@@ -121,25 +174,23 @@ class RunEngine:
 
     async def run(self) -> str:
         self.started = self.clock.now()
-        if self.runlog is not None:
-            p = self.profile
-            load = {"material": p.load.material, "thickness_m": p.load.thickness_m,
-                    "pieces": p.load.pieces}
-            self.recorder = self.runlog.start_run(
-                kiln=self.kiln.name, profile=p.name, started=self.started,
-                profile_path=p.path, profile_text=p.source, kiln_text=self.kiln.text,
-                load=load, units=self.kiln.units, device=self.device.description,
-                speed=self.speed, watch_only=self.watch_only)
-            self.run_id = self.recorder.run_id
-        watch = " (watching only: this device cannot take a setpoint)" if self.watch_only else ""
-        self._emit(Event(self.started, ev.RUN_START, f"Run started: {self.profile.name} on "
-                         f"{self.kiln.name}{watch}", "info",
-                         {"profile": self.profile.name, "kiln": self.kiln.name,
-                          "device": self.device.description, "watch_only": self.watch_only,
-                          "speed": self.speed}))
+        if self.resume is not None:
+            await self._run_resumed()
+        else:
+            self._start_new()
+        loop_task = asyncio.create_task(self._loop())
+        watchdog = (asyncio.create_task(self._watchdog(loop_task))
+                    if self.watchdog_s else None)
         try:
-            await self._loop()
+            try:
+                await loop_task
+            except asyncio.CancelledError:
+                me = asyncio.current_task()
+                if not self._stalled or (me is not None and me.cancelling()):
+                    raise
+                await asyncio.shield(self._end_stalled())
         except BaseException as exc:
+            loop_task.cancel()
             cancelled = isinstance(exc, asyncio.CancelledError | KeyboardInterrupt)
             outcome = st.STOPPED_BY_SIGNAL if cancelled else st.ENGINE_FAILED
             reason = ("the run was interrupted" if cancelled else
@@ -148,26 +199,81 @@ class RunEngine:
                 log.exception("engine failure")
             decision = self.rules.stop(self.clock.now(), outcome, reason)
             self._emit_all(decision.events)
-            await asyncio.shield(self._safe_and_end(outcome, reason))
+            if self.outcome is None:
+                await asyncio.shield(self._safe_and_end(outcome, reason))
             raise
         finally:
+            if watchdog is not None:
+                watchdog.cancel()
             if self.recorder is not None:
                 self.recorder.close()
         return self.outcome or st.COMPLETED
 
+    def _attach_recorder(self, recorder: RunRecorder) -> None:
+        self.recorder = recorder
+        self.run_id = recorder.run_id
+        recorder.every_s = COMMIT_EVERY_S
+        recorder.resume_source = self._resume_point
+
+    def _resume_point(self) -> tuple[float, dict[str, Any]]:
+        stepper = self.rules.stepper
+        point = recovery.snapshot(stepper)
+        point["held_for_restart"] = self.held_for_restart
+        t = stepper.last_now if stepper.last_now is not None else self.clock.now()
+        return t, point
+
+    async def _run_resumed(self) -> None:
+        plan = self.resume
+        assert plan is not None
+        self.started = plan.run.started
+        if self.runlog is not None:
+            self._attach_recorder(self.runlog.resume_run(plan.run.id))
+
+    def _start_new(self) -> None:
+        if self.runlog is not None:
+            p = self.profile
+            load = {"material": p.load.material, "thickness_m": p.load.thickness_m,
+                    "pieces": p.load.pieces}
+            self._attach_recorder(self.runlog.start_run(
+                kiln=self.kiln.name, profile=p.name, started=self.started,
+                profile_path=p.path, profile_text=p.source, kiln_text=self.kiln.text,
+                load=load, units=self.kiln.units, device=self.device.description,
+                speed=self.speed, watch_only=self.watch_only))
+        watch = " (watching only: this device cannot take a setpoint)" if self.watch_only else ""
+        self._emit(Event(self.started, ev.RUN_START, f"Run started: {self.profile.name} on "
+                         f"{self.kiln.name}{watch}", "info",
+                         {"profile": self.profile.name, "kiln": self.kiln.name,
+                          "device": self.device.description, "watch_only": self.watch_only,
+                          "speed": self.speed}))
+
     async def _loop(self) -> None:
         next_t = self.clock.now()
         while True:
+            self._tick_began = time.monotonic()
             now = self.clock.now()
             tick_input = await self._read(now)
-            decision = self.rules.tick(now, tick_input)
+            if self._resume_pending:
+                ending = await self._begin_resume(now, tick_input)
+                if ending is not None:
+                    decision = ending
+                else:
+                    decision = self.rules.tick(now, tick_input)
+            else:
+                decision = self.rules.tick(now, tick_input)
             self.last.core_c = self.rules.core_c
             if self._stop_request is not None and not decision.ended:
                 decision = self.rules.stop(now, *self._stop_request)
+            elif self._suspend_request is not None and not decision.ended:
+                self._emit_all(decision.events)
+                self._sample(now, None, True)
+                await self._suspend(self._suspend_request)
+                return
             self._emit_all(decision.events)
             if self.rules.stepper.waiting_for_operator and self.auto_continue:
                 self._emit_all(self.rules.command(now, "ack", None, "auto-continue").events)
             self._sample(now, decision.setpoint_c, decision.heat_off)
+            if self.recorder is not None:
+                self.recorder.maybe_flush()
             if decision.ended:
                 outcome = decision.outcome or st.COMPLETED
                 if decision.safe_reason is not None:
@@ -175,11 +281,13 @@ class RunEngine:
                 else:
                     await self._complete(outcome)
                 return
-            if decision.setpoint_c is not None and not self.watch_only:
+            if (decision.setpoint_c is not None and not self.watch_only
+                    and not self.held_for_restart):
                 await self._write(now, decision.setpoint_c)
             self._check_log(now)
             self._publish_status()
             self.ticks += 1
+            self._tick_began = None
             next_t += self.tick_s
             delay = next_t - self.clock.now()
             if delay < -10 * self.tick_s:
@@ -213,18 +321,29 @@ class RunEngine:
                          link_ok=link_ok, sensor_fault=sensor_fault)
 
     def _watch_device_setpoint(self, reading: Reading) -> None:
-        """A controller that rebooted or was changed by hand holds another setpoint."""
-        if self._written_c is None or reading.setpoint_c is None:
+        """A controller that rebooted or was changed by hand holds another setpoint, or has
+        stopped its output: arm it again on this tick's write."""
+        if self._written_c is None or self.held_for_restart:
+            self._drift_ticks = self._stopped_ticks = 0
             return
-        if abs(reading.setpoint_c - self._written_c) > DEVICE_DRIFT_C:
+        if reading.setpoint_c is not None and abs(reading.setpoint_c - self._written_c) > \
+                DEVICE_DRIFT_C:
             self._drift_ticks += 1
-            if self._drift_ticks >= 3:
-                self._written_c = None  # write ours again on this tick
-                self._drift_ticks = 0
         else:
             self._drift_ticks = 0
+        wants_heat = self._written_c > 0.0 and not self.rules.stepper.heat_off
+        if reading.running is False and wants_heat:
+            self._stopped_ticks += 1
+        else:
+            self._stopped_ticks = 0
+        if self._drift_ticks >= DRIFT_TICKS or self._stopped_ticks >= STOPPED_TICKS:
+            self._rearm = True
+            self._drift_ticks = self._stopped_ticks = 0
 
     async def _write(self, now: float, setpoint_c: float) -> None:
+        if self._rearm:
+            await self._rearm_device(now, setpoint_c)
+            return
         resolution = self.device.capabilities.setpoint_resolution_c
         last = self._written_c
         if last is not None:
@@ -244,6 +363,27 @@ class RunEngine:
             return  # the next tick tries again; lost links are the alarms' business
         self._written_c = setpoint_c
         self._written_at = now
+
+    async def _rearm_device(self, now: float, setpoint_c: float) -> None:
+        """Stop, then setpoint and run afresh: a driver that wrote "run" once writes it
+        again after a stop, so a controller that came back stopped starts again."""
+        device = self.device
+        held = "another setpoint" if self._written_c is None else (
+            f"another setpoint or stopped (ours {format_temp(self._written_c, self.kiln.units)})")
+        try:
+            if device.capabilities.can_stop_heating:
+                await device.stop_heating()
+            await device.write_setpoint(setpoint_c)
+        except DeviceError:
+            return  # the next tick tries again
+        self._rearm = False
+        self.rearms += 1
+        self._written_c = setpoint_c
+        self._written_at = now
+        self._emit(Event(now, ev.DEVICE, f"The controller held {held}: it may have rebooted. "
+                         f"Setpoint {format_temp(setpoint_c, self.kiln.units)} and run written "
+                         "again", "warning", {"words": "controller re-armed",
+                                              "setpoint_c": setpoint_c}))
 
     def _sample(self, now: float, setpoint_c: float | None, heat_off: bool) -> None:
         if self.recorder is None and not self.sinks:
@@ -295,8 +435,10 @@ class RunEngine:
             words = "heat off" if result.done else result.words
         self._end(now, outcome, f"Run complete: every step is done; {words}")
 
-    async def _safe_and_end(self, outcome: str, reason: str) -> None:
-        result = await drive_safe(self.device)
+    async def _safe_and_end(self, outcome: str, reason: str,
+                            result: SafeResult | None = None) -> None:
+        if result is None:
+            result = await drive_safe(self.device)
         now = self.clock.now()
         if self.watch_only:
             result_words = ("watching only: tuikiln cannot turn this oven's heat off. Switch "
@@ -317,6 +459,143 @@ class RunEngine:
         if self.recorder is not None:
             self.recorder.end(outcome, now)
         self._publish_status(force=True)
+
+    async def _suspend(self, reason: str) -> None:
+        result = await drive_safe(self.device) if not self.watch_only else None
+        now = self.clock.now()
+        done = result is not None and result.done
+        words = result.words if result is not None else "watching only"
+        self._emit(Event(now, ev.SAFE_STATE, f"Safe state: {reason}; {words}. The run is left "
+                         "unfinished: it is taken up again when the engine starts again",
+                         "warning" if done else "critical",
+                         {"reason": reason, "done": done, "words": words, "suspended": True}))
+        self.outcome = SUSPENDED
+        self.end_words = f"Run suspended: {reason}"
+        if self.recorder is not None:
+            self.recorder.flush(force=True)
+        self._publish_status(force=True)
+
+    # ----- after a restart -----
+
+    async def _begin_resume(self, now: float, tick: TickInput) -> Decision | None:
+        """First tick after a restart: the GAP event, then the policy. Returns the ending
+        decision for "end", else None (the rules tick as usual)."""
+        plan = self.resume
+        assert plan is not None
+        self._resume_pending = False
+        u = self.kiln.units
+        after = tick.chamber_c if tick.link_ok and not tick.sensor_fault else None
+        away = max(0.0, now - plan.away_since)
+        why = f" ({plan.why})" if plan.why else ""
+        self._emit(Event(now, ev.GAP, f"The engine was away {format_duration(away)}: "
+                         f"{format_temp(plan.before_c, u)} before, {format_temp(after, u)} now. "
+                         f'On restart: "{plan.policy}"{why}', "warning",
+                         {"seconds": away, "since": plan.away_since, "before_c": plan.before_c,
+                          "after_c": after, "policy": plan.policy, "asked": plan.asked,
+                          "why": plan.why}))
+        stepper = self.rules.stepper
+        if plan.policy == "end":
+            return self.rules.stop(now, recovery.ENDED_AFTER_RESTART,
+                                   "the kiln file says on_restart = \"end\"" if not plan.why
+                                   else plan.why)
+        words = recovery.restore_stepper(stepper, plan, now, after)
+        if plan.policy == "continue":
+            self._emit(Event(now, ev.COMMAND, f"Carrying on after the restart: {words}", "info",
+                             {"name": "resume", "source": "restart"}))
+            return None
+        # "hold": heat off now, then wait for a person.
+        if stepper.state == st.STARTING:
+            stepper.state = st.WAITING_YOU  # frozen until released (paused: nothing moves)
+        recovery.hold_safe(stepper, now)
+        self.held_for_restart = True
+        result = await drive_safe(self.device) if not self.watch_only else None
+        done = result is not None and result.done
+        safe_words = (result.words if result is not None else "watching only: switch the oven "
+                      "off at its controller")
+        self._emit(Event(now, ev.SAFE_STATE, f"Safe state after the restart: {safe_words}",
+                         "warning" if done else "critical",
+                         {"reason": "restart", "done": done, "words": safe_words}))
+        self._emit(Event(now, ev.OPERATOR_NEEDED, "The engine restarted and holds the oven safe "
+                         "(heat off, clocks stopped): `tuikiln resume` carries on with step "
+                         f"{min(stepper.index, len(stepper.steps) - 1) + 1} from the "
+                         "temperature then, `tuikiln abort` ends the run", "warning",
+                         {"index": stepper.index, "text": "restart: resume or abort",
+                          "reminder": False}))
+        return None
+
+    def _command_while_held(self, now: float, name: str, arg: str | None,
+                            source: str) -> CommandResult | None:
+        """Commands while holding safe after a restart; None: the rules handle it."""
+        if name in ("abort", "note") or (name == "ack" and arg not in (None, "", "you")):
+            return None
+        if name not in ("resume", "ack"):
+            return CommandResult(False, "the run holds safe after a restart: `tuikiln resume` "
+                                 "first (or `tuikiln abort`)", [Event(
+                                     now, ev.COMMAND_REFUSED, f"Refused {name}: holding safe "
+                                     "after a restart", "info",
+                                     {"name": name, "source": source, "reason": "held"})])
+        plan = self.resume
+        assert plan is not None
+        self.held_for_restart = False
+        words = recovery.restore_stepper(self.rules.stepper, plan, now, self.last.chamber_c)
+        self._written_c = None  # write the setpoint (and run) afresh on the next tick
+        message = f"Carrying on after the restart: {words}"
+        events = [Event(now, ev.COMMAND, message, "info", {"name": name, "source": source})]
+        events.extend(self.rules.alarms.set_condition("paused-too-long", False, now))
+        return CommandResult(True, message, events)
+
+    # ----- the watchdog -----
+
+    async def _watchdog(self, loop_task: asyncio.Task[None]) -> None:
+        limit = float(self.watchdog_s or WATCHDOG_S)
+        every = min(1.0, limit / 4.0)
+        while not loop_task.done():
+            await asyncio.sleep(every)
+            began = self._tick_began
+            if began is not None and time.monotonic() - began > limit:
+                log.error("device loop stalled for %.1f s: stopping the heat", limit)
+                self._stalled = True
+                loop_task.cancel()
+                return
+
+    async def _end_stalled(self) -> None:
+        limit = float(self.watchdog_s or WATCHDOG_S)
+        reason = (f"the device loop stalled: no tick finished within {limit:g} s "
+                  "(a device call that hangs)")
+        now = self.clock.now()
+        self._emit_all(self.rules.stop(now, st.ENGINE_FAILED, reason).events)
+        result = await self._stop_heat_separately()
+        await self._safe_and_end(st.ENGINE_FAILED, reason, result)
+
+    async def _stop_heat_separately(self) -> SafeResult:
+        """The stuck call is cancelled: try the same device once, then a fresh connection."""
+        if self.watch_only:
+            return SafeResult(False, "watching only")
+        try:
+            first = await asyncio.wait_for(drive_safe(self.device, attempts=1),
+                                           SAFE_PATH_TIMEOUT_S)
+            if first.done:
+                return first
+        except TimeoutError:
+            first = SafeResult(False, "the device did not answer the stop")
+        if self.safe_device is None:
+            return first
+        spare: Device | None = None
+        try:
+            spare = self.safe_device()
+            await asyncio.wait_for(spare.connect(), SAFE_PATH_TIMEOUT_S)
+            result = await asyncio.wait_for(drive_safe(spare), SAFE_PATH_TIMEOUT_S * 3)
+            if result.done:
+                return SafeResult(True, f"{result.words} (through a second connection)")
+            return result
+        except (TimeoutError, DeviceError) as exc:
+            return SafeResult(False, f"could not reach the controller through a second "
+                              f"connection either ({exc or type(exc).__name__}). Switch the "
+                              "oven off by hand now")
+        finally:
+            if spare is not None:
+                with contextlib.suppress(Exception):
+                    await spare.close()
 
     # ----- telling the world -----
 

@@ -113,20 +113,20 @@ class Stepper:
 
     @index.setter
     def index(self, value: int) -> None:
-        # The current step is looked up several times a tick: keep it at hand.
+        # The current step and what the tick asks of it follow from the index alone, and
+        # are looked up several times a tick: keep them at hand.
         self._index = value
-        self.step: Step | None = (self.steps[value] if 0 <= value < len(self.steps)
-                                  else None)
+        steps = self.steps
+        step = steps[value] if 0 <= value < len(steps) else None
+        self.step: Step | None = step
+        self._next_hold = value + 1 < len(steps) and isinstance(steps[value + 1], Hold)
+        self._step_band = self.band_c(step)
 
     def band_c(self, step: Step | None = None) -> float:
         step = step if step is not None else self.step
         if isinstance(step, Hold) and step.band_c is not None:
             return step.band_c
         return self.limits.band
-
-    def _next_is_hold(self) -> bool:
-        nxt = self.index + 1
-        return nxt < len(self.steps) and isinstance(self.steps[nxt], Hold)
 
     # ----- commands from the person -----
 
@@ -178,11 +178,12 @@ class Stepper:
             self.active_s += dt
             self._progress(now, dt, chamber_c, load_c)
         # Steps that end at once (a ramp already above its target) cascade in one tick.
-        for _ in range(len(self.steps) + 1):
-            if self.ended or not self._step_done(chamber_c):
-                break
-            self._finish_step(now)
-            self._advance(now, chamber_c)
+        if not self.ended and self._step_done(chamber_c):
+            for _ in range(len(self.steps) + 1):
+                self._finish_step(now)
+                self._advance(now, chamber_c)
+                if self.ended or not self._step_done(chamber_c):
+                    break
         return StepTick(self.setpoint_c, self.heat_off, self._take_events())
 
     # ----- inside -----
@@ -243,7 +244,7 @@ class Stepper:
                 # Before a hold (a temper after the quench) the controller is given the
                 # target, so it catches the temperature there instead of letting it sink
                 # through the band; otherwise the setpoint goes right down.
-                self.setpoint_c = step.to_c if self._next_is_hold() else FREE_COOL_SETPOINT_C
+                self.setpoint_c = step.to_c if self._next_hold else FREE_COOL_SETPOINT_C
                 self.heat_off = True
                 new_state = st.COASTING
             else:
@@ -284,7 +285,7 @@ class Stepper:
                 sp = self.ramp_from_c + step.rate_c_per_s * self.active_s
                 if sp >= step.to_c:
                     sp = step.to_c
-                    if not self._next_is_hold():
+                    if not self._next_hold:
                         self._set_state(now, st.REACHING)
                 self.setpoint_c = sp
         elif isinstance(step, Hold):
@@ -305,7 +306,7 @@ class Stepper:
     def _hold(self, now: float, dt: float, temp: float, load_c: float | None) -> None:
         step = self.step
         assert isinstance(step, Hold) and self.target_c is not None
-        band = self.band_c(step)
+        band = self._step_band
         in_band = abs(temp - self.target_c) <= band
         if self.state == st.REACHING:
             if not in_band:
@@ -352,14 +353,14 @@ class Stepper:
             at_target = self.setpoint_c is not None and self.setpoint_c >= step.to_c
             if not at_target:
                 return False
-            return self._next_is_hold() or in_band
+            return self._next_hold or in_band
         if isinstance(step, Hold):
             return self.hold_clock_s >= step.duration_s
         if isinstance(step, Cool):
             if temp is None:
                 return False
             if step.rate_c_per_s is None:
-                if self._next_is_hold():
+                if self._next_hold:
                     return temp <= step.to_c + self.limits.band  # the hold waits for the band
                 return temp <= step.to_c
             at_target = self.setpoint_c is not None and self.setpoint_c <= step.to_c

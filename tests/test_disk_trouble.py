@@ -1,0 +1,103 @@
+"""The run log's disk fills up mid-run: the run goes on, the readings are kept in memory, the
+log-trouble alarm is raised, and everything is written once there is room again.
+
+A real full disk: the SQLite file lives on a tiny tmpfs mounted for the test (root only;
+skipped with the reason otherwise), grown again with `mount -o remount` once the alarm shows.
+"""
+
+from __future__ import annotations
+
+import os
+import subprocess
+
+import pytest
+
+from drivers.fake import FirstOrderOven, ManualClock, ScriptedDevice
+from tuikiln import events as ev
+from tuikiln.engine import states as st
+from tuikiln.engine.runner import KilnInfo, RunEngine
+from tuikiln.limits import Limits
+from tuikiln.profile import parse_profile
+from tuikiln.runlog import RunLog
+
+PROFILE = """
+name = "long hold"
+units = "C"
+[[step]]
+ramp = "max"
+to = 500
+[[step]]
+hold = "5h"
+"""
+
+
+@pytest.fixture
+def tiny_disk(tmp_path):
+    folder = tmp_path / "tiny"
+    folder.mkdir()
+    if os.geteuid() != 0:
+        pytest.skip("mounting a tiny tmpfs needs root")
+    done = subprocess.run(["mount", "-t", "tmpfs", "-o", "size=160k", "tmpfs", str(folder)],
+                          capture_output=True, text=True)
+    if done.returncode != 0:
+        pytest.skip(f"cannot mount a tmpfs here: {done.stderr.strip()}")
+    try:
+        yield folder
+    finally:
+        subprocess.run(["umount", "-l", str(folder)], capture_output=True)
+
+
+class Grower:
+    """Gives the disk room again a while after the log-trouble alarm shows."""
+
+    def __init__(self, folder) -> None:
+        self.folder = folder
+        self.events: list = []
+        self.raised_at: float | None = None
+        self.grown = False
+        self.ticks_in_trouble = 0
+
+    def event(self, event) -> None:
+        self.events.append(event)
+        if event.kind == ev.ALARM_RAISED and event.detail["alarm"] == "log-trouble":
+            self.raised_at = event.time
+
+    def state(self, state) -> None:
+        pass
+
+    def reading(self, sample) -> None:
+        if self.raised_at is not None and not self.grown:
+            self.ticks_in_trouble += 1
+            if self.ticks_in_trouble >= 600:  # ten minutes of readings held in memory
+                subprocess.run(["mount", "-o", "remount,size=50m", str(self.folder)],
+                               check=True)
+                self.grown = True
+
+
+async def test_a_full_disk_keeps_the_run_going_and_writes_everything_later(tiny_disk):
+    import tuikiln.runlog as runlog
+
+    old = runlog.RETRY_AFTER_S
+    runlog.RETRY_AFTER_S = 0.0  # retry at every commit (the test runs hours in a second)
+    try:
+        device = ScriptedDevice(model=FirstOrderOven(tau_s=300.0), clock=ManualClock())
+        profile = parse_profile(PROFILE, "p.toml", max_c=1100.0)
+        sink = Grower(tiny_disk)
+        log = RunLog.in_folder(tiny_disk)
+        engine = RunEngine(device, profile, kiln=KilnInfo("Test oven", "C", 1100.0),
+                           limits=Limits(), runlog=log, sinks=[sink])
+        outcome = await engine.run()
+    finally:
+        runlog.RETRY_AFTER_S = old
+    assert outcome == st.COMPLETED
+    assert sink.raised_at is not None and sink.grown
+    kinds = [(e.kind, e.detail.get("alarm")) for e in sink.events]
+    assert (ev.ALARM_CLEARED, "log-trouble") in kinds
+    # Nothing was lost: every tick's sample and every event reached the file in the end.
+    reader = RunLog.in_folder(tiny_disk)
+    assert reader.sample_count(engine.run_id) == engine.ticks + 1
+    assert len(reader.samples(engine.run_id)["t"]) == engine.ticks + 1
+    assert len(reader.events(engine.run_id)) == len(sink.events)
+    assert reader.run(engine.run_id).outcome == st.COMPLETED
+    trouble = next(e for e in sink.events if e.kind == ev.ALARM_RAISED)
+    assert "full" in trouble.message
