@@ -13,7 +13,7 @@ from typing import Any, Protocol
 
 # Event kinds (stable strings: they are stored in run logs and sent over MQTT).
 RUN_START = "run-start"
-RUN_END = "run-end"                      # detail: outcome ("completed", "aborted", "stopped-by-alarm", ...)
+RUN_END = "run-end"                      # detail: outcome ("completed", "aborted", ...)
 STEP_START = "step-start"                # detail: index (0-based), kind, description
 STEP_END = "step-end"
 STEP_STATE = "step-state"                # detail: state (our own names), words

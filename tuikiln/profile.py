@@ -159,7 +159,8 @@ class _Checker:
                 self.report((key,), f'unknown key "{key}"{suggest(key, TOP_KEYS)}')
         units = data.get("units")
         if units is None:
-            self.report((), 'the profile needs units = "C" or units = "F" (its temperatures\' units)')
+            self.report((), 'the profile needs units = "C" or units = "F" '
+                        "(the units of its temperatures)")
         elif not isinstance(units, str) or units.upper() not in UNITS:
             self.report(("units",), f'unknown units {units!r}: write "C" or "F"')
         else:
