@@ -280,9 +280,6 @@ def test_control_socket_answers_every_line_and_keeps_serving(control_server: Ser
     assert not control_server.errors, control_server.errors[-1].get("message")
 
 
-@pytest.mark.xfail(reason="tuikiln/control.py ControlServer._serve: json.loads of a deeply "
-                   "nested line (within MAX_LINE) raises RecursionError; the connection "
-                   "dies without an answer and the loop logs a traceback", strict=False)
 def test_control_socket_answers_a_deeply_nested_line(control_server: ServerThread) -> None:
     answers = control_server.exchange(b"[" * 20000)
     assert answers and answers[0].get("ok") is False

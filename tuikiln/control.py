@@ -39,6 +39,7 @@ from pathlib import Path
 from typing import Any
 
 from tuikiln.errors import UserError
+from tuikiln.runlog import pid_alive
 
 MAX_LINE = 64 * 1024
 SOCKET_PATH_MAX = 100  # sun_path is 108 bytes on Linux; keep a margin
@@ -133,13 +134,7 @@ def write_active(data_dir: Path, kiln_name: str, info: dict[str, Any]) -> Path:
 
 
 def _alive(pid: int) -> bool:
-    try:
-        os.kill(pid, 0)
-    except ProcessLookupError:
-        return False
-    except PermissionError:
-        return True
-    return True
+    return pid_alive(pid)
 
 
 def active_runs(data_dir: Path) -> list[ActiveRun]:
@@ -236,7 +231,7 @@ class ControlServer:
                     request = json.loads(line)
                     if not isinstance(request, dict):
                         raise ValueError("not an object")
-                except ValueError:
+                except (ValueError, RecursionError):  # RecursionError: absurdly deep nesting
                     await _send(writer, {"ok": False, "error": "each line must be a JSON "
                                          'object such as {"cmd": "status"}'})
                     continue
@@ -340,6 +335,9 @@ def request(path: str, cmd: str, arg: str | None = None, timeout: float = 10.0
     except TimeoutError as exc:
         raise NoRun("the run did not answer within "
                     f"{timeout:.0f} s") from exc
+    except (ConnectionError, ValueError) as exc:
+        raise NoRun(f"the run's control socket broke off ({exc}); the run may have just "
+                    "ended: see `tuikiln runs`") from exc
     finally:
         sock.close()
 

@@ -167,7 +167,7 @@ class RunInfo:
         """The outcome, "running", or "unfinished" when the engine died without ending it."""
         if self.outcome:
             return self.outcome
-        if self.pid and _pid_alive(self.pid):
+        if self.pid and pid_alive(self.pid):
             return "running"
         return "unfinished"
 
@@ -178,7 +178,8 @@ class RunInfo:
                 "watch_only": self.watch_only}
 
 
-def _pid_alive(pid: int) -> bool:
+def pid_alive(pid: int) -> bool:
+    """Whether a process with this id is running (ours or another user's)."""
     try:
         os.kill(pid, 0)
     except ProcessLookupError:
