@@ -13,7 +13,7 @@ import os
 import sys
 from collections.abc import Sequence
 
-from tuikiln.errors import UserError
+from tuikiln.errors import FileProblems, UserError
 
 # command name -> module (one line each, so adding a command touches one line).
 COMMANDS: dict[str, str] = {
@@ -147,6 +147,10 @@ def main(argv: Sequence[str] | None = None) -> int:
     module = importlib.import_module(args._module)
     try:
         return int(module.run(args) or 0)
+    except FileProblems as exc:
+        for problem in exc.problems:  # FILE:LINE: message, one a line, as compilers do
+            print(problem, file=sys.stderr)
+        return exc.exit_code
     except UserError as exc:
         print(f"tuikiln: {exc}", file=sys.stderr)
         return exc.exit_code
