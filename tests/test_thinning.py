@@ -7,7 +7,7 @@ from hypothesis import given, settings
 from hypothesis import strategies as st
 from hypothesis.extra.numpy import arrays
 
-from tuikiln.ui.chartdraw import ChartSpec, Trace, render_chart, strips_text
+from tuikiln.ui.chartdraw import ChartSpec, Trace, plot_layout, render_chart, strips_text
 from tuikiln.ui.thinning import bucket_bounds, min_max_buckets, thin
 
 temperatures = st.floats(min_value=-50, max_value=1300, allow_nan=False)
@@ -83,3 +83,20 @@ def test_one_sample_overshoot_reaches_the_top_of_the_chart() -> None:
     flat = top_row(y)
     y[123_457] = 1000.0
     assert top_row(y) < flat - 2
+
+
+def test_chart_layout_key_moves_only_when_a_dot_would() -> None:
+    # The live screen redraws the chart only when this key changes (a second of new
+    # samples at the whole-run zoom seldom moves a dot); an overshoot must always move it.
+    t = np.arange(0.0, 3600.0)
+    y = np.full(t.size, 500.0)
+
+    def key(values: np.ndarray, until: float) -> bytes:
+        trace = Trace("chamber", t[t <= until], values[t <= until])
+        return plot_layout(ChartSpec(0.0, 4 * 3600.0, 0.0, 600.0, [trace], now=until),
+                           60, 12).key
+
+    assert key(y, 3000.0) == key(y, 3001.0)  # one more second: nothing on screen moves
+    spiked = y.copy()
+    spiked[3001] = 590.0  # a one-sample overshoot
+    assert key(spiked, 3001.0) != key(y, 3001.0)

@@ -9,6 +9,7 @@ from textual.widgets import Input
 
 from tests.test_ui_fakes import ScriptedEngine, screen_text
 from tuikiln.ui.app import TuikilnApp
+from tuikiln.ui.chartdraw import strips_text
 from tuikiln.ui.screens.confirm import ConfirmScreen
 from tuikiln.ui.screens.live import LiveScreen
 from tuikiln.ui.screens.note import NoteScreen
@@ -128,11 +129,17 @@ async def test_pause_step_names_the_key(tmp_path: Path) -> None:
     async with make_app(engine).run_test(size=SIZE) as pilot:
         await settle(pilot)
         text = screen_text(pilot.app.screen)
-        assert "Quench: oil-quench the blade now, then acknowledge  [press a]" in text
+        # The pause's words in a full-width band, with a symbol and capitals (no colour needed).
+        notice = pilot.app.screen.query_one("#live-notice")
+        assert notice.display and notice.region.width == SIZE[0]
+        assert ("☛ WAITING FOR YOU: Quench: oil-quench the blade now, then acknowledge  "
+                "[press a]") in str(notice.content)
+        assert "WAITING FOR THE QUENCH: press a when done" in text
         assert "you're needed NOW" in text
         await pilot.press("a")
         await settle(pilot)
         assert "cooling with the heater off to 400 °F" in screen_text(pilot.app.screen)
+        assert not pilot.app.screen.query_one("#live-notice").display
 
 
 async def test_leaving_keeps_the_run_going(tmp_path: Path) -> None:
@@ -149,3 +156,26 @@ async def test_leaving_keeps_the_run_going(tmp_path: Path) -> None:
     assert (await engine.status())["state"] == "running"
     engine.advance(10)
     assert engine.log.sample_count(engine.run_id) == 70
+
+
+async def test_everything_that_matters_shows_at_80x24(tmp_path: Path) -> None:
+    engine = ScriptedEngine(tmp_path)
+    engine.advance(1800)
+    engine.raise_alarm("overshoot", "chamber 1530 °F, 40 °F above the target")
+    async with make_app(engine).run_test(size=(80, 24)) as pilot:
+        await settle(pilot, 0.3)
+        screen = pilot.app.screen
+        chart = screen.query_one("#live-chart")
+        legend = strips_text(chart.strips())[0]
+        assert "plan" in legend and "│ now" in legend  # the legend is not cut mid-word
+        assert "core (estimate)" not in legend  # the short wording was chosen to fit
+        banner = screen.query_one(AlarmBanner)
+        assert banner.display and banner.region.width == 80
+        assert screen.region.contains_region(banner.region)
+        main = screen.query_one("#live-main").region
+        for line in ("#temps", "#step-words", "#times"):
+            widget = screen.query_one(line)
+            assert main.contains_region(widget.region), (line, widget.region, main)
+        text = screen_text(screen)
+        assert "target  1200 °F" in text and "heating to 1200 °F" in text
+        assert "next step" in text and "you're needed" in text and "end " in text

@@ -25,6 +25,7 @@ BRAILLE = np.array([chr(0x2800 + bits) for bits in range(256)] + [" "])
 EMPTY = 256
 # Bit of each dot in a braille cell, by (row 0-3, column 0-1) (Unicode braille patterns).
 DOT_BITS = np.array([[0x01, 0x08], [0x02, 0x10], [0x04, 0x20], [0x40, 0x80]], dtype=np.int32)
+AXIS_WIDTH = 6  # room for 5-character temperature labels and the axis line
 NICE_STEPS_S = (60, 300, 600, 900, 1800, 3600, 7200, 10800, 21600, 43200, 86400, 172800)
 
 
@@ -246,15 +247,56 @@ def render_chart(
     """`height` lines of `width` cells: y labels, the plot, and a time axis at the bottom."""
     if width < 8 or height < 3:
         return [Strip([Segment(" " * max(0, width))]) for _ in range(max(0, height))]
+    plot = plot_layout(spec, width, height, label)
+    return draw_plot(plot, spec, palette, styles, label)
+
+
+@dataclass(frozen=True)
+class PlotLayout:
+    """A chart reduced to what decides its cells: equal keys draw equal lines."""
+
+    width: int
+    height: int
+    columns: list[tuple[np.ndarray, np.ndarray, np.ndarray]]
+    y_low: float
+    y_high: float
+    key: bytes
+
+
+def plot_layout(spec: ChartSpec, width: int, height: int,
+                label: Callable[[float], str] = elapsed_label) -> PlotLayout:
+    """Thin every trace to the dot columns and fix the axis range; `key` changes only
+    when a dot, a label or a marker would move (a second of new samples seldom does)."""
     rows = height - 1
-    traces = list(spec.traces)
-    # The label width depends on the range, the range on the data, the data's columns on
-    # the width: thin at a width that leaves room for 5-character labels, then draw.
-    axis_width = 6
-    cells = width - axis_width
+    cells = width - AXIS_WIDTH
     dot_cols, dot_row_count = cells * 2, rows * 4
-    columns = [trace_columns(trace, spec, dot_cols) for trace in traces]
+    columns = [trace_columns(trace, spec, dot_cols) for trace in spec.traces]
     y_low, y_high = axis_range(spec, columns)
+    parts = [repr((width, height, y_low, y_high, cell_column(spec.now, spec, cells),
+                   cell_column(spec.cursor, spec, cells),
+                   [(trace.role, trace.dashed) for trace in spec.traces],
+                   time_axis(spec, cells, label))).encode()]
+    with np.errstate(invalid="ignore"):
+        for trio in columns:
+            parts += [np.nan_to_num(dot_rows(v, y_low, y_high, dot_row_count), nan=-1.0)
+                      .astype(np.int16).tobytes() for v in trio]
+    return PlotLayout(width, height, columns, y_low, y_high, b"|".join(parts))
+
+
+def draw_plot(
+    plot: PlotLayout,
+    spec: ChartSpec,
+    palette: Mapping[str, Style] | None = None,
+    styles: ChartStyles = ChartStyles(),
+    label: Callable[[float], str] = elapsed_label,
+) -> list[Strip]:
+    """The lines of a chart laid out by `plot_layout`."""
+    rows = plot.height - 1
+    axis_width = AXIS_WIDTH
+    cells = plot.width - axis_width
+    dot_row_count = rows * 4
+    traces = list(spec.traces)
+    columns, y_low, y_high = plot.columns, plot.y_low, plot.y_high
     labels = y_axis_labels(y_low, y_high, rows)
     owners = np.full((rows, cells), -1, dtype=np.int32)
     bits = np.zeros((rows, cells), dtype=np.int32)
@@ -295,9 +337,9 @@ def render_chart(
             style = all_styles[owner] if owner >= 0 else None
             # A contiguous <U1 slice is UTF-32 text already: decode it in one go.
             segments.append(Segment(row_chars[start:stop].tobytes().decode("utf-32-le"), style))
-        lines.append(Strip(segments, width))
+        lines.append(Strip(segments, plot.width))
     bottom = " " * (axis_width - 1) + "└" + time_axis(spec, cells, label)
-    lines.append(Strip([Segment(bottom, styles.axis)], width))
+    lines.append(Strip([Segment(bottom, styles.axis)], plot.width))
     return lines
 
 

@@ -69,8 +69,10 @@ def step_words(status: Mapping[str, Any], plan: Plan | None, units: Units) -> st
     if state == "coasting":
         return f"cooling with the heater off to {format_temp(target, units)}"
     if state == "waiting-you":
-        message = step.message if isinstance(step, Pause) else "the oven waits for you"
-        return f"{message}  [press {ACK_KEY}]"
+        # The pause's own words are in the full-width band above: here a short reminder.
+        kind = "the quench" if isinstance(step, Pause) and "quench" in step.message.lower() \
+            else "you"
+        return f"WAITING FOR {kind.upper()}: press {ACK_KEY} when done"
     if state == "done":
         return "every step is done"
     words = status.get("step_words")

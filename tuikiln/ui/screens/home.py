@@ -7,7 +7,7 @@ import time
 from pathlib import Path
 
 from rich.text import Text
-from textual import work
+from textual import events, work
 from textual.app import ComposeResult
 from textual.binding import Binding
 from textual.containers import Horizontal, Vertical
@@ -72,6 +72,10 @@ class HomeScreen(Screen[None]):
             yield DataTable(id="home-runs", cursor_type="row", zebra_stripes=True)
         yield Static(SAFETY, id="home-help")
         yield Footer()
+
+    def on_resize(self, event: events.Resize) -> None:
+        # Below 120 columns the two tables cut their columns off: stack them (app.tcss).
+        self.set_class(event.size.width < 120, "-narrow")
 
     def on_mount(self) -> None:
         profiles = self.query_one("#home-profiles", DataTable)

@@ -20,6 +20,7 @@ from textual.css.query import NoMatches
 from textual.screen import Screen
 from textual.widgets import Footer, Static
 
+from tuikiln.profile import Pause
 from tuikiln.ui.chartdata import LAST_HOUR, WHOLE_RUN, live_chart
 from tuikiln.ui.runfeed import RunHeader, RunLink, SampleBuffer, finite
 from tuikiln.ui.screens.confirm import ConfirmScreen
@@ -29,7 +30,8 @@ from tuikiln.ui.widgets.alarm_banner import AlarmBanner
 from tuikiln.ui.widgets.chart import TemperatureChart
 from tuikiln.ui.widgets.event_log import EventLog
 from tuikiln.ui.widgets.readout import Readout
-from tuikiln.ui.words import unacknowledged
+from tuikiln.ui.widgets.textupdate import update_in_place
+from tuikiln.ui.words import ACK_KEY, unacknowledged
 from tuikiln.units import format_duration
 
 ABOUT = ("The live run. The chart shows the chamber, the load (or its estimated core), the "
@@ -41,18 +43,20 @@ BELL_KINDS = ("alarm-raised", "operator-needed")
 class LiveScreen(Screen[None]):
     """Follows one run through a RunLink."""
 
+    # Footer order is what a narrow terminal keeps: the keys of the run first, then the
+    # way out and help, then the view (at 80 columns the last ones are cut off).
     BINDINGS = [
         Binding("a", "acknowledge", "Acknowledge"),
         Binding("p", "pause", "Pause"),
         Binding("r", "resume", "Resume"),
-        Binding("s", "skip", "Skip step"),
+        Binding("s", "skip", "Skip"),
         Binding("x", "abort", "Abort"),
         Binding("n", "note", "Note"),
+        Binding("q", "leave", "Leave"),
+        Binding("question_mark,f1", "help", "Help"),
         Binding("u", "switch_units", "°C/°F"),
         Binding("z", "zoom", "Zoom"),
         Binding("b", "toggle_bell", "Bell on/off", show=False),
-        Binding("question_mark,f1", "help", "Help"),
-        Binding("q", "leave", "Leave"),
     ]
 
     def __init__(
@@ -80,13 +84,15 @@ class LiveScreen(Screen[None]):
         self.waiting_since: float | None = None
         self.ticks = 0
         self.title_shown = ""
+        self.notice_shown = ""
 
     def compose(self) -> ComposeResult:
         yield Static("", id="live-title")
+        # Full width under the title: the quench pause must be impossible to miss at 80x24.
+        yield Static("", id="live-notice")
         with Horizontal(id="live-main"):
             yield TemperatureChart(id="live-chart")
             with Vertical(id="live-side"):
-                yield Static("", id="live-notice")  # first: it must show at 80x24
                 yield Readout(id="live-readout")
         yield AlarmBanner(id="live-alarms")
         yield EventLog(id="live-events")
@@ -163,14 +169,16 @@ class LiveScreen(Screen[None]):
         banner = self.query_one(AlarmBanner)
         banner.units = units
         banner.alarms = list(status.get("alarms") or ())
-        where = "" if running else "  (the engine is not running this run: read only)"
         elapsed = format_duration(max(0.0, self.now() - header.started))
-        title = self.title_words or f"tuikiln · {header.kiln_name}"
-        words = (f"{title} · run {header.run_id}: {header.profile.name} · {elapsed} in · "
-                 f"chart: {self.zoom}{where}")
+        # Most telling first: a narrow terminal cuts the end of the line off.
+        parts = [f"run {header.run_id}: {header.profile.name}", f"{elapsed} in",
+                 f"chart: {self.zoom}", self.title_words or f"tuikiln · {header.kiln_name}"]
+        if not running:
+            parts.insert(0, "READ ONLY (the engine is not running this run)")
+        words = " · ".join(parts)
         if words != self.title_shown:
             self.title_shown = words
-            self.query_one("#live-title", Static).update(words)
+            update_in_place(self.query_one("#live-title", Static), words)
 
     def last_reading_status(self) -> dict[str, Any]:
         """For a run with no engine: its last sample as a status object."""
@@ -192,24 +200,40 @@ class LiveScreen(Screen[None]):
             self.app.bell()
 
     def maybe_auto_acknowledge(self) -> None:
-        notice = self.query_one("#live-notice", Static)
         waiting = bool(self.status) and self.status.get("step_state") == "waiting-you"
         if not waiting:
             self.waiting_since = None
-            notice.update("")
+            self.show_notice("")
             return
+        banner = f"☛ WAITING FOR YOU: {self.pause_message()}  [press {ACK_KEY}]"
         if self.auto_acknowledge_s is None:
-            notice.update("The oven is waiting for you: press a when done.")
+            self.show_notice(banner)
             return
         if self.waiting_since is None:
             self.waiting_since = time.monotonic()
         left = self.auto_acknowledge_s - (time.monotonic() - self.waiting_since)
         if left <= 0:
             self.waiting_since = None
-            notice.update("The demo acknowledged the pause by itself.")
+            self.show_notice("The demo acknowledged the pause by itself.")
             self.send("ack", "pause")
         else:
-            notice.update(f"Press a to acknowledge. The demo goes on by itself in {left:.0f} s.")
+            self.show_notice(f"{banner}  (the demo goes on by itself in {left:.0f} s)")
+
+    def pause_message(self) -> str:
+        index = self.status.get("step") if self.status else None
+        if self.header and isinstance(index, int) and 0 <= index < len(self.header.plan.steps):
+            step = self.header.plan.steps[index].step
+            if isinstance(step, Pause):
+                return step.message
+        return "the oven waits for you"
+
+    def show_notice(self, words: str) -> None:
+        if words == self.notice_shown:
+            return
+        self.notice_shown = words
+        notice = self.query_one("#live-notice", Static)
+        notice.set_class(bool(words), "-active")
+        update_in_place(notice, words)
 
     # ----- commands -----
 

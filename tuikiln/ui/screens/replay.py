@@ -71,8 +71,8 @@ def verdict_lines(header: RunHeader, samples: SampleBuffer,
 class ReplayScreen(Screen[None]):
     BINDINGS = [
         # Priority: the event log below would take these keys for scrolling.
-        Binding("left", "move(-1)", "← cursor", priority=True),
-        Binding("right", "move(1)", "cursor →", priority=True),
+        Binding("left", "move(-1)", "earlier", priority=True),
+        Binding("right", "move(1)", "later", priority=True),
         Binding("shift+left", "move(-10)", "← ×10", show=False, priority=True),
         Binding("shift+right", "move(10)", "×10 →", show=False, priority=True),
         Binding("home", "jump(0)", "Start", show=False, priority=True),

@@ -8,7 +8,7 @@ from textual.reactive import reactive
 from textual.strip import Strip
 from textual.widget import Widget
 
-from tuikiln.ui.chartdraw import ChartSpec, ChartStyles, render_chart
+from tuikiln.ui.chartdraw import ChartSpec, ChartStyles, draw_plot, plot_layout, render_chart
 
 # Colours chosen to read on dark and on light backgrounds alike (our own choice).
 DARK_PALETTE = {
@@ -32,6 +32,7 @@ LEGEND_NAMES = {
     "setpoint": "setpoint",
     "plan": "plan",
 }
+SHORT_LEGEND_NAMES = {**LEGEND_NAMES, "core": "core est.", "setpoint": "set"}
 
 
 class TemperatureChart(Widget):
@@ -53,46 +54,77 @@ class TemperatureChart(Widget):
         self._strips: list[Strip] = []
 
     def watch_spec(self) -> None:
-        self._cache_key = None
+        # A new spec arrives every second; redraw only when a cell would change.
+        if self.is_mounted and self.size.width > 0 and not self.draw():
+            return
+        self.refresh()
+
+    def on_resize(self) -> None:
+        self.draw()
         self.refresh()
 
     def palette(self) -> dict[str, Style]:
         return DARK_PALETTE if self.app.current_theme.dark else LIGHT_PALETTE
 
+    def draw(self) -> bool:
+        """Lay the chart out again; draw its lines only if they would differ. Whether they did."""
+        width, height = self.size
+        dark = self.app.current_theme.dark
+        if self.spec is None or width <= 0 or height <= 1:
+            changed = bool(self._strips)
+            self._cache_key, self._strips = (width, height, None, dark), []
+            return changed
+        lines = [self.legend(self.palette(), width)]
+        plot_height = height - 1
+        if width < 8 or plot_height < 3:
+            key: tuple = (width, height, dark, lines[0].text, "small")
+            if key == self._cache_key:
+                return False
+            lines += render_chart(self.spec, width, plot_height)
+        else:
+            plot = plot_layout(self.spec, width, plot_height)
+            key = (width, height, dark, lines[0].text, plot.key)
+            if key == self._cache_key:
+                return False
+            styles = ChartStyles(axis=Style(dim=True), now=Style(bold=True),
+                                 cursor=Style(reverse=True, bold=True))
+            lines += draw_plot(plot, self.spec, self.palette(), styles)
+        base = self.rich_style
+        self._cache_key = key
+        self._strips = [strip.apply_style(base) for strip in lines]
+        return True
+
     def strips(self) -> list[Strip]:
         width, height = self.size
-        key = (width, height, id(self.spec), self.app.current_theme.dark)
-        if key != self._cache_key:
-            self._cache_key = key
-            if self.spec is None or width <= 0 or height <= 0:
-                self._strips = []
-            else:
-                styles = ChartStyles(axis=Style(dim=True), now=Style(bold=True),
-                                     cursor=Style(reverse=True, bold=True))
-                base = self.rich_style
-                palette = self.palette()
-                lines = [self.legend(palette, width)]
-                lines += render_chart(self.spec, width, height - 1, palette, styles)
-                self._strips = [strip.apply_style(base) for strip in lines]
+        if self._cache_key is None or self._cache_key[:3] != (
+                width, height, self.app.current_theme.dark):
+            self.draw()
         return self._strips
 
     def legend(self, palette: dict[str, Style], width: int) -> Strip:
-        """One line naming each trace drawn: solid lines are readings, dashed are plans."""
+        """One line naming each trace drawn: solid lines are readings, dashed are plans.
+
+        The longest wording that fits the width: a legend cut off mid-word names nothing."""
         assert self.spec is not None
-        segments = [Segment(" ")]
-        seen: list[str] = []
+        roles: list[tuple[str, bool]] = []
         for trace in self.spec.traces:
-            if trace.role in seen:
-                continue
-            seen.append(trace.role)
-            mark = "┄┄" if trace.dashed else "━━"
-            segments += [Segment(mark, palette.get(trace.role)),
-                         Segment(f" {LEGEND_NAMES.get(trace.role, trace.role)}  ")]
-        if self.spec.now is not None:
-            segments.append(Segment("│ now", Style(bold=True)))
-        if self.spec.cursor is not None:
-            segments.append(Segment("┃ cursor", Style(bold=True)))
-        return Strip(segments).crop_extend(0, width, None)
+            if trace.role not in [role for role, _ in roles]:
+                roles.append((trace.role, trace.dashed))
+        markers = [m for m, shown in (("│ now", self.spec.now is not None),
+                                      ("┃ cursor", self.spec.cursor is not None)) if shown]
+        wordings = [(LEGEND_NAMES, 2, "  ", markers), (SHORT_LEGEND_NAMES, 1, " ", markers),
+                    (SHORT_LEGEND_NAMES, 1, " ", [])]
+        for names, mark_width, gap, shown in wordings:
+            segments = [Segment(" ")]
+            for role, dashed in roles:
+                mark = ("┄" if dashed else "━") * mark_width
+                segments += [Segment(mark, palette.get(role)),
+                             Segment(f" {names.get(role, role)}{gap}")]
+            segments += [Segment(f"{m}{gap}", Style(bold=True)) for m in shown]
+            strip = Strip(segments)
+            if strip.cell_length <= width:
+                break
+        return strip.crop_extend(0, width, None)
 
     def render_line(self, y: int) -> Strip:
         strips = self.strips()

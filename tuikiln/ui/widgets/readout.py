@@ -13,6 +13,7 @@ from textual.widgets import Digits, Static
 
 from tuikiln.plan import Plan
 from tuikiln.ui.runfeed import finite
+from tuikiln.ui.widgets.textupdate import update_in_place
 from tuikiln.ui.words import RUN_STATE_WORDS, step_title, step_words, times_ahead
 from tuikiln.units import Units, format_temp, from_c, symbol
 
@@ -55,12 +56,14 @@ class Readout(Vertical):
         self._shown: dict[str, str] = {}
 
     def put(self, selector: str, content: str | Text) -> None:
-        """Update one line only when its text changed (an update costs a layout pass)."""
+        """Update one line only when its text changed, and lay the screen out again only
+        when its height changed: a layout pass costs more than everything else a second
+        of watching does."""
         plain = content.plain if isinstance(content, Text) else content
         if self._shown.get(selector) == plain:
             return
         self._shown[selector] = plain
-        self.query_one(selector, Static).update(content)
+        update_in_place(self.query_one(selector, Static), content)
 
     def watch_status(self) -> None:
         self.show()
