@@ -11,6 +11,7 @@ from __future__ import annotations
 import argparse
 import asyncio
 import shutil
+import signal
 import tempfile
 from dataclasses import replace
 from pathlib import Path
@@ -75,6 +76,10 @@ async def demo(kiln: Kiln, profile, data_dir: Path, args: argparse.Namespace) ->
                 leave_words="The demo's simulated run has ended. Start your own with "
                 "`tuikiln home`, or run the demo again with `tuikiln demo`."),
             units=args.units or profile.units, bell=not args.no_bell)
+        # A closed terminal (SIGHUP) or a kill (SIGTERM) ends the demo's run cleanly, logged.
+        loop = asyncio.get_running_loop()
+        for signum in (signal.SIGHUP, signal.SIGTERM):
+            loop.add_signal_handler(signum, _closer(engine, app, signum))
         words = await app.run_async()
     finally:
         if not task.done():
@@ -84,3 +89,12 @@ async def demo(kiln: Kiln, profile, data_dir: Path, args: argparse.Namespace) ->
             except (TimeoutError, asyncio.CancelledError, Exception):
                 task.cancel()
     return words or ""
+
+
+def _closer(engine, app, signum: int):  # noqa: ANN001, ANN202 - engine and app
+    def close() -> None:
+        name = signal.Signals(signum).name
+        engine.request_stop("stopped-by-signal", f"the demo was closed ({name})")
+        app.exit()
+
+    return close

@@ -142,7 +142,8 @@ class AlarmRules:
         if slow:
             self._slow_at = now
         if temp is not None:
-            self._check_max(obs, temp)
+            if self.max_c is not None:
+                self._check_max(obs, temp)
             self._check_too_hot(obs, temp)
             if slow:
                 self._check_lagging(obs, temp)
@@ -275,22 +276,25 @@ class AlarmRules:
         self._good_count += 1
         last = self._last_temp
         self._last_temp = (now, temp)
+        jumps = self._jumps
         if last is not None and now - last[0] <= 10.0 and abs(temp - last[1]) > JUMP_C:
-            self._jumps.append(now)
-        while self._jumps and now - self._jumps[0] > JUMP_WINDOW_S:
-            self._jumps.popleft()
+            jumps.append(now)
+        while jumps and now - jumps[0] > JUMP_WINDOW_S:
+            jumps.popleft()
         frozen = self._frozen(obs, temp)
-        if len(self._jumps) >= JUMPS_TO_ALARM:
+        if len(jumps) >= JUMPS_TO_ALARM:
             self._set("sensor-bad", True, now, "Thermocouple fault: the reading jumps by more "
                       f"than {self._d(JUMP_C)} from one second to the next")
         elif frozen:
             self._set("sensor-bad", True, now, f"Thermocouple fault: the reading has stayed at "
                       f"exactly {self._t(temp)} for {format_duration(FROZEN_S)} while heating")
-        elif self._good_count >= GOOD_READINGS_TO_CLEAR and not self._jumps:
+        elif (self._good_count >= GOOD_READINGS_TO_CLEAR and not jumps
+              and "sensor-bad" in self.active):
             self._set("sensor-bad", False, now)
 
     def _frozen(self, obs: Observation, temp: float) -> bool:
-        heating = obs.output_pct is not None and obs.output_pct >= 50.0
+        output = obs.output_pct
+        heating = output is not None and output >= 50.0
         if not heating or temp != self._frozen_value:
             self._frozen_value = temp
             self._frozen_since = obs.now
@@ -307,7 +311,7 @@ class AlarmRules:
                           f"maximum of {self._t(self.max_c)}")
         else:
             self._max_count = 0
-            if temp < self.max_c - 5.0:
+            if temp < self.max_c - 5.0 and "over-kiln-max" in self.active:
                 self._set("over-kiln-max", False, obs.now)
 
     def _check_too_hot(self, obs: Observation, temp: float) -> None:
@@ -321,7 +325,7 @@ class AlarmRules:
                           f"{self._d(temp - (target or 0.0))} above the target {self._t(target)}")
         else:
             self._hot_count = 0
-            if not applies or temp < limit - 2.0:
+            if (not applies or temp < limit - 2.0) and "too-hot" in self.active:
                 self._set("too-hot", False, obs.now)
 
     def _check_lagging(self, obs: Observation, temp: float) -> None:

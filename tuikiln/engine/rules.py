@@ -147,7 +147,7 @@ class RunRules:
             core = watch.model.core_c
             self.core_c = None if core != core else float(core)  # NaN: not started yet
         load_now = reading.load_c if reading.load_c is not None else self.core_c
-        was_pause = s.waiting_for_operator or s.acknowledged
+        was_pause = s.acknowledged or s.state == st.WAITING_YOU  # waiting_for_operator or ack
         step_tick = s.tick(now, usable, load_now)
         if watch is not None:
             if self.watching_hold and s.state != st.EVENING:
@@ -173,8 +173,11 @@ class RunRules:
         obs.rated_ramp = isinstance(step, Ramp) and step.rate_c_per_s is not None
         obs.heat_off = s.heat_off
         obs.paused_since = s.paused_since
-        events.extend(self.alarms.evaluate(obs))
-        critical = self.alarms.critical()
+        alarms = self.alarms
+        raised = alarms.evaluate(obs)
+        if raised:
+            events.extend(raised)
+        critical = alarms.critical() if alarms.active else None
         if self._abort_reason is not None:
             return self._finish(now, events, st.ABORTED, self._abort_reason, safe=True)
         if critical is not None:
