@@ -386,8 +386,15 @@ class AlarmRules:
         rising_off = (self._off_since is not None and now - self._off_since >= STUCK_OFF_FOR_S
                       and rise is not None and rise >= STUCK_RISE_C)
         sp = obs.setpoint_c
+        # Far above the setpoint and rising steadily through the whole window: a reading that
+        # jumps back after the door was shut (a step, then flat) is not a stuck relay.
+        half = self._temp_ago(now, STUCK_RISE_WINDOW_S / 2)
+        last = self._temp_ago(now, STUCK_RISE_WINDOW_S / 4)
+        steady = (before is not None and half is not None and last is not None
+                  and half - before >= NO_RISE_C / 2 and temp - half >= NO_RISE_C / 2
+                  and temp - last >= NO_RISE_C / 4)
         far_above = (sp is not None and temp > sp + self.limits.runaway
-                     and rise is not None and rise >= NO_RISE_C)
+                     and rise is not None and rise >= NO_RISE_C and steady)
         if rising_off or far_above:
             how = ("while the heater output is off" if rising_off else
                    f"{self._d(temp - (sp or 0.0))} above the setpoint")
