@@ -34,6 +34,7 @@ from tuikiln.analysis import temper as temper_rules
 from tuikiln.analysis.whatif import AlarmSpan, Rerun, alarm_spans, rerun_rules
 from tuikiln.engine import states as st
 from tuikiln.engine.alarms import ALARMS, CRITICAL
+from tuikiln.engine.stepper import within_band
 from tuikiln.limits import Limits
 from tuikiln.profile import Cool, Hold, Pause, Profile, Ramp, Step, describe_step
 from tuikiln.units import Units, delta_from_c, format_duration, format_rate, format_temp, symbol
@@ -63,8 +64,8 @@ _EVENING = st.STATE_CODE[st.EVENING]
 
 
 def in_band(temp_c: np.ndarray | float, target_c: float, band_c: float) -> np.ndarray | bool:
-    """The stepper's band rule (tuikiln.engine.stepper.Stepper._hold), for arrays as well."""
-    return np.abs(np.asarray(temp_c) - target_c) <= band_c
+    """The engine's band rule (tuikiln.engine.stepper.within_band), for arrays as well."""
+    return within_band(np.asarray(temp_c), target_c, band_c)
 
 
 @dataclass(eq=False)

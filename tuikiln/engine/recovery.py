@@ -43,6 +43,7 @@ from dataclasses import dataclass
 from typing import Any
 
 from tuikiln.engine import states as st
+from tuikiln.engine.stepper import within_band
 from tuikiln.profile import Hold, Pause
 from tuikiln.runlog import RunInfo, RunLog
 
@@ -180,7 +181,7 @@ def restore_stepper(stepper: Any, plan: ResumePlan, now: float, temp_c: float | 
         stepper.detector = None
         stepper.equalize = None
         band = stepper.band_c(step)
-        in_band = temp_c is not None and abs(temp_c - stepper.target_c) <= band
+        in_band = temp_c is not None and within_band(temp_c, stepper.target_c, band)
         if logged in (st.HOLDING, st.SLIPPED):
             if in_band:
                 stepper.state, stepper.state_since = st.HOLDING, now

@@ -66,6 +66,12 @@ class StepTick:
     events: list[Event] = field(default_factory=list)
 
 
+
+def within_band(temp_c, target_c: float, band_c: float):  # noqa: ANN001, ANN201
+    """The band rule, one for the engine, recovery and replay: `temp_c` (a number or a numpy
+    array) is at temperature when it is no more than `band_c` from `target_c`."""
+    return abs(temp_c - target_c) <= band_c
+
 class Stepper:
     def __init__(
         self,
@@ -307,7 +313,7 @@ class Stepper:
         step = self.step
         assert isinstance(step, Hold) and self.target_c is not None
         band = self._step_band
-        in_band = abs(temp - self.target_c) <= band
+        in_band = within_band(temp, self.target_c, band)
         if self.state == st.REACHING:
             if not in_band:
                 return
