@@ -200,3 +200,17 @@ def test_command_mistakes_exit_1_without_traceback(
     err = capsys.readouterr().err
     assert err.startswith("tuikiln: ") and words in err
     assert "Traceback" not in err
+
+
+def test_fast_block_sum_matches_the_plain_loop_on_a_noisy_day() -> None:
+    # A day-long 1 Hz hold with noise and a slow drift: the block solver must give the
+    # additive rule's own result (the one-piece-at-a-time loop) to 1e-9 relative.
+    from tuikiln.analysis.temper import _accumulate, _accumulate_loop
+
+    rng = np.random.default_rng(7)
+    seconds = 86_400
+    kelvins = 478.0 + 2.0 * np.sin(np.arange(seconds) / 3000.0) + rng.normal(0, 0.4, seconds)
+    hours = np.full(seconds, 1.0 / 3600.0)
+    fast = _accumulate(kelvins, hours, 20.0)
+    plain = _accumulate_loop(kelvins.tolist(), hours.tolist(), 20.0, None)
+    assert fast == pytest.approx(plain, rel=1e-9)
