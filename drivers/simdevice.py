@@ -27,7 +27,7 @@ from drivers.errors import BadReply, NoAnswer
 from simulator import SimConfig, SimulatedKiln
 from simulator.config import check_sim_settings
 
-# 2026-01-01 00:00:00 UTC: simulated runs get stable, recognisable timestamps.
+# 2026-01-01 00:00:00 UTC: the clock's start when a caller wants stable timestamps.
 SIM_EPOCH = 1_767_225_600.0
 
 Problems = list[tuple[tuple[str | int, ...], str]]
@@ -69,9 +69,11 @@ class SimClock:
 
 class SimulatorDevice(Device):
     def __init__(self, kiln: SimulatedKiln, speed: float | None = None, *,
-                 seed: int = 0) -> None:
+                 seed: int = 0, start: float | None = None) -> None:
         self.kiln = kiln
-        self.clock = SimClock(kiln, speed)
+        # Simulated time starts at the wall clock's whole second (so a simulated run is logged
+        # on the day it was made), unless the caller fixes it (SIM_EPOCH) for repeatable logs.
+        self.clock = SimClock(kiln, speed, float(int(time.time())) if start is None else start)
         config = kiln.config
         self.capabilities = Capabilities(
             can_write_setpoint=True, can_stop_heating=True,

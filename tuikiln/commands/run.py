@@ -67,6 +67,9 @@ def add_arguments(parser: argparse.ArgumentParser) -> None:
                         help="run in the foreground without a screen, a line per event")
     parser.add_argument("--auto-continue", action="store_true",
                         help="simulator only: acknowledge pause steps at once (for trials)")
+    parser.add_argument("--no-screen", action="store_true",
+                        help="start the run in the background without opening the live screen "
+                        "(the screen opens only in an interactive terminal anyway)")
     parser.add_argument("--detached", action="store_true", help=argparse.SUPPRESS)
     parser.epilog = ("exit status: 0 completed, 1 mistake in the files or options, "
                      "2 aborted or stopped by a signal, 3 stopped by an alarm, "
@@ -243,12 +246,28 @@ def start_background(args: argparse.Namespace, kiln: Any, profile: Any, data_dir
             return code
         for active in control.active_runs(data_dir):
             if active.pid == child.pid:
-                return _announce(active, kiln, profile, log_path,
+                code = _announce(active, kiln, profile, log_path,
                                  parse_speed(args.speed, kiln.is_simulator))
+                if code == 0 and not args.no_screen and _interactive():
+                    return _attach_screen(args, data_dir)
+                return code
         time.sleep(0.05)
     print(f"tuikiln: the run is taking long to start; see {log_path} and `tuikiln status`",
           file=sys.stderr)
     return EXIT_CANNOT_START
+
+
+def _interactive() -> bool:
+    return sys.stdin.isatty() and sys.stdout.isatty() and sys.stderr.isatty()
+
+
+def _attach_screen(args: argparse.Namespace, data_dir: Path) -> int:
+    """The live screen on the run just started; leaving it leaves the run going."""
+    from tuikiln.commands import watch
+
+    time.sleep(0.3)  # let the run write its first samples
+    return watch.run(argparse.Namespace(data=str(data_dir), kiln=args.kiln, units=None,
+                                        no_bell=False))
 
 
 def _announce(active: Any, kiln: Any, profile: Any, log_path: Path,
