@@ -47,6 +47,18 @@ def load(name: str):  # noqa: ANN201 - a module
     return module
 
 
+def _derived(figures: dict[str, dict]) -> None:
+    """Figures computed from two others: the engine's overhead over the simulator alone."""
+    engine = figures.get("simulated_s_per_wall_s", {}).get("value")
+    alone = figures.get("sim_speed_plate_1s", {}).get("value")
+    if engine and alone:
+        figures["engine_overhead"] = {
+            "value": round(alone / engine, 2), "unit": "x slower than the simulator alone",
+            "target": "report (lower is better)", "ok": None,
+            "note": "engine + rules + run log + in-process simulator, against the simulator",
+        }
+
+
 def machine() -> dict[str, str]:
     import numpy
 
@@ -89,6 +101,7 @@ def main(argv: list[str] | None = None) -> int:
             figures[figure] = dict(values)
         if not args.json:
             print(f"  ({name}: {time.perf_counter() - t0:.1f} s)", file=sys.stderr)
+    _derived(figures)
     elapsed = time.perf_counter() - started
     if args.json:
         print(json.dumps({"machine": machine(), "elapsed_s": round(elapsed, 1),
