@@ -15,7 +15,7 @@ from __future__ import annotations
 
 import time
 from collections.abc import Callable, Sequence
-from typing import TextIO
+from typing import Any, TextIO
 
 from tuikiln.alerts.fanout import AlertFanout, TerminalSink
 from tuikiln.alerts.hooks import HookRunner
@@ -50,3 +50,23 @@ def build_alerts(
     if hooks:
         sinks.append(HookRunner(hooks, kiln_name=kiln_name, emit=emit, units=units, clock=clock))
     return AlertFanout(sinks)
+
+
+def alerts_for_engine(kiln: Any, engine_box: list[Any], *, terminal: TextIO | None,
+                      clock: Callable[[], float]) -> AlertFanout:
+    """The fan-out wired to a run engine that will sit in `engine_box[0]`: events the
+    alerts make themselves (a failed hook, a refused remote command) go to the engine's log,
+    and remote commands go to the engine's command path (which refuses what adds heat)."""
+
+    def emit(event: Event) -> None:
+        if engine_box:
+            engine_box[0]._emit(event)
+
+    def on_command(name: str, args: dict, source: str) -> None:
+        if engine_box:
+            arg = args.get("alarm") or args.get("text") or args.get("reason")
+            engine_box[0].command(name, arg, source)
+
+    return build_alerts(kiln_name=kiln.name, emit=emit, on_command=on_command,
+                        mqtt=kiln.mqtt, hooks=kiln.hooks, units=kiln.units, terminal=terminal,
+                        bell=bool(getattr(kiln, "bell", False)), clock=clock)

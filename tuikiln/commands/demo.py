@@ -10,6 +10,7 @@ from __future__ import annotations
 
 import argparse
 import asyncio
+import contextlib
 import shutil
 import signal
 import tempfile
@@ -17,7 +18,7 @@ from dataclasses import replace
 from pathlib import Path
 
 from tuikiln.errors import UserError
-from tuikiln.kiln import Kiln
+from tuikiln.kiln import Kiln, load_kiln
 from tuikiln.profile import load_profile
 
 HELP = "watch a whole harden-and-temper cycle on the built-in simulator, sped up"
@@ -45,6 +46,12 @@ def run(args: argparse.Namespace) -> int:
     kiln = Kiln(name="Demo oven (simulated)", units=profile.units,
                 device={"kind": "sim", "speed": args.speed})
     kiln = replace(kiln, text=f'name = "{kiln.name}"\n[device]\nkind = "sim"\n')
+    if args.kiln:
+        # The demo always runs on the simulator, but a kiln file's alerts (MQTT, hooks) are
+        # used, so a person can try their phone notification on the demo's quench pause.
+        yours = load_kiln(args.kiln)
+        kiln = replace(kiln, name=yours.name, mqtt=yours.mqtt, hooks=yours.hooks,
+                       bell=yours.bell)
     temporary = args.data is None
     data_dir = Path(args.data) if args.data else Path(tempfile.mkdtemp(prefix="tuikiln-demo-"))
     try:
@@ -63,7 +70,9 @@ async def demo(kiln: Kiln, profile, data_dir: Path, args: argparse.Namespace) ->
     from tuikiln.ui.loglink import LogLink
     from tuikiln.ui.screens.live import LiveScreen
 
-    engine = build_engine(kiln, profile, data_dir, args.speed)
+    engine = build_engine(kiln, profile, data_dir, args.speed, alerts=True)
+    for sink in engine.sinks:
+        await sink.start()
     task = asyncio.create_task(run_engine(engine))
     try:
         run_id = await wait_for_run_id(engine, task)
@@ -88,6 +97,9 @@ async def demo(kiln: Kiln, profile, data_dir: Path, args: argparse.Namespace) ->
                 await asyncio.wait_for(task, 5.0)
             except (TimeoutError, asyncio.CancelledError, Exception):
                 task.cancel()
+        for sink in engine.sinks:
+            with contextlib.suppress(Exception):
+                await asyncio.wait_for(sink.stop(), 10.0)
     return words or ""
 
 

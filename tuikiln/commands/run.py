@@ -378,47 +378,9 @@ async def _first_temperature(device: Any) -> float | None:
 
 def _sinks(kiln: Any, out: Any, engine_box: list[Any], device: Any) -> list[Any]:
     """The alert fan-out (terminal, MQTT, hooks)."""
-    def emit(event: Any) -> None:
-        if engine_box:
-            engine_box[0]._emit(event)
+    from tuikiln.alerts import alerts_for_engine
 
-    def on_command(name: str, args: dict, source: str) -> None:
-        if engine_box:
-            arg = args.get("alarm") or args.get("text") or args.get("reason")
-            engine_box[0].command(name, arg, source)
-
-    try:
-        from tuikiln.alerts import build_alerts
-    except ImportError:
-        return [_Printer(out)]
-    fanout = build_alerts(kiln_name=kiln.name, emit=emit, on_command=on_command,
-                          mqtt=kiln.mqtt, hooks=kiln.hooks, units=kiln.units, terminal=out,
-                          bell=bool(getattr(kiln, "bell", False)), clock=device.clock.now)
-    return [fanout]
-
-
-class _Printer:
-    """A line per event, where tuikiln.alerts is not installed."""
-
-    def __init__(self, out: Any) -> None:
-        self.out = out
-
-    def event(self, event: Any) -> None:
-        if event.kind != "step-state":
-            print(f"{time.strftime('%H:%M:%S', time.localtime(event.time))} {event.message}",
-                  file=self.out, flush=True)
-
-    def state(self, state: Any) -> None:
-        pass
-
-    def reading(self, sample: Any) -> None:
-        pass
-
-    async def start(self) -> None:
-        pass
-
-    async def stop(self) -> None:
-        pass
+    return [alerts_for_engine(kiln, engine_box, terminal=out, clock=device.clock.now)]
 
 
 async def _serve_run(engine: Any, kiln: Any, data_dir: Path, sinks: list[Any], out: Any,

@@ -38,14 +38,25 @@ class EngineControl:
         """Nothing to close: the engine is not the screen's to stop."""
 
 
-def build_engine(kiln: Kiln, profile: Profile, data_dir: Path, speed: float | None
-                 ) -> RunEngine:
+def build_engine(kiln: Kiln, profile: Profile, data_dir: Path, speed: float | None, *,
+                 alerts: bool = False) -> RunEngine:
+    """An engine in this process; with `alerts`, the kiln file's MQTT and hooks are wired
+    (no terminal lines: the screen is the terminal). Start and stop `engine.sinks`."""
     device = open_device(kiln.device, kiln.base_dir, speed=speed)
     limits = Limits().merged(kiln.alarms).merged(profile.limits)
     shown = "max" if speed is None else f"{speed:g}"
-    return RunEngine(device, profile, kiln=KilnInfo(kiln.name, kiln.units, kiln.max_c,
-                                                      kiln.text),
-                     limits=limits, runlog=RunLog.in_folder(data_dir), speed=shown)
+    box: list[RunEngine] = []
+    sinks = []
+    if alerts and (kiln.mqtt is not None or kiln.hooks):
+        from tuikiln.alerts import alerts_for_engine
+
+        sinks.append(alerts_for_engine(kiln, box, terminal=None, clock=device.clock.now))
+    engine = RunEngine(device, profile, kiln=KilnInfo(kiln.name, kiln.units, kiln.max_c,
+                                                        kiln.text),
+                       limits=limits, runlog=RunLog.in_folder(data_dir), speed=shown,
+                       sinks=sinks)
+    box.append(engine)
+    return engine
 
 
 async def run_engine(engine: RunEngine) -> str:
