@@ -12,15 +12,6 @@ from tuikiln.units import format_duration, format_temp
 
 HELP = "steer or watch the run going on"
 
-HELPS = {
-    "pause": "pause the run: hold the current setpoint and stop the step clocks",
-    "resume": "resume a paused run",
-    "skip": "end the current step now and go on with the next",
-    "abort": "end the run now and turn the heat off",
-    "ack": "acknowledge an alarm (or all of them) or a pause step's prompt",
-    "note": "add a note to the run log",
-    "status": "show what the run is doing (--json: the status object)",
-}
 
 
 def add_arguments(parser: argparse.ArgumentParser) -> None:

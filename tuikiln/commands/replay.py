@@ -25,11 +25,6 @@ from tuikiln.errors import FileProblems, UserError
 from tuikiln.limits import LIMIT_KEYS, LimitKey, Limits
 
 HELP = "hold a logged run (or another tool's CSV log) against its profile, step by step"
-COMMAND_HELPS = {
-    "replay": "hold a logged run against its profile: verdict per step, alarms, what-if",
-    "report": "write a run's report as HTML (chart included) or Markdown (.md)",
-    "import": "replay another tool's CSV temperature log against a profile",
-}
 
 
 def _option(key: LimitKey) -> str:
