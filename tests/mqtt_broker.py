@@ -45,6 +45,8 @@ class Broker:
     users: dict[str, str] = field(default_factory=lambda: dict(USERS))
     host: str = "127.0.0.1"
     process: subprocess.Popen | None = None
+    tls: tuple[str, str, str] | None = None
+    """(CA file, server certificate, server key): the listener speaks TLS only."""
 
     @property
     def config_path(self) -> str:
@@ -64,6 +66,8 @@ class Broker:
             first = False
         lines = [
             f"listener {self.port} 127.0.0.1",
+            *([f"cafile {self.tls[0]}", f"certfile {self.tls[1]}", f"keyfile {self.tls[2]}"]
+              if self.tls else []),
             "allow_anonymous false",
             f"password_file {passwd}",
             "log_dest stderr",
@@ -82,7 +86,7 @@ class Broker:
             # mosquitto drops to its own user: it must read the password file and (with
             # persistence) write its database here.
             entry = pwd.getpwnam("mosquitto")
-            for path in (self.folder, passwd, self.config_path):
+            for path in (self.folder, passwd, self.config_path, *(self.tls or ())):
                 os.chown(path, entry.pw_uid, entry.pw_gid)
             os.chmod(passwd, 0o600)
 
@@ -141,10 +145,12 @@ def mosquitto_factory() -> Iterator[Callable[..., Broker]]:
     _need_mosquitto()
     made: list[Broker] = []
 
-    def make(persistence: bool = False) -> Broker:
+    def make(persistence: bool = False, tls: Callable[[str], tuple[str, str, str]] | None = None
+             ) -> Broker:
         folder = tempfile.mkdtemp(prefix="tuikiln-mosquitto-")
         os.chmod(folder, 0o755)
-        broker = Broker(folder=folder, port=free_port(), persistence=persistence)
+        broker = Broker(folder=folder, port=free_port(), persistence=persistence,
+                        tls=tls(folder) if tls else None)
         made.append(broker)
         broker.write_config()
         broker.start()
