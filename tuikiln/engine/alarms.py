@@ -30,7 +30,7 @@ CRITICAL = "critical"
 ALARMS: dict[str, tuple[str, str]] = {
     "too-hot": (WARNING, "too hot"),
     "hold-slipped": (WARNING, "hold out of band"),
-    "never-reached": (WARNING, "hold never reached"),
+    "never-reached": (WARNING, "target never reached"),
     "lagging": (WARNING, "falling behind the ramp"),
     "no-rise": (WARNING, "not heating"),
     "heat-stuck-on": (CRITICAL, "heat stuck on"),
@@ -413,12 +413,23 @@ class AlarmRules:
                       "its clock is stopped")
         elif not slipped:
             self._set("hold-slipped", False, now)
-        waiting = (in_hold and obs.step_state == st.REACHING and obs.step_started_at is not None
-                   and obs.paused_since is None)
-        if waiting and now - (obs.step_started_at or now) >= self.limits.reach_within:
-            self._set("never-reached", True, now, f"The hold at {self._t(obs.target_c)} has not "
-                      f"been reached in {format_duration(self.limits.reach_within)}")
-        elif not waiting:
+        # Waiting for the temperature to come into the band: a hold (from its start), a `max`
+        # ramp (from its start), or a ramp whose setpoint is at the target (from then). An oven
+        # that cannot get that hot would otherwise heat at full power for ever.
+        since: float | None = None
+        if obs.paused_since is None:
+            if obs.step_state == st.REACHING and in_hold:
+                since = obs.step_started_at
+            elif obs.step_kind == "ramp" and obs.step_state == st.HEATING_FULL:
+                since = obs.step_started_at
+            elif obs.step_kind == "ramp" and obs.step_state == st.REACHING:
+                since = obs.state_since
+        if since is not None and now - since >= self.limits.reach_within:
+            what = "The hold at" if in_hold else "The target"
+            self._set("never-reached", True, now, f"{what} {self._t(obs.target_c)} has not "
+                      f"been reached in {format_duration(self.limits.reach_within)}: the oven "
+                      "may not get that hot (elements, a heavy load, the door)")
+        elif since is None:
             self._set("never-reached", False, now)
 
     def _check_paused(self, obs: Observation) -> None:
