@@ -7,6 +7,7 @@ Fault-to-alarm expectations are tuikiln's own design (tuikiln/engine/alarms.py).
 
 from __future__ import annotations
 
+import numpy as np
 import pytest
 
 from drivers.factory import open_device
@@ -265,3 +266,22 @@ async def test_a_target_the_oven_cannot_reach_is_reported(tmp_path):
                                           max_c=1250.0)
     assert "never-reached" in watcher.raised()
     assert outcome == st.ABORTED
+
+
+async def test_starting_at_a_hold_heats_to_the_hold_first(tmp_path):
+    # `tuikiln run --at-step 2` on ramp-then-hold: the hold is at the ramp's target, so the
+    # oven must heat there; holding "at whatever the oven is now" would never temper.
+    from drivers.factory import open_device as open_sim
+
+    profile = parse_profile('units = "C"\n[[step]]\nramp = "100/h"\nto = 205\n'
+                            '[[step]]\nhold = "20m"\n', "p.toml")
+    kiln = parse_kiln('name = "Test oven"\n[device]\nkind = "sim"\n', str(tmp_path / "k.toml"))
+    device = open_sim(kiln.device, kiln.base_dir, speed=0.0)
+    async with device:
+        engine = RunEngine(device, profile, kiln=KilnInfo(kiln.name, "C", kiln.max_c),
+                           limits=Limits(), runlog=RunLog.in_folder(tmp_path), start_index=1)
+        assert await engine.run() == st.COMPLETED
+    samples = RunLog.in_folder(tmp_path).samples(engine.run_id)
+    assert np.nanmax(samples["setpoint_c"]) == pytest.approx(205.0, abs=0.1)
+    holding = samples["state"] == st.STATE_CODE[st.HOLDING]
+    assert holding.any() and samples["chamber_c"][holding].min() > 195.0

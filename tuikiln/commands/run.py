@@ -61,8 +61,9 @@ def add_arguments(parser: argparse.ArgumentParser) -> None:
     parser.add_argument("--speed", metavar="N|max", default=None,
                         help="simulator only: run N times faster than real time, or as fast "
                         "as it goes (max)")
-    parser.add_argument("--from", dest="from_step", metavar="STEP", type=int, default=None,
-                        help="start at this step (1 = the first), e.g. after a power cut")
+    parser.add_argument("--at-step", dest="from_step", metavar="STEP", type=int, default=None,
+                        help="start at this step (1 = the first); a hold or pause there keeps "
+                        "the temperature the steps before it lead to")
     parser.add_argument("--headless", action="store_true",
                         help="run in the foreground without a screen, a line per event")
     parser.add_argument("--auto-continue", action="store_true",
@@ -107,7 +108,7 @@ def _prepare(args: argparse.Namespace) -> tuple[Any, Any, float | None, int]:
     start_index = 0
     if args.from_step is not None:
         if not 1 <= args.from_step <= len(profile.steps):
-            raise UserError(f"--from must be a step number from 1 to {len(profile.steps)}")
+            raise UserError(f"--at-step must be a step number from 1 to {len(profile.steps)}")
         start_index = args.from_step - 1
     return kiln, profile, speed, start_index
 
@@ -121,7 +122,7 @@ def _prepare_resume(args: argparse.Namespace, data_dir: Path) -> tuple[Any, Any,
     from tuikiln.runlog import RUNLOG_NAME, RunLog
 
     if args.from_step is not None:
-        raise UserError("--from and --resume do not go together: a resumed run carries on "
+        raise UserError("--at-step and --resume do not go together: a resumed run carries on "
                         "where it was")
     kiln = load_kiln(args.kiln)
     if not (data_dir / RUNLOG_NAME).exists():
@@ -226,7 +227,7 @@ def start_background(args: argparse.Namespace, kiln: Any, profile: Any, data_dir
     if args.speed is not None:
         command += ["--speed", str(args.speed)]
     if args.from_step is not None:
-        command += ["--from", str(args.from_step)]
+        command += ["--at-step", str(args.from_step)]
     if args.auto_continue:
         command.append("--auto-continue")
     with open(log_path, "ab") as log_file:

@@ -72,6 +72,14 @@ def within_band(temp_c, target_c: float, band_c: float):  # noqa: ANN001, ANN201
     array) is at temperature when it is no more than `band_c` from `target_c`."""
     return abs(temp_c - target_c) <= band_c
 
+
+def planned_temperature_before(steps: tuple[Step, ...], index: int) -> float | None:
+    """The target the steps before `index` lead to (the last ramp's or cool's), if any."""
+    for step in reversed(steps[:index]):
+        if isinstance(step, Ramp | Cool):
+            return step.to_c
+    return None
+
 class Stepper:
     def __init__(
         self,
@@ -110,6 +118,10 @@ class Stepper:
         self.next_reminder_at: float | None = None
         self.acknowledged = False
         self._pending: list[Event] = []
+        if start_index > 0:
+            # Started part-way (`tuikiln run --at-step N`): a hold or a pause there keeps the
+            # temperature the steps before it lead to, not whatever the oven is at now.
+            self.target_c = planned_temperature_before(self.steps, start_index)
 
     # ----- the profile -----
 
@@ -262,7 +274,7 @@ class Stepper:
                 new_state = st.COOLING
         else:
             if self.setpoint_c is None:
-                self.setpoint_c = temp
+                self.setpoint_c = self.target_c if self.target_c is not None else temp
             new_state = st.WAITING_YOU
         description = describe_step(step, self.units)
         label = f" ({step.label})" if step.label else ""
