@@ -12,6 +12,7 @@ import importlib
 import os
 import sys
 from collections.abc import Sequence
+from typing import NoReturn
 
 from tuikiln.errors import FileProblems, UserError
 
@@ -72,9 +73,17 @@ COMMAND_HELP: dict[str, str] = {
 }
 
 
+class _Parser(argparse.ArgumentParser):
+    """argparse, but a mistake on the command line exits 1 like every other user mistake."""
+
+    def error(self, message: str) -> NoReturn:
+        self.print_usage(sys.stderr)
+        self.exit(1, f"{self.prog}: {message}\n")
+
+
 def _global_options() -> argparse.ArgumentParser:
     """Options every command takes, before or after its name."""
-    common = argparse.ArgumentParser(add_help=False)
+    common = _Parser(add_help=False)
     common.add_argument(
         "--data",
         metavar="DIR",
@@ -90,28 +99,35 @@ def _global_options() -> argparse.ArgumentParser:
     return common
 
 
-def _chosen_command(argv: Sequence[str]) -> str | None:
-    """The command named on the line; only its module is imported (Textual stays unloaded
-    for `check`, and a command still being written cannot break the others)."""
+def _first_word(argv: Sequence[str]) -> str | None:
+    """The first word on the line that is not an option (or an option's value)."""
     skip_next = False
     for word in argv:
         if skip_next:
             skip_next = False
-            continue
-        if word in ("--data", "--kiln"):
+        elif word in ("--data", "--kiln"):
             skip_next = True
-            continue
-        if word in COMMANDS:
+        elif not word.startswith("-"):
             return word
-        if not word.startswith("-"):
-            return None
     return None
+
+
+def _chosen_command(argv: Sequence[str]) -> str | None:
+    """The command named on the line; only its module is imported (Textual stays unloaded
+    for `check`, and a command still being written cannot break the others)."""
+    word = _first_word(argv)
+    return word if word in COMMANDS else None
+
+
+def _unknown_command(argv: Sequence[str]) -> str | None:
+    word = _first_word(argv)
+    return None if word is None or word in COMMANDS else word
 
 
 def build_parser(argv: Sequence[str] = ()) -> argparse.ArgumentParser:
     chosen = _chosen_command(argv)
     common = _global_options()
-    parser = argparse.ArgumentParser(
+    parser = _Parser(
         prog="tuikiln",
         description="Run and watch heat treatments on a small electric oven.",
         parents=[common],
@@ -137,6 +153,13 @@ def _version() -> str:
 
 def main(argv: Sequence[str] | None = None) -> int:
     argv = list(sys.argv[1:] if argv is None else argv)
+    unknown = _unknown_command(argv)
+    if unknown is not None:
+        from tuikiln.limits import suggest
+
+        print(f'tuikiln: unknown command "{unknown}"{suggest(unknown, list(COMMANDS))}; '
+              "`tuikiln --help` lists them", file=sys.stderr)
+        return 1
     parser = build_parser(argv)
     args = parser.parse_args(argv)
     if not getattr(args, "command", None):
