@@ -138,6 +138,12 @@ class Stepper:
         step = steps[value] if 0 <= value < len(steps) else None
         self.step: Step | None = step
         self._next_hold = value + 1 < len(steps) and isinstance(steps[value + 1], Hold)
+        # A cool that leads to a hold, perhaps through pauses (put the parts in, then temper):
+        # the oven is caught at the hold's temperature and kept there while the person acts.
+        after = value + 1
+        while after < len(steps) and isinstance(steps[after], Pause):
+            after += 1
+        self._cool_to_hold = after < len(steps) and isinstance(steps[after], Hold)
         self._step_band = self.band_c(step)
 
     def band_c(self, step: Step | None = None) -> float:
@@ -262,7 +268,7 @@ class Stepper:
                 # Before a hold (a temper after the quench) the controller is given the
                 # target, so it catches the temperature there instead of letting it sink
                 # through the band; otherwise the setpoint goes right down.
-                self.setpoint_c = step.to_c if self._next_hold else FREE_COOL_SETPOINT_C
+                self.setpoint_c = step.to_c if self._cool_to_hold else FREE_COOL_SETPOINT_C
                 self.heat_off = True
                 new_state = st.COASTING
             else:
@@ -378,7 +384,7 @@ class Stepper:
             if temp is None:
                 return False
             if step.rate_c_per_s is None:
-                if self._next_hold:
+                if self._cool_to_hold:
                     return temp <= step.to_c + self.limits.band  # the hold waits for the band
                 return temp <= step.to_c
             at_target = self.setpoint_c is not None and self.setpoint_c <= step.to_c
