@@ -284,10 +284,11 @@ class _Checker:
         else:
             try:
                 rate = parse_rate(raw_rate, self.units)
-            except ValueError as exc:
-                hint = ' or "free"' if kind == "cool" else ""
-                self.report(where + (kind,), f'step {number}: "{kind}" needs a rate such as '
-                            f'"400/h", "10/min"{" or max" if kind == "ramp" else hint}: {exc}')
+            except ValueError:
+                choices = ('"free" (heater off) or a rate such as "200/h" or "5/min"'
+                           if kind == "cool" else 'a rate such as "400/h" or "10/min", or "max"')
+                self.report(where + (kind,), f'step {number}: "{kind}" takes {choices}, '
+                            f"not {raw_rate!r}")
         target = table.get("to")
         if target is None:
             self.report(where, f'step {number}: a {kind} needs "to", the temperature to reach')

@@ -23,7 +23,7 @@ from tuikiln.profile import load_profile
 
 HELP = "watch a whole harden-and-temper cycle on the built-in simulator, sped up"
 DEMO_PROFILE = Path(__file__).resolve().parents[2] / "profiles" / "demo-harden-temper.toml"
-DEFAULT_SPEED = 120.0
+DEFAULT_SPEED = 200.0
 
 
 def add_arguments(parser: argparse.ArgumentParser) -> None:

@@ -27,6 +27,29 @@ from tuikiln.limits import LIMIT_KEYS, LimitKey, Limits
 HELP = "hold a logged run (or another tool's CSV log) against its profile, step by step"
 
 
+# Column names tried when none is given: the usual ones, then `tuikiln export`'s own.
+TIME_COLUMNS = ("time", "t_s")
+CHAMBER_COLUMNS = ("chamber", "chamber_c")
+
+
+def _columns(path: Path, args: argparse.Namespace) -> tuple[str, str, str | None]:
+    """The time, chamber and load columns: as given, else the first known name in the header
+    (so a CSV written by `tuikiln export` is read back without options)."""
+    try:
+        with open(path, encoding="utf-8-sig", errors="replace") as handle:
+            header = [name.strip() for name in handle.readline().split(args.delimiter)]
+    except OSError:
+        header = []  # read_csv_log says what is wrong with the file
+
+    def pick(given: str | None, known: tuple[str, ...]) -> str:
+        if given:
+            return given
+        return next((name for name in known if name in header), known[0])
+
+    load = args.load_column or ("load_c" if "t_s" in header and "load_c" in header else None)
+    return pick(args.time_column, TIME_COLUMNS), pick(args.chamber_column, CHAMBER_COLUMNS), load
+
+
 def _option(key: LimitKey) -> str:
     return "--" + key.name.replace("_", "-")
 
@@ -48,10 +71,11 @@ def add_arguments(parser: argparse.ArgumentParser) -> None:
         parser.add_argument("--json", dest="json_output", action="store_true",
                             help="print JSON")
     csv = parser.add_argument_group("CSV logs")
-    csv.add_argument("--time-column", default="time", metavar="NAME",
-                     help='header of the time column (default "time")')
-    csv.add_argument("--chamber-column", default="chamber", metavar="NAME",
-                     help='header of the chamber temperature column (default "chamber")')
+    csv.add_argument("--time-column", default=None, metavar="NAME",
+                     help='header of the time column (default "time", or "t_s" as in '
+                     'tuikiln export)')
+    csv.add_argument("--chamber-column", default=None, metavar="NAME",
+                     help='header of the chamber column (default "chamber", or "chamber_c")')
     csv.add_argument("--load-column", metavar="NAME",
                      help="header of a load thermocouple column, if there is one")
     csv.add_argument("--units", type=str.upper, choices=("C", "F"), default="C",
@@ -114,6 +138,8 @@ def run(args: argparse.Namespace) -> int:
                             **kwargs)  # type: ignore[arg-type]
     if args.command == "report":
         path = Path(args.output)
+        if path.suffix.lower() not in (".html", ".htm", ".md", ".markdown"):
+            raise UserError(f"{path}: the report is HTML or Markdown: name the file .html or .md")
         markdown = path.suffix.lower() in (".md", ".markdown")
         text = (report_mod.render_markdown(result, whatif) if markdown
                 else report_mod.render_html(result, whatif))
@@ -206,9 +232,10 @@ def _load_csv(args: argparse.Namespace, path: str) -> Loaded:
 
     if not args.against:
         raise UserError("a CSV log needs --against PROFILE: the profile to hold it against")
+    time_column, chamber_column, load_column = _columns(path, args)
     try:
-        layout = CsvLayout(time_column=args.time_column, chamber_column=args.chamber_column,
-                           load_column=args.load_column, units=args.units,
+        layout = CsvLayout(time_column=time_column, chamber_column=chamber_column,
+                           load_column=load_column, units=args.units,
                            time_format=args.time_format, delimiter=args.delimiter)
     except ValueError as exc:
         raise UserError(str(exc)) from None

@@ -82,7 +82,11 @@ def _export(args: argparse.Namespace, log: Any) -> int:
     if info is None:
         raise UserError(f"no run {args.run_id} in the log (see `tuikiln runs`)")
     samples = log.samples(info.id)
-    out = open(args.output, "w", newline="") if args.output else sys.stdout  # noqa: SIM115
+    try:
+        out = open(args.output, "w", newline="") if args.output else sys.stdout  # noqa: SIM115
+    except OSError as exc:
+        raise UserError(f"{args.output}: cannot write the samples: {exc.strerror or exc}"
+                        ) from None
     try:
         writer = csv.writer(out)
         writer.writerow(CSV_COLUMNS)
@@ -100,4 +104,7 @@ def _export(args: argparse.Namespace, log: Any) -> int:
     finally:
         if args.output:
             out.close()
+    if args.output:
+        print(f"Wrote {len(samples['t'])} samples of run {info.id} to {args.output}",
+              file=sys.stderr)
     return 0
