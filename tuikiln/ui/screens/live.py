@@ -293,8 +293,12 @@ class LiveScreen(Screen[None]):
         self.app.push_screen(HelpScreen(self, ABOUT))
 
     def action_leave(self) -> None:
+        words = self.leave_words
+        if (self.status is not None and self.status.get("state") == "ended"
+                and "goes on" in words):  # the words for a run that is still going
+            words = f"Run {self.status.get('run')} has ended: see it with `tuikiln replay last`."
         leave: Callable[[str], None] | None = getattr(self.app, "leave", None)
         if leave is not None:
-            leave(self.leave_words)
+            leave(words)
         else:
-            self.app.exit(self.leave_words)
+            self.app.exit(words)
