@@ -35,7 +35,7 @@ async def test_shows_chart_temperatures_and_step(tmp_path: Path) -> None:
         text = screen_text(pilot.app.screen)
         assert f"chamber {c_to_f(engine.chamber_c):.0f} °F" in text
         assert "heating to 1200 °F at 900°F/h" in text  # the demo profile's first step
-        assert "step 1 of 9: ramp (preheat)" in text
+        assert "step 1 of 8: ramp (preheat)" in text
         assert "━━ chamber" in text and "│ now" in text
         assert any(0x2800 < ord(ch) <= 0x28FF for ch in text)  # braille dots were drawn
         assert "next step" in text and "you're needed" in text and "end" in text

@@ -23,7 +23,7 @@ SIZE = (100, 30)
 
 def past_run(data_dir: Path) -> ScriptedEngine:
     engine = ScriptedEngine(data_dir)
-    engine.event("step-start", "Step 1 of 9 (preheat): heat at 900°F/h to 1200 °F", index=0)
+    engine.event("step-start", "Step 1 of 8 (preheat): heat at 900°F/h to 1200 °F", index=0)
     engine.advance(1200)
     engine.raise_alarm("overshoot", "chamber 1530 °F, 40 °F above the target")
     engine.event("note", "Note: blade looks even", text="blade looks even")
@@ -136,7 +136,7 @@ async def test_run_started_from_home_goes_on_after_leaving(tmp_path: Path) -> No
                     break
             live = pilot.app.screen
             assert isinstance(live, LiveScreen) and live.status is not None
-            assert "step 1 of 9: ramp (preheat)" in screen_text(live)
+            assert "step 1 of 8: ramp (preheat)" in screen_text(live)
             await pilot.press("q")
             await pilot.pause(0.3)
             assert isinstance(pilot.app.screen, HomeScreen)

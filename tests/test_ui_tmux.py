@@ -53,7 +53,7 @@ def test_demo_in_a_real_terminal(tmux: Tmux, tmp_path: Path) -> None:
                f"--speed 120 --wait 0 --no-bell --data {tmp_path}")
     tmux("new-session", "-d", "-s", "demo", "-x", "100", "-y", "30", command)
     pid = int(tmux("display-message", "-p", "-t", "demo", "#{pane_pid}").strip())
-    screen = tmux.wait_for("chamber", "step 1 of 9: ramp (preheat)", "heating to 1200 °F")
+    screen = tmux.wait_for("chamber", "step 1 of 8: ramp (preheat)", "heating to 1200 °F")
     assert "┤" in screen and "│ now" in screen  # the chart's axis and the now marker
     assert any(0x2800 < ord(ch) <= 0x28FF for ch in screen)  # braille traces
     assert "target  1200 °F" in screen and "next step" in screen
