@@ -49,6 +49,7 @@ class SimClock:
         self.speed = speed
         self.start = start
         self._yielded_at = -math.inf
+        self._paced_from: tuple[float, float] | None = None  # (wall, simulated) pacing origin
 
     def now(self) -> float:
         return self.start + self.kiln.time_s
@@ -63,7 +64,17 @@ class SimClock:
                 self._yielded_at = time.monotonic()
             return
         # Real time passes first, so a reading taken meanwhile never comes from the future.
-        await asyncio.sleep(seconds / self.speed)
+        # Paced against a schedule, not sleep by sleep, so the time the engine and a screen
+        # in the same process spend between sleeps does not slow the simulation down.
+        wall = time.monotonic()
+        if self._paced_from is None or self._paced_from[0] > wall:
+            self._paced_from = (wall, self.kiln.time_s)
+        start_wall, start_sim = self._paced_from
+        due = start_wall + (self.kiln.time_s + seconds - start_sim) / self.speed
+        if due < wall - 1.0:  # fell far behind (a stalled loop): do not race to catch up
+            self._paced_from = (wall, self.kiln.time_s)
+            due = wall + seconds / self.speed
+        await asyncio.sleep(max(0.0, due - wall))
         self.kiln.advance(seconds)
 
 
