@@ -177,8 +177,8 @@ class Stepper:
         """The person answered a pause step; it ends on the next tick."""
         if isinstance(self.step, Pause) and self.state == st.WAITING_YOU and not self.acknowledged:
             self.acknowledged = True
-            self._emit(now, ev.OPERATOR_ACKNOWLEDGED, "The pause is answered: going on with the next step",
-                       index=self.index)
+            self._emit(now, ev.OPERATOR_ACKNOWLEDGED,
+                       "The pause is answered: going on with the next step", index=self.index)
             return self._take_events()
         return []
 

@@ -39,7 +39,7 @@ class EngineControl:
 
 
 def build_engine(kiln: Kiln, profile: Profile, data_dir: Path, speed: float | None, *,
-                 alerts: bool = False) -> RunEngine:
+                 alerts: bool = False, tick_s: float = 1.0) -> RunEngine:
     """An engine in this process; with `alerts`, the kiln file's MQTT and hooks are wired
     (no terminal lines: the screen is the terminal). Start and stop `engine.sinks`."""
     device = open_device(kiln.device, kiln.base_dir, speed=speed)
@@ -54,7 +54,7 @@ def build_engine(kiln: Kiln, profile: Profile, data_dir: Path, speed: float | No
     engine = RunEngine(device, profile, kiln=KilnInfo(kiln.name, kiln.units, kiln.max_c,
                                                         kiln.text),
                        limits=limits, runlog=RunLog.in_folder(data_dir), speed=shown,
-                       sinks=sinks)
+                       sinks=sinks, tick_s=tick_s)
     box.append(engine)
     return engine
 
