@@ -46,6 +46,9 @@ def run(args: argparse.Namespace) -> int:
     kiln = Kiln(name="Demo oven (simulated)", units=profile.units,
                 device={"kind": "sim", "speed": args.speed})
     kiln = replace(kiln, text=f'name = "{kiln.name}"\n[device]\nkind = "sim"\n')
+    # Sped up, the usual reminder every 5 simulated minutes would come every second or two:
+    # remind no more often than the demo waits before it answers a pause by itself.
+    kiln = replace(kiln, alarms={"pause_remind": max(300.0, args.wait * args.speed)})
     if args.kiln:
         # The demo always runs on the simulator, but a kiln file's alerts (MQTT, hooks) are
         # used, so a person can try their phone notification on the demo's quench pause.
