@@ -94,7 +94,10 @@ class Readout(Vertical):
         output = finite(status.get("output_pct"))
         lines.append(f"heater  {output:.0f} %" if output is not None else "heater  --")
         setpoint = finite(status.get("setpoint_c"))
-        lines.append(f" · set {format_temp(setpoint, units)}")
+        if status.get("step_state") == "coasting" and (setpoint is None or setpoint <= 1.0):
+            lines.append(" · heat off")  # a free cool: the setpoint is only "as low as it goes"
+        else:
+            lines.append(f" · set {format_temp(setpoint, units)}")
         self.put("#temps", lines)
         state = str(status.get("state") or "")
         words = RUN_STATE_WORDS.get(state, state)
