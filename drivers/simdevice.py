@@ -102,7 +102,7 @@ class SimulatorDevice(Device):
         return cls(SimulatedKiln(config, seed=config.seed), speed, seed=config.seed)
 
     def _check_link(self, what: str) -> None:
-        if not self.kiln.link_up:
+        if not self.kiln.line_answers:
             raise NoAnswer(f"the simulated controller does not answer ({what})",
                            hint="a simulated link drop or controller reboot; it comes back")
         share = self.kiln.line_noise_share
@@ -115,7 +115,7 @@ class SimulatorDevice(Device):
     async def read(self) -> Reading:
         self.polls += 1
         kiln = self.kiln
-        if not kiln.link_up or kiln.line_noise_share > 0.0:
+        if not kiln.line_answers or kiln.line_noise_share > 0.0:
             self._check_link("reading")
         r = kiln.read()
         # r.time_s is the kiln's time now, so this is self.clock.now() without the call.

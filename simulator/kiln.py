@@ -36,7 +36,7 @@ class SimReading:
     output_pct: float
     sensor_fault: bool
     running: bool
-    link_up: bool
+    line_answers: bool
     """False while the serial line is silent (link-drop, controller rebooting)."""
     garbled: bool
     """True while line noise garbles replies."""
@@ -296,7 +296,7 @@ class SimulatedKiln:
     # ----- what the controller reports -----
 
     @property
-    def link_up(self) -> bool:
+    def line_answers(self) -> bool:
         return not (self.link_dropped or self.rebooting)
 
     def read(self) -> SimReading:
@@ -324,7 +324,7 @@ class SimulatedKiln:
             output_pct=c.output_pct,
             sensor_fault=self.tc_open,
             running=c.running,
-            link_up=self.link_up,
+            line_answers=self.line_answers,
             garbled=self.line_noise_share > 0.0,
         )
 

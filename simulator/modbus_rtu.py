@@ -109,7 +109,7 @@ class RtuResponder:
         address = frame[0]
         if address not in (0, self.address):
             return None
-        if not self.kiln.link_up:
+        if not self.kiln.line_answers:
             return None
         self.requests += 1
         answer = self._answer(frame[1:-2])

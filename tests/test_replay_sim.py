@@ -57,7 +57,7 @@ def simulate_run(log: RunLog, profile_text: str, *, faults: tuple[Fault, ...] = 
             for event in rules.command(now, "ack", None, "test").events:
                 recorder.event(event)
         r = kiln.read()
-        decision = rules.tick(now, TickInput(r.chamber_c, r.load_c, r.output_pct, r.link_up,
+        decision = rules.tick(now, TickInput(r.chamber_c, r.load_c, r.output_pct, r.line_answers,
                                              r.sensor_fault))
         for event in decision.events:
             recorder.event(event)

@@ -101,10 +101,10 @@ def test_link_drop_silences_the_line_for_its_duration() -> None:
     responder = RtuResponder(kiln)
     assert responder.reply(READ_ALL) is not None
     kiln.advance(120.0)
-    assert not kiln.read().link_up
+    assert not kiln.read().line_answers
     assert responder.reply(READ_ALL) is None
     kiln.advance(40.0)
-    assert kiln.read().link_up and crc_ok(responder.reply(READ_ALL) or b"")
+    assert kiln.read().line_answers and crc_ok(responder.reply(READ_ALL) or b"")
 
 
 def test_line_noise_garbles_about_its_share_of_replies() -> None:
@@ -121,10 +121,10 @@ def test_controller_reboot_resets_or_keeps_settings(keep: bool) -> None:
     oven = replace(OvenConfig(), keep_settings=keep)
     kiln = _kiln(Fault("controller-reboot", 1800.0, 5.0), oven=oven)
     _run(kiln, 400.0, 1802.0)
-    assert not kiln.read().link_up and kiln.truth.heater_w == 0.0
+    assert not kiln.read().line_answers and kiln.truth.heater_w == 0.0
     kiln.advance(10.0)
     r = kiln.read()
-    assert r.link_up
+    assert r.line_answers
     if keep:
         assert r.setpoint_c == 400.0 and r.running
     else:

@@ -20,7 +20,7 @@ from tuikiln import control
 from tuikiln.control import ActiveRun
 from tuikiln.errors import FileProblems, UserError
 from tuikiln.kiln import Kiln, load_kiln
-from tuikiln.runlog import RUNLOG_NAME, RunInfo, RunLog, default_data_dir
+from tuikiln.runlog import RunInfo, RunLog, default_data_dir
 from tuikiln.ui.loglink import Control, LogLink
 
 PACKAGE_PROFILES = Path(__file__).resolve().parents[2] / "profiles"
@@ -76,21 +76,8 @@ class Launcher:
         """The run going on this kiln (its engine process is alive), if any."""
         for active in control.active_runs(self.data_dir):
             if control.kiln_slug(active.kiln) == control.kiln_slug(self.kiln.name):
-                if active.run is not None and self._ended(int(active.run)):
-                    return None  # the engine is still closing down a run that has ended
                 return active
         return None
-
-    def _ended(self, run_id: int) -> bool:
-        path = self.data_dir / RUNLOG_NAME
-        if not path.exists():
-            return False
-        log = RunLog(path)
-        try:
-            info = log.run(run_id)
-        finally:
-            log.close()
-        return info is not None and info.ended is not None
 
     def link(self, run_id: int, live: bool = True) -> LogLink:
         control = connect_control(self.data_dir, run_id) if live else None

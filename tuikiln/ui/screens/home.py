@@ -28,6 +28,7 @@ from tuikiln.units import format_duration, format_temp
 
 ABOUT = ("Home. Pick a profile and press Enter to see its plan (s there starts it), or pick a "
          "past run and press Enter to replay it. Tab moves between the lists.")
+GOING_REFRESH_S = 3.0
 OUTCOME_MARK = {"completed": "✔", "running": "●", "aborted": "✖", "stopped-by-alarm": "✖",
                 "unfinished": "?", "engine-failed": "✖", "stopped-by-signal": "■"}
 
@@ -84,7 +85,13 @@ class HomeScreen(Screen[None]):
         runs.border_title = "Recent runs (Enter: replay or watch)"
         self.watch(self.app, "units", lambda _u: self.action_refresh(), init=False)
         self.action_refresh()
+        # A run started or ended elsewhere (another terminal) shows in the kiln line.
+        self.set_interval(GOING_REFRESH_S, self.refresh_going)
         profiles.focus()
+
+    def on_screen_resume(self) -> None:
+        """Back from the live, preview or replay screen: what it did shows at once."""
+        self.action_refresh()
 
     def show_kiln(self, going: ActiveRun | None) -> None:
         kiln = self.launcher.kiln
@@ -99,6 +106,10 @@ class HomeScreen(Screen[None]):
         else:
             text.append("No run is going. Data folder: " + str(self.launcher.data_dir))
         self.query_one("#home-kiln", Static).update(text)
+
+    @work(exclusive=True, group="home-going")
+    async def refresh_going(self) -> None:
+        self.show_kiln(await asyncio.to_thread(self.launcher.going_run))
 
     @work(exclusive=True, group="home-refresh")
     async def action_refresh(self) -> None:
