@@ -29,7 +29,6 @@ import argparse
 import json
 import os
 import random
-import select
 import signal
 import subprocess
 import sys
@@ -40,6 +39,10 @@ from dataclasses import dataclass, field
 from pathlib import Path
 
 REPO = Path(__file__).resolve().parents[1]
+sys.path.insert(0, str(REPO))  # run as a script too: `python tests/crash_trials.py`
+
+from tests.simserve import ServedSim  # noqa: E402
+
 PYTHON = sys.executable
 TICK_S = 1.0
 
@@ -74,21 +77,16 @@ timeout = 0.5
 """
 
 
-class ServedSim:
+class TrialSim(ServedSim):
     """`tuikiln sim serve --tcp 0` in its own process group; stopped at the end."""
 
     def __init__(self, speed: float, *extra: str) -> None:
-        self.proc = subprocess.Popen(
-            [PYTHON, "-m", "tuikiln", "sim", "serve", "--tcp", "0", "--speed", str(speed),
-             "--seed", "1", *extra], cwd=REPO, stdout=subprocess.PIPE,
-            stderr=subprocess.DEVNULL, text=True, start_new_session=True)
-        assert self.proc.stdout is not None
-        ready, _, _ = select.select([self.proc.stdout], [], [], 20.0)
-        line = self.proc.stdout.readline().strip() if ready else ""
-        if not line.startswith("tcp://"):
+        super().__init__("--tcp", "0", "--speed", str(speed), "--seed", "1", *extra,
+                         wait_s=20.0)
+        if not self.where.startswith("tcp://"):
             self.stop()
-            raise RuntimeError(f"sim serve did not start ({line!r})")
-        self.port = int(line.rsplit(":", 1)[1])
+            raise RuntimeError(f"sim serve did not start ({self.where!r})")
+        self.port = int(self.where.rsplit(":", 1)[1])
 
     def registers(self) -> list[int]:
         client = _client(self.port)
@@ -106,14 +104,6 @@ class ServedSim:
         finally:
             client.close()
 
-    def stop(self) -> None:
-        if self.proc.poll() is None:
-            os.killpg(self.proc.pid, signal.SIGTERM)
-            try:
-                self.proc.wait(timeout=5)
-            except subprocess.TimeoutExpired:
-                os.killpg(self.proc.pid, signal.SIGKILL)
-                self.proc.wait(timeout=5)
 
 
 def _client(port: int):  # noqa: ANN202 - pymodbus' client type
@@ -197,7 +187,7 @@ class Trial:
 
     def run(self) -> TrialResult:
         start = time.monotonic()
-        sim = ServedSim(self.speed)
+        sim = TrialSim(self.speed)
         try:
             (self.folder / "kiln.toml").write_text(kiln_text(sim.port, self.policy))
             (self.folder / "p.toml").write_text(PROFILE.replace("{hold}", str(self.hold_s)))

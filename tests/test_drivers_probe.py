@@ -6,13 +6,13 @@ from __future__ import annotations
 import importlib.util
 import json
 import os
-import select
 import subprocess
 import sys
 from pathlib import Path
 
 import pytest
 
+from tests.simserve import ServedSim
 from tests.test_drivers_maps import SIM_DRAFT
 
 ROOT = Path(__file__).resolve().parents[1]
@@ -22,28 +22,17 @@ needs_sim_serve = pytest.mark.skipif(
 )
 
 
-def _first_line(proc: subprocess.Popen[str], timeout: float = 10.0) -> str:
-    assert proc.stdout is not None
-    ready, _, _ = select.select([proc.stdout], [], [], timeout)
-    assert ready, "sim serve printed nothing"
-    return proc.stdout.readline().strip()
-
-
 @pytest.fixture
 def serve():
-    procs: list[subprocess.Popen[str]] = []
+    served: list[ServedSim] = []
 
     def start(*where: str) -> str:
-        proc = subprocess.Popen(
-            [sys.executable, "-m", "tuikiln", "sim", "serve", *where, "--speed", "max"],
-            stdout=subprocess.PIPE, stderr=subprocess.DEVNULL, text=True, cwd=ROOT)
-        procs.append(proc)
-        return _first_line(proc)
+        served.append(ServedSim(*where, "--speed", "max"))
+        return served[-1].where
 
     yield start
-    for proc in procs:
-        proc.kill()
-        proc.wait(5)
+    for sim in served:
+        sim.stop()
 
 
 def _kiln(tmp_path: Path, port: str) -> Path:

@@ -4,7 +4,6 @@ from __future__ import annotations
 
 import os
 import select
-import signal
 import subprocess
 import sys
 import time
@@ -18,6 +17,7 @@ from pymodbus.exceptions import ModbusException
 from pymodbus.framer.rtu import FramerRTU
 
 from simulator.modbus_rtu import crc16, with_crc
+from tests.simserve import ServedSim
 
 REPO = Path(__file__).resolve().parents[1]
 MBPOLL = "/usr/bin/mbpoll"
@@ -31,37 +31,10 @@ def test_crc_matches_pymodbus_and_the_spec_example() -> None:
         assert crc16(frame).to_bytes(2, "little") == FramerRTU.compute_CRC(frame).to_bytes(2, "big")
 
 
-class Served:
-    """A `tuikiln sim serve` subprocess; always killed at teardown."""
-
-    def __init__(self, *options: str) -> None:
-        self.proc = subprocess.Popen(
-            [sys.executable, "-m", "tuikiln", "sim", "serve", *options],
-            cwd=REPO, stdout=subprocess.PIPE, stderr=subprocess.PIPE, text=True,
-            start_new_session=True,
-        )
-        assert self.proc.stdout is not None
-        ready, _, _ = select.select([self.proc.stdout], [], [], 15.0)
-        line = self.proc.stdout.readline().strip() if ready else ""
-        if not line:
-            self.stop()
-            raise AssertionError(f"sim serve printed nothing: {self.proc.stderr.read()}")
-        self.where = line
-
-    def stop(self) -> None:
-        if self.proc.poll() is None:
-            os.killpg(self.proc.pid, signal.SIGTERM)
-            try:
-                self.proc.wait(timeout=5)
-            except subprocess.TimeoutExpired:
-                os.killpg(self.proc.pid, signal.SIGKILL)
-                self.proc.wait(timeout=5)
-
-
 @pytest.fixture
-def served(request: pytest.FixtureRequest) -> Iterator[Served]:
+def served(request: pytest.FixtureRequest) -> Iterator[ServedSim]:
     options = getattr(request, "param", ("--pty", "--speed", "60"))
-    server = Served(*options)
+    server = ServedSim(*options)
     try:
         yield server
     finally:
@@ -85,7 +58,7 @@ def _values(output: str) -> dict[int, int]:
 
 
 @pytest.mark.skipif(not os.path.exists(MBPOLL), reason="mbpoll is not installed (Debian mbpoll)")
-def test_mbpoll_reads_writes_and_the_oven_heats(served: Served) -> None:
+def test_mbpoll_reads_writes_and_the_oven_heats(served: ServedSim) -> None:
     assert served.where.startswith("/dev/")
     first = _values(_mbpoll("-r", "1", "-c", "6", "-1", served.where))
     assert set(first) == {1, 2, 3, 4, 5, 6}
@@ -100,7 +73,7 @@ def test_mbpoll_reads_writes_and_the_oven_heats(served: Served) -> None:
     assert later[1] > first[1] + 150  # more than 15 °C warmer already
 
 
-async def test_pymodbus_client_over_the_pty(served: Served) -> None:
+async def test_pymodbus_client_over_the_pty(served: ServedSim) -> None:
     client = AsyncModbusSerialClient(served.where, framer=FramerType.RTU, baudrate=9600,
                                      timeout=1, retries=1)
     assert await client.connect()
@@ -122,7 +95,7 @@ async def test_pymodbus_client_over_the_pty(served: Served) -> None:
 
 @pytest.mark.parametrize("served", [("--tcp", "0", "--speed", "max", "--no-load-tc")],
                          indirect=True)
-async def test_pymodbus_client_over_tcp_at_full_speed(served: Served) -> None:
+async def test_pymodbus_client_over_tcp_at_full_speed(served: ServedSim) -> None:
     port = int(served.where.rsplit(":", 1)[1])
     client = AsyncModbusTcpClient("127.0.0.1", port=port, framer=FramerType.RTU, timeout=1,
                                   retries=1)
@@ -144,7 +117,7 @@ async def test_pymodbus_client_over_tcp_at_full_speed(served: Served) -> None:
 
 
 @pytest.mark.parametrize("served", [("--pty", "--fault", "link-drop@0+1h")], indirect=True)
-async def test_link_drop_on_the_wire(served: Served) -> None:
+async def test_link_drop_on_the_wire(served: ServedSim) -> None:
     client = AsyncModbusSerialClient(served.where, framer=FramerType.RTU, baudrate=9600,
                                      timeout=0.3, retries=0)
     assert await client.connect()
@@ -157,7 +130,7 @@ async def test_link_drop_on_the_wire(served: Served) -> None:
 
 @pytest.mark.parametrize("served", [("--pty", "--fault", "line-noise@0", "--seed", "3")],
                          indirect=True)
-def test_line_noise_on_the_wire(served: Served) -> None:
+def test_line_noise_on_the_wire(served: ServedSim) -> None:
     fd = os.open(served.where, os.O_RDWR | os.O_NOCTTY)
     try:
         import tty
