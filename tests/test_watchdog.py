@@ -140,9 +140,9 @@ async def test_a_controller_reboot_mid_hold_is_armed_again_and_the_run_completes
 async def test_a_served_controller_that_reboots_comes_back_stopped_and_is_armed_again(tmp_path):
     # Over Modbus the driver writes "run" once; the rebooted controller (setpoint 0, stopped)
     # must be told both again. `sim serve` is its own process, as a real controller would be.
-    from tests.crash_trials import ServedSim
+    from tests.crash_trials import TrialSim
 
-    sim = ServedSim(120.0, "--fault", "controller-reboot@6m+60s")
+    sim = TrialSim(120.0, "--fault", "controller-reboot@6m+60s")
     try:
         kiln = parse_kiln(f'name = "Served"\nunits = "C"\nmax = 1100\n[device]\nkind = "modbus"\n'
                           f'port = "tcp://127.0.0.1:{sim.port}"\nmap = "sim"\ntimeout = 0.5\n',
