@@ -124,6 +124,9 @@ class AlarmRules:
     _recent_sp: deque[tuple[float, float]] = field(default_factory=deque)
     _slow_at: float = -1e300
     _pending: list[Event] = field(default_factory=list)
+    unjudged: frozenset[str] = frozenset()
+    """Codes never raised: a replay of a log without the signal they judge (a log with no
+    heater output column cannot say whether the heater was asked for power)."""
 
     # ----- public -----
 
@@ -192,6 +195,8 @@ class AlarmRules:
             return  # the common case, every tick: nothing to clear
         alarm = self.active.get(code)
         if on and alarm is None:
+            if code in self.unjudged:
+                return
             severity, _ = ALARMS[code]
             self.active[code] = Alarm(code, severity, words, now)
             prefix = "ALARM" if severity == CRITICAL else "Warning"
