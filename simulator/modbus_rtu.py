@@ -16,7 +16,7 @@ from __future__ import annotations
 import random
 from collections.abc import Callable
 
-from simulator.kiln import RegisterError, SimulatedKiln
+from tuikiln.simulator.kiln import RegisterError, SimulatedKiln
 
 READ_HOLDING = 3
 WRITE_SINGLE = 6
