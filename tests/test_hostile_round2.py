@@ -13,10 +13,10 @@ import asyncio
 import json
 import stat
 
-from drivers.fake import FirstOrderOven, ScriptedDevice
 from tests.test_engine_rules import drive, rules_for
 from tests.test_recovery import HOLD, Sink, crashed_run, engine_for, in_hold_for
 from tuikiln import events as ev
+from tuikiln.drivers.fake import FirstOrderOven, ScriptedDevice
 from tuikiln.engine import recovery
 from tuikiln.engine import states as st
 from tuikiln.plaintext import plain

@@ -37,9 +37,9 @@ from collections.abc import Callable
 from dataclasses import dataclass
 from typing import Any
 
-from drivers.base import Device, Reading
-from drivers.errors import DeviceError, NotSupported, SensorFault
 from tuikiln import events as ev
+from tuikiln.drivers.base import Device, Reading
+from tuikiln.drivers.errors import DeviceError, NotSupported, SensorFault
 from tuikiln.engine import recovery
 from tuikiln.engine import states as st
 from tuikiln.engine.recovery import ResumePlan
