@@ -13,6 +13,8 @@ import asyncio
 import json
 import stat
 
+import pytest
+
 from tests.test_engine_rules import drive, rules_for
 from tests.test_recovery import HOLD, Sink, crashed_run, engine_for, in_hold_for
 from tuikiln import events as ev
@@ -237,3 +239,70 @@ def test_the_terminal_sink_strips_escape_codes():
     shown = out.getvalue()
     assert "\x1b" not in shown and "\x07" not in shown and "hi" in shown
     shown.encode("utf-8")
+
+
+# ---- fuzz finds: numbers at the edges give one line and exit 1 ----------------------------
+
+HUGE = "9" * 400  # a TOML integer far beyond a float (OverflowError in float())
+
+
+def tuikiln_cli(*args: str, cwd=None, env=None):
+    import os
+    import subprocess
+    import sys
+
+    run_env = {**os.environ, **(env or {})}
+    return subprocess.run([sys.executable, "-m", "tuikiln", *args], capture_output=True,
+                          text=True, timeout=120, cwd=cwd, env=run_env)
+
+
+def one_line_error(proc, *words: str) -> str:
+    assert proc.returncode != 0, proc.stdout
+    assert "Traceback" not in proc.stderr, proc.stderr
+    lines = [line for line in proc.stderr.splitlines() if line.strip()]
+    assert lines, "no message"
+    for word in words:
+        assert word in proc.stderr, proc.stderr
+    return proc.stderr
+
+
+EDGE_PROFILES = {
+    "huge-to": (f'[[step]]\nramp = "600/h"\nto = {HUGE}\n', ':5: step 1: "to"'),
+    "huge-band": (f'[[step]]\nramp = "600/h"\nto = 300\n[[step]]\nhold = "10m"\nband = {HUGE}\n',
+                  ':8: step 2: "band"'),
+    "huge-limit": (f'[[step]]\nramp = "600/h"\nto = 300\n[limits]\nband = {HUGE}\n',
+                   ':7: "band"'),
+    "huge-hold-number": (f'[[step]]\nramp = "max"\nto = 300\n[[step]]\nhold = {HUGE}\n',
+                         ':7: step 2: "hold"'),
+    "hold-1e300": ('[[step]]\nramp = "max"\nto = 300\n[[step]]\nhold = 1e300\n',
+                   ':7: step 2: "hold"'),
+    "hold-a-century": ('[[step]]\nramp = "max"\nto = 300\n[[step]]\nhold = "876000h"\n',
+                       ':7: step 2: "hold"'),
+    "tiny-rate": ('[[step]]\nramp = "0.0000001/h"\nto = 300\n', ':4: step 1: "ramp"'),
+    "rate-rounding-to-zero": (f'[[step]]\nramp = "0.{"0" * 330}1/min"\nto = 300\n',
+                              ':4: step 1: "ramp"'),
+}
+
+
+@pytest.mark.parametrize("name", sorted(EDGE_PROFILES))
+def test_edge_numbers_in_a_profile_give_file_and_line(tmp_path, name):
+    body, where = EDGE_PROFILES[name]
+    path = tmp_path / "p.toml"
+    path.write_text(f'name = "edge"\nunits = "C"\n{body}', encoding="utf-8")
+    one_line_error(tuikiln_cli("plan", str(path)), f"p.toml{where}")
+
+
+@pytest.mark.parametrize("every", ["nan", "inf", "1e-320", "0", "-3"])
+def test_plan_every_refuses_what_cannot_be_listed(tmp_path, every):
+    path = tmp_path / "p.toml"
+    path.write_text('name = "e"\nunits = "C"\n[[step]]\nramp = "600/h"\nto = 300\n',
+                    encoding="utf-8")
+    one_line_error(tuikiln_cli("plan", str(path), "--csv", f"--every={every}"), "--every")
+
+
+def test_a_kiln_max_too_large_for_a_float_is_a_mistake(tmp_path):
+    from tuikiln.errors import FileProblems
+    from tuikiln.kiln import parse_kiln
+
+    with pytest.raises(FileProblems, match='"max"'):
+        parse_kiln(f'name = "k"\nmax = {HUGE}\n', "k.toml")
