@@ -20,7 +20,7 @@ import math
 import struct
 from collections.abc import Sequence
 
-from simulator.kiln import RegisterError, SimulatedKiln
+from tuikiln.simulator.kiln import RegisterError, SimulatedKiln
 
 COILS, DISCRETE, HOLDING, INPUT = "coils", "discrete", "holding", "input"
 Tables = dict[str, dict[int, int]]

@@ -19,8 +19,8 @@ from __future__ import annotations
 import random
 from collections.abc import Callable
 
-from simulator.kiln import RegisterError, SimulatedKiln
-from simulator.layouts import COILS, DISCRETE, HOLDING, INPUT, Layout
+from tuikiln.simulator.kiln import RegisterError, SimulatedKiln
+from tuikiln.simulator.layouts import COILS, DISCRETE, HOLDING, INPUT, Layout
 
 READ_COILS = 1
 READ_DISCRETE = 2

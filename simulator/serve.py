@@ -19,10 +19,10 @@ import tty
 from dataclasses import replace
 from pathlib import Path
 
-from simulator.config import SimConfig, check_sim_settings, parse_fault
-from simulator.kiln import SimulatedKiln
-from simulator.layouts import LAYOUTS
-from simulator.modbus_rtu import RtuResponder
+from tuikiln.simulator.config import SimConfig, check_sim_settings, parse_fault
+from tuikiln.simulator.kiln import SimulatedKiln
+from tuikiln.simulator.layouts import LAYOUTS
+from tuikiln.simulator.modbus_rtu import RtuResponder
 
 QUIET_S = 0.02  # a gap this long ends a frame whose length the function code does not tell
 MAX_SPEED_SLICE_S = 300.0  # simulated seconds per pacer turn when running "as fast as possible"
@@ -324,7 +324,7 @@ def main(args: argparse.Namespace, prog: str = "sim") -> int:
 
 
 def build_parser() -> argparse.ArgumentParser:
-    parser = argparse.ArgumentParser(prog="python -m simulator.serve", description=__doc__)
+    parser = argparse.ArgumentParser(prog="python -m tuikiln.simulator.serve", description=__doc__)
     add_serve_arguments(parser)
     return parser
 

@@ -15,11 +15,11 @@ import struct
 import pytest
 from pymodbus.simulator import DataType, SimData, SimDevice
 
-from drivers.factory import open_device
-from drivers.maps import load_map
-from drivers.modbus import ModbusDevice, ModbusSettings
 from tests.test_drivers_wire import PtyWire, start_serial_server
 from tuikiln import events as ev
+from tuikiln.drivers.factory import open_device
+from tuikiln.drivers.maps import load_map
+from tuikiln.drivers.modbus import ModbusDevice, ModbusSettings
 from tuikiln.engine import states as st
 from tuikiln.engine.runner import KilnInfo, RunEngine
 from tuikiln.kiln import parse_kiln
