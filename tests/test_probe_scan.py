@@ -15,11 +15,11 @@ from pymodbus import FramerType
 from pymodbus.client import AsyncModbusSerialClient
 from pymodbus.simulator import DataType, SimData, SimDevice
 
-from drivers.maps import load_map
-from drivers.modbus import ModbusDevice, ModbusSettings
 from tests.simserve import ServedSim
 from tests.test_drivers_wire import PtyWire, start_serial_server
 from tuikiln.commands.probe_scan import ScanRange, ScanResult, report_lines, scan_pass
+from tuikiln.drivers.maps import load_map
+from tuikiln.drivers.modbus import ModbusDevice, ModbusSettings
 
 ROOT = Path(__file__).resolve().parents[1]
 

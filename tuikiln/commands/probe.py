@@ -160,7 +160,7 @@ async def _probe(args: argparse.Namespace, out: Any) -> int:
 
 
 async def _scan(args: argparse.Namespace, device: Device, scans: list[Any], out: Any) -> int:
-    from drivers.modbus import ModbusDevice
+    from tuikiln.drivers.modbus import ModbusDevice
     from tuikiln.commands.probe_scan import ScanResult, report_json, report_lines, scan_pass
 
     if not isinstance(device, ModbusDevice):

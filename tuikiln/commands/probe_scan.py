@@ -12,7 +12,7 @@ import re
 from dataclasses import dataclass, field
 from typing import Any
 
-from drivers.errors import BadReply, NoAnswer
+from tuikiln.drivers.errors import BadReply, NoAnswer
 from tuikiln.errors import UserError
 
 KIND_NAMES = {1: "coils", 2: "discrete inputs", 3: "holding registers", 4: "input registers"}
