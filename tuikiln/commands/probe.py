@@ -160,8 +160,8 @@ async def _probe(args: argparse.Namespace, out: Any) -> int:
 
 
 async def _scan(args: argparse.Namespace, device: Device, scans: list[Any], out: Any) -> int:
-    from tuikiln.drivers.modbus import ModbusDevice
     from tuikiln.commands.probe_scan import ScanResult, report_json, report_lines, scan_pass
+    from tuikiln.drivers.modbus import ModbusDevice
 
     if not isinstance(device, ModbusDevice):
         raise UserError(f"--scan reads Modbus registers; the kiln file's device is "
