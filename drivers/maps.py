@@ -55,7 +55,7 @@ from dataclasses import dataclass, field
 from pathlib import Path
 from typing import Any
 
-from drivers.errors import SettingsError
+from tuikiln.drivers.errors import SettingsError
 
 MAPS_DIR = Path(__file__).with_name("maps")
 

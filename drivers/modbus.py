@@ -24,11 +24,11 @@ from pymodbus.client import AsyncModbusSerialClient, AsyncModbusTcpClient
 from pymodbus.exceptions import ConnectionException, ModbusException, ModbusIOException
 from pymodbus.framer import FramerType
 
-from drivers.base import Capabilities, Clock, Device, Reading, WallClock
-from drivers.errors import BadReply, LinkLost, NoAnswer, NotSupported, SettingsError
-from drivers.guard import DEFAULT_MIN_INTERVAL_S, SetpointGuard
-from drivers.maps import Register, RegisterMap
-from drivers.serialport import port_problem
+from tuikiln.drivers.base import Capabilities, Clock, Device, Reading, WallClock
+from tuikiln.drivers.errors import BadReply, LinkLost, NoAnswer, NotSupported, SettingsError
+from tuikiln.drivers.guard import DEFAULT_MIN_INTERVAL_S, SetpointGuard
+from tuikiln.drivers.maps import Register, RegisterMap
+from tuikiln.drivers.serialport import port_problem
 
 # pymodbus logs every timeout at ERROR level; our errors already say it in plain words.
 logging.getLogger("pymodbus").setLevel(logging.CRITICAL)

@@ -6,7 +6,7 @@ import struct
 
 import pytest
 
-from drivers.maps import MapError, load_map, parse_map, plan_blocks, shipped_maps
+from tuikiln.drivers.maps import MapError, load_map, parse_map, plan_blocks, shipped_maps
 
 SIM_DRAFT = """
 name = "tuikiln simulator"

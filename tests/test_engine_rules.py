@@ -8,8 +8,8 @@ from __future__ import annotations
 
 import pytest
 
-from drivers.fake import FirstOrderOven
 from tuikiln import events as ev
+from tuikiln.drivers.fake import FirstOrderOven
 from tuikiln.engine import states as st
 from tuikiln.engine.rules import RunRules, TickInput
 from tuikiln.limits import Limits

@@ -15,11 +15,11 @@ import struct
 import pytest
 from pymodbus.simulator import DataType, SimData, SimDevice
 
-from drivers.factory import open_device
-from drivers.maps import load_map
-from drivers.modbus import ModbusDevice, ModbusSettings
 from tests.test_drivers_wire import PtyWire, start_serial_server
 from tuikiln import events as ev
+from tuikiln.drivers.factory import open_device
+from tuikiln.drivers.maps import load_map
+from tuikiln.drivers.modbus import ModbusDevice, ModbusSettings
 from tuikiln.engine import states as st
 from tuikiln.engine.runner import KilnInfo, RunEngine
 from tuikiln.kiln import parse_kiln
@@ -180,3 +180,32 @@ async def test_fahrenheit_float_map_reads_converts_and_stops(tmp_path):
     finally:
         await server.shutdown()
         wire.close()
+
+
+# ---- the simulator's personalities, each read through its shipped map -----------------
+
+@pytest.mark.parametrize("layout", ["sim", "whole-degree-coil", "fahrenheit-float"])
+async def test_sim_serve_layouts_heat_through_their_maps(layout: str) -> None:
+    from tests.simserve import ServedSim
+
+    with ServedSim("--pty", "--speed", "60", "--layout", layout, "--no-load") as served:
+        device = ModbusDevice(ModbusSettings(port=served.where, timeout_s=1.0, retries=1,
+                                             setpoint_min_interval_s=0.0), load_map(layout))
+        async with device:
+            first = await device.read()
+            # room 20 °C by default; a whole-degree layout rounds it
+            assert first.chamber_c == pytest.approx(20.0, abs=2.0)
+            assert first.running is False  # every layout powers up stopped
+            await device.write_setpoint(400.0)
+            reading = await device.read()
+            assert reading.running is True
+            assert reading.setpoint_c == pytest.approx(400.0, abs=0.5)
+            loop = asyncio.get_running_loop()
+            deadline = loop.time() + 30.0
+            while reading.chamber_c is not None and reading.chamber_c < first.chamber_c + 20:
+                assert loop.time() < deadline, f"{layout}: no heat, {reading}"
+                reading = await device.read()
+            await device.stop_heating()
+            stopped = await device.read()
+        assert stopped.running is False
+        assert stopped.setpoint_c == pytest.approx(0.0, abs=0.5)

@@ -11,9 +11,9 @@ from __future__ import annotations
 import pytest
 from pymodbus.simulator import DataType, SimData, SimDevice
 
-from drivers.maps import MapError, parse_map, plan_blocks
-from drivers.modbus import ModbusDevice, ModbusSettings
 from tests.test_drivers_wire import PtyWire, start_serial_server
+from tuikiln.drivers.maps import MapError, parse_map, plan_blocks
+from tuikiln.drivers.modbus import ModbusDevice, ModbusSettings
 
 COIL_MAP = """
 name = "coil controller"

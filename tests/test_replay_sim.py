@@ -8,13 +8,13 @@ from pathlib import Path
 
 import pytest
 
-from simulator import Fault, LoadConfig, SimConfig, SimulatedKiln
 from tuikiln.analysis.replay import MET, MISSED, Trace, replay_run
 from tuikiln.engine import states as st
 from tuikiln.engine.rules import RunRules, TickInput
 from tuikiln.limits import Limits
 from tuikiln.profile import parse_profile
 from tuikiln.runlog import RunLog
+from tuikiln.simulator import Fault, LoadConfig, SimConfig, SimulatedKiln
 
 START_T = 1_700_000_000.0
 

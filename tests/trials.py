@@ -14,8 +14,8 @@ from pathlib import Path
 
 from hypothesis import strategies as hs
 
-from drivers.factory import open_device
 from tuikiln import events as ev
+from tuikiln.drivers.factory import open_device
 from tuikiln.engine.runner import KilnInfo, RunEngine
 from tuikiln.kiln import parse_kiln
 from tuikiln.limits import Limits

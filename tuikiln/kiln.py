@@ -152,6 +152,6 @@ def parse_kiln(text: str, file: str = "<kiln>") -> Kiln:
 
 
 def _check_device(device: Mapping[str, Any], base_dir: str) -> list[tuple[tuple, str]]:
-    from drivers.factory import check_device_settings
+    from tuikiln.drivers.factory import check_device_settings
 
     return check_device_settings(device, base_dir)

@@ -13,8 +13,8 @@ import sys
 import time
 from typing import Any
 
-from drivers.base import Device, Reading
-from drivers.errors import BadReply, DeviceError, LinkLost, NoAnswer, SettingsError
+from tuikiln.drivers.base import Device, Reading
+from tuikiln.drivers.errors import BadReply, DeviceError, LinkLost, NoAnswer, SettingsError
 from tuikiln.errors import UserError
 from tuikiln.units import Units, format_temp
 
@@ -101,7 +101,7 @@ def _user_error(exc: DeviceError, device: Device | None) -> UserError:
 
 
 async def _probe(args: argparse.Namespace, out: Any) -> int:
-    from drivers.factory import open_device
+    from tuikiln.drivers.factory import open_device
 
     table, base_dir, units = _load(args.kiln)
     try:

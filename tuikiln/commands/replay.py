@@ -27,29 +27,6 @@ from tuikiln.limits import LIMIT_KEYS, LimitKey, Limits
 HELP = "hold a logged run (or another tool's CSV log) against its profile, step by step"
 
 
-# Column names tried when none is given: the usual ones, then `tuikiln export`'s own.
-TIME_COLUMNS = ("time", "t_s")
-CHAMBER_COLUMNS = ("chamber", "chamber_c")
-
-
-def _columns(path: Path, args: argparse.Namespace) -> tuple[str, str, str | None]:
-    """The time, chamber and load columns: as given, else the first known name in the header
-    (so a CSV written by `tuikiln export` is read back without options)."""
-    try:
-        with open(path, encoding="utf-8-sig", errors="replace") as handle:
-            header = [name.strip() for name in handle.readline().split(args.delimiter)]
-    except OSError:
-        header = []  # read_csv_log says what is wrong with the file
-
-    def pick(given: str | None, known: tuple[str, ...]) -> str:
-        if given:
-            return given
-        return next((name for name in known if name in header), known[0])
-
-    load = args.load_column or ("load_c" if "t_s" in header and "load_c" in header else None)
-    return pick(args.time_column, TIME_COLUMNS), pick(args.chamber_column, CHAMBER_COLUMNS), load
-
-
 def _option(key: LimitKey) -> str:
     return "--" + key.name.replace("_", "-")
 
@@ -70,19 +47,35 @@ def add_arguments(parser: argparse.ArgumentParser) -> None:
     else:
         parser.add_argument("--json", dest="json_output", action="store_true",
                             help="print JSON")
-    csv = parser.add_argument_group("CSV logs")
+    csv = parser.add_argument_group(
+        "CSV logs (what is not given is read from the file; a contradiction is refused)")
     csv.add_argument("--time-column", default=None, metavar="NAME",
-                     help='header of the time column (default "time", or "t_s" as in '
-                     'tuikiln export)')
+                     help='header of the time column (default: the first of "time", "t_s", '
+                     '"timestamp", "datetime", "date/time", "elapsed"; a unit such as "(s)" '
+                     'after the name is ignored)')
     csv.add_argument("--chamber-column", default=None, metavar="NAME",
-                     help='header of the chamber column (default "chamber", or "chamber_c")')
+                     help='header of the chamber column (default: the first of "chamber", '
+                     '"chamber_c", "temperature", "temp", "pv")')
     csv.add_argument("--load-column", metavar="NAME",
-                     help="header of a load thermocouple column, if there is one")
-    csv.add_argument("--units", type=str.upper, choices=("C", "F"), default="C",
-                     help="the CSV's temperature unit (default C)")
-    csv.add_argument("--time-format", default="seconds", metavar="FORMAT",
-                     help='"seconds", "minutes", "iso" or a strftime format (default seconds)')
-    csv.add_argument("--delimiter", default=",", metavar="CHAR", help="column separator")
+                     help='header of a load thermocouple column (default: none, or "load_c" '
+                     "in a file from tuikiln export)")
+    csv.add_argument("--units", type=str.upper, choices=("C", "F"), default=None,
+                     help='the temperature unit (default: from the header, such as "°F", '
+                     '"(F)" or "degF", else C)')
+    csv.add_argument("--time-format", default="auto", metavar="FORMAT",
+                     help='"seconds", "minutes", "hms" (H:MM:SS), "iso", "epoch" (Unix '
+                     'seconds), "days" (spreadsheet day serials) or a strftime format '
+                     '(default: read from the first rows; plain numbers are seconds, or '
+                     'minutes under a header such as "time (min)")')
+    csv.add_argument("--delimiter", default=None, metavar="CHAR",
+                     help='column separator (default: the one of , ; tab | that splits the '
+                     "header and first rows alike)")
+    csv.add_argument("--decimal", default=None, choices=(".", ","),
+                     help='decimal mark (default: "," when the separator is not a comma and '
+                     'the numbers are written like "21,5", else ".")')
+    csv.add_argument("--encoding", default=None, metavar="NAME",
+                     help="text encoding (default: UTF-8, with or without a byte-order mark, "
+                     "else Latin-1)")
     analysis = parser.add_argument_group("analysis")
     analysis.add_argument("--c", type=float, default=None, metavar="C",
                           help="Hollomon-Jaffe constant; it depends on the steel (default 20)")
@@ -232,11 +225,12 @@ def _load_csv(args: argparse.Namespace, path: str) -> Loaded:
 
     if not args.against:
         raise UserError("a CSV log needs --against PROFILE: the profile to hold it against")
-    time_column, chamber_column, load_column = _columns(path, args)
+    delimiter = "\t" if args.delimiter in ("tab", "\\t") else args.delimiter
     try:
-        layout = CsvLayout(time_column=time_column, chamber_column=chamber_column,
-                           load_column=load_column, units=args.units,
-                           time_format=args.time_format, delimiter=args.delimiter)
+        layout = CsvLayout(time_column=args.time_column, chamber_column=args.chamber_column,
+                           load_column=args.load_column, units=args.units,
+                           time_format=args.time_format, delimiter=delimiter,
+                           decimal=args.decimal, encoding=args.encoding)
     except ValueError as exc:
         raise UserError(str(exc)) from None
     profile = _against(args)
