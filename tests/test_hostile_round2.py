@@ -193,3 +193,47 @@ async def test_idle_and_surplus_connections_are_closed(tmp_path, monkeypatch):
         for _, writer in opened:
             writer.close()
         await server.close()
+
+
+# ---- user text on the screen is plain text ------------------------------------------------
+
+MARKUP_PROFILE = """
+name = "[/x] [bold]not bold"
+units = "C"
+[[step]]
+ramp = "600/h"
+to = 300
+[[step]]
+pause = "[/b] load \\u001b[2J the [red]oven"
+"""
+
+
+async def test_the_live_screen_shows_markup_like_names_as_they_are(tmp_path):
+    from tests.test_ui_fakes import ScriptedEngine, screen_text
+    from tuikiln.ui.app import TuikilnApp
+    from tuikiln.ui.screens.live import LiveScreen
+
+    profile = tmp_path / "markup.toml"
+    profile.write_text(MARKUP_PROFILE, encoding="utf-8")
+    engine = ScriptedEngine(tmp_path, profile)
+    engine.advance(60)
+    engine.event("note", "Note: \x1b]0;pwned\x07remote [/y] words")
+    app = TuikilnApp(lambda: LiveScreen(engine.link(), poll_s=0.1), units="C")
+    async with app.run_test(size=(120, 30)) as pilot:
+        await pilot.pause(0.3)
+        text = screen_text(pilot.app.screen)
+        assert "[/x] [bold]not bold" in text  # shown as written, not read as markup
+        assert "remote [/y] words" in text and "\x1b" not in text and "\x07" not in text
+
+
+def test_the_terminal_sink_strips_escape_codes():
+    import io
+
+    from tuikiln.alerts.fanout import TerminalSink
+    from tuikiln.events import Event
+
+    out = io.StringIO()
+    TerminalSink(out).event(Event(0.0, ev.NOTE, "Note: \x1b[2J\x1b]0;t\x07hi \ud800", "info", {}))
+    shown = out.getvalue()
+    assert "\x1b" not in shown and "\x07" not in shown and "hi" in shown
+    shown.encode("utf-8")
