@@ -164,6 +164,11 @@ class ModbusDevice(Device):
         await self._open()
         await self.read()
 
+    async def open_link(self) -> None:
+        """Open the port without a first reading: for scanning a controller whose map is
+        not written yet (`tuikiln probe --scan`), where the map's registers may not exist."""
+        await self._open()
+
     async def _ensure_open(self) -> None:
         if self._client is not None and self._client.connected and not self._lost:
             return

@@ -123,6 +123,8 @@ async def test_foreign_controller_runs_a_fast_ramp_through_its_run_coil(rig, tmp
         oven.stop.set()
         await oven_task
     assert outcome == st.COMPLETED, [e.kind for e in sink.events]
+    # a whole-degree readback of our own setpoint is not "the controller holds another one"
+    assert engine.rearms == 0
     assert oven.coil_seen_on  # the coil was switched on, or the oven would never heat
     assert oven.peak >= 78.0  # it heated to the ramp's target (80 °C, within a degree or two)
     assert (await server.async_getValues(1, 1, 0, 1)) == [False]  # safe state: coil off
@@ -209,3 +211,17 @@ async def test_sim_serve_layouts_heat_through_their_maps(layout: str) -> None:
             stopped = await device.read()
         assert stopped.running is False
         assert stopped.setpoint_c == pytest.approx(0.0, abs=0.5)
+
+
+def test_readme_worked_examples_are_the_shipped_maps() -> None:
+    import tomllib
+    from pathlib import Path
+
+    root = Path(__file__).resolve().parents[1]
+    text = (root / "README.md").read_text(encoding="utf-8")
+    section = text.split("## Your controller", 1)[1].split("\n## ", 1)[0]
+    blocks = [part.split("```", 1)[0] for part in section.split("```toml")[1:]]
+    shown = [tomllib.loads(block) for block in blocks]
+    for name, example in zip(("whole-degree-coil", "fahrenheit-float"), shown, strict=True):
+        shipped = tomllib.loads((root / "drivers" / "maps" / f"{name}.toml").read_text())
+        assert example == {"read": shipped["read"], "write": shipped["write"]}, name

@@ -129,3 +129,39 @@ async def test_start_switches_the_coil_on_and_safe_state_off(rig, fc: int) -> No
         assert (await server.async_getValues(1, 1, 3, 1)) == [False]
         # neighbouring coils untouched (a write of several coils wrote only its own)
         assert (await server.async_getValues(1, 1, 0, 8)) == [False] * 8
+
+
+# ---- the simulator's responder speaks the bit function codes as the spec writes them ----
+
+def _frame(hex_pdu: str) -> bytes:
+    from tuikiln.simulator.modbus_rtu import with_crc
+
+    return with_crc(bytes.fromhex("01" + hex_pdu))
+
+
+def test_responder_bit_functions_by_the_spec_bytes() -> None:
+    from tuikiln.simulator.kiln import SimulatedKiln
+    from tuikiln.simulator.layouts import WholeDegreeCoil
+    from tuikiln.simulator.modbus_rtu import RtuResponder
+
+    kiln = SimulatedKiln()
+    responder = RtuResponder(kiln, layout=WholeDegreeCoil())
+
+    def ask(hex_pdu: str) -> str:
+        reply = responder.reply(_frame(hex_pdu))
+        assert reply is not None
+        return reply[1:-2].hex()
+
+    assert ask("01" "0000" "0001") == "01" "01" "00"        # fc 1: coil 0 off, one byte
+    # fc 5 (spec 6.5): FF00 = on, echoed; any other value but 0000 is exception 3
+    assert ask("05" "0000" "ff00") == "05" "0000" "ff00"
+    assert kiln.controller.running is True
+    assert ask("01" "0000" "0001") == "01" "01" "01"
+    assert ask("05" "0000" "1234") == "85" "03"
+    assert ask("05" "0001" "ff00") == "85" "02"              # no coil 1 in this layout
+    # fc 15 (spec 6.11): count 1, one byte of bits, LSB first; reply echoes start and count
+    assert ask("0f" "0000" "0001" "01" "00") == "0f" "0000" "0001"
+    assert kiln.controller.running is False
+    assert ask("02" "0000" "0001") == "02" "01" "00"        # fc 2: no sensor fault
+    assert ask("02" "0000" "0002") == "82" "02"              # discrete input 1 is not there
+    assert ask("04" "0000" "0003")[:4] == "0406"              # fc 4: three input registers

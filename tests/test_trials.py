@@ -12,8 +12,9 @@ from pathlib import Path
 
 import pytest
 from hypothesis import HealthCheck, given, settings
+from hypothesis import strategies as hs
 
-from tests.trials import run_profile, trials
+from tests.trials import FAULTS, OVERSHOOTING, run_profile, trials
 from tuikiln.engine import states as st
 
 CORPUS = sorted((Path(__file__).parent / "trial_profiles").glob("*.toml"))
@@ -43,3 +44,30 @@ def test_random_profiles_run_clean(request):
         assert (result.outcome, result.raised) == (st.COMPLETED, []), trial.toml()
 
     check()
+
+
+def test_random_profiles_with_a_fault_raise_the_right_alarm(request):
+    @trial_settings(request, quick=6, slow=150)
+    @given(trials(max_steps=4), hs.sampled_from(sorted(FAULTS)), hs.integers(2, 60))
+    def check(trial, fault, at_min):
+        import asyncio
+
+        # A long last hold keeps the run going past the fault, whatever came before.
+        trial.steps.append({"hold": "3h", "start": "reached"})
+        table, right = FAULTS[fault]
+        faults = f'[[device.fault]]\nat = "{at_min}m"\n{table}'
+        result = asyncio.run(run_profile(trial.toml(), faults=faults))
+        critical = [code for code in result.raised if code in right]
+        assert critical and result.outcome == st.STOPPED_BY_ALARM, (fault, at_min, trial.toml(),
+                                                                    result.raised)
+
+    check()
+
+
+@pytest.mark.parametrize("to_c", [150, 400, 650])
+async def test_an_overshooting_controller_is_too_hot(to_c):
+    text = f'units = "C"\n[[step]]\nramp = "max"\nto = {to_c}\n[[step]]\nhold = "20m"\n'
+    result = await run_profile(text, device_extra=OVERSHOOTING)
+    assert result.raised and result.raised[0] == "too-hot"
+    clean = await run_profile(text)  # the same profile, a well tuned controller
+    assert clean.raised == [] and clean.outcome == st.COMPLETED

@@ -27,9 +27,18 @@ ROOM_C = 20.0
 TOP_C = KILN_MAX_C - 10.0   # "near the kiln max": a target 10 °C under it
 COOL_FLOOR_C = 60.0         # the simulated oven takes hours to coast the last degrees to room
 
-# A badly tuned controller: integral action far too fast winds up on a `max` ramp and
-# overshoots by tens of degrees (our simulator's PID, simulator/controller.py).
-OVERSHOOTING = "kp = 4\nti_s = 10\ntd_s = 0\n"
+# A badly tuned controller: little proportional action and an integral far too fast overshoot
+# a `max` ramp by tens of degrees below about 700 °C (found on our simulator's PID,
+# simulator/controller.py; near its top the oven has too little power to overshoot).
+OVERSHOOTING = "kp = 0.5\nti_s = 30\ntd_s = 0\n"
+
+# fault -> (simulator fault table, the alarms any one of which is the right one). A welded
+# relay near the kiln's maximum crosses it before it is far enough above the setpoint.
+FAULTS: dict[str, tuple[str, frozenset[str]]] = {
+    "relay-welded": ('kind = "relay-welded"\n', frozenset({"heat-stuck-on", "over-kiln-max"})),
+    "tc-open": ('kind = "tc-open"\n', frozenset({"sensor-bad"})),
+    "link-drop": ('kind = "link-drop"\nfor = "15m"\n', frozenset({"no-link-too-long"})),
+}
 
 
 @dataclass

@@ -34,7 +34,7 @@ from tuikiln.analysis import temper as temper_rules
 from tuikiln.analysis.whatif import AlarmSpan, Rerun, alarm_spans, rerun_rules
 from tuikiln.engine import states as st
 from tuikiln.engine.alarms import ALARMS, CRITICAL
-from tuikiln.engine.stepper import within_band
+from tuikiln.engine.stepper import BAND_DWELL_S, within_band
 from tuikiln.limits import Limits
 from tuikiln.profile import Cool, Hold, Pause, Profile, Ramp, Step, describe_step
 from tuikiln.units import Units, delta_from_c, format_duration, format_rate, format_temp, symbol
@@ -66,6 +66,21 @@ _EVENING = st.STATE_CODE[st.EVENING]
 def in_band(temp_c: np.ndarray | float, target_c: float, band_c: float) -> np.ndarray | bool:
     """The engine's band rule (tuikiln.engine.stepper.within_band), for arrays as well."""
     return within_band(np.asarray(temp_c), target_c, band_c)
+
+
+def with_dwell(raw: np.ndarray, seconds: np.ndarray) -> np.ndarray:
+    """The stepper's band dwell over a reached hold's samples: a stretch in or out of the band
+    shorter than BAND_DWELL_S goes to the side of the last longer one (in band at first)."""
+    n = raw.size
+    if n == 0:
+        return raw
+    edges = np.flatnonzero(raw[1:] != raw[:-1]) + 1
+    starts, ends = np.r_[0, edges], np.r_[edges, n]
+    total = np.r_[0.0, np.cumsum(seconds)]
+    decided = np.where(total[ends] - total[starts] >= BAND_DWELL_S, raw[starts].astype(np.int8), -1)
+    last = np.maximum.accumulate(np.where(decided >= 0, np.arange(decided.size), -1))
+    side = np.where(last >= 0, decided[np.maximum(last, 0)], 1).astype(bool)
+    return np.repeat(side, ends - starts)
 
 
 @dataclass(eq=False)
@@ -543,9 +558,9 @@ class _Analysis:
         at = slice(reached_i, None)
         temps_at, times_at, dt_at = temps[at], times[at], dt[at]
         good = np.isfinite(temps_at)
-        inside = np.asarray(in_band(temps_at, target, band)) & good
-        outside = ~inside
         dt_in = np.r_[dt_at[1:], 0.0]  # a sample's state lasts until the next sample
+        inside = with_dwell(np.asarray(in_band(temps_at, target, band)) & good, dt_in)
+        outside = ~inside
         figures["in_band_s"] = float(dt_in[inside].sum())
         figures["out_of_band_s"] = float(dt_in[outside].sum())
         figures["at_temperature_s"] = figures["in_band_s"]
