@@ -5,8 +5,8 @@
 
 from __future__ import annotations
 
-from drivers.base import Capabilities, Clock, Device, Reading, WallClock
-from drivers.errors import (
+from tuikiln.drivers.base import Capabilities, Clock, Device, Reading, WallClock
+from tuikiln.drivers.errors import (
     BadReply,
     DeviceError,
     LinkLost,

@@ -32,12 +32,12 @@ import re
 from collections.abc import Mapping
 from typing import Any
 
-from drivers.base import Device
-from drivers.errors import SettingsError
-from drivers.guard import DEFAULT_MIN_INTERVAL_S
-from drivers.lines import DEFAULT_OPEN, FORMATS, ChannelSpec, LineSettings, LineThermometer
-from drivers.maps import MapError, RegisterMap, load_map
-from drivers.modbus import ModbusDevice, ModbusSettings, parse_tcp
+from tuikiln.drivers.base import Device
+from tuikiln.drivers.errors import SettingsError
+from tuikiln.drivers.guard import DEFAULT_MIN_INTERVAL_S
+from tuikiln.drivers.lines import DEFAULT_OPEN, FORMATS, ChannelSpec, LineSettings, LineThermometer
+from tuikiln.drivers.maps import MapError, RegisterMap, load_map
+from tuikiln.drivers.modbus import ModbusDevice, ModbusSettings, parse_tcp
 
 KeyPath = tuple[str | int, ...]
 Problems = list[tuple[KeyPath, str]]
@@ -298,7 +298,7 @@ def check_device_settings(table: Mapping[str, Any], base_dir: str) -> Problems:
         elif kind == "lines":
             problems += _check_lines(device)[2]
         elif kind == "sim":
-            from drivers.simdevice import check_sim_table
+            from tuikiln.drivers.simdevice import check_sim_table
 
             problems += check_sim_table(device)[1]
         return problems
@@ -329,7 +329,7 @@ def open_device(table: Mapping[str, Any], base_dir: str, *, speed: float | None 
             raise DeviceSettingsError(problems)
         built = LineThermometer(line_settings)
     else:
-        from drivers.simdevice import SimulatorDevice, check_sim_table
+        from tuikiln.drivers.simdevice import SimulatorDevice, check_sim_table
 
         config, problems = check_sim_table(device)
         if problems or config is None:

@@ -16,8 +16,8 @@ import math
 from collections.abc import Callable, Mapping, Sequence
 from dataclasses import dataclass
 
-from drivers.base import Capabilities, Device, Reading
-from drivers.errors import DeviceError, NotSupported
+from tuikiln.drivers.base import Capabilities, Device, Reading
+from tuikiln.drivers.errors import DeviceError, NotSupported
 
 
 class ManualClock:

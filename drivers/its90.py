@@ -22,7 +22,7 @@ from typing import overload
 
 import numpy as np
 
-from drivers.its90_coefficients import FORWARD, INVERSE, ForwardPiece, InversePiece
+from tuikiln.drivers.its90_coefficients import FORWARD, INVERSE, ForwardPiece, InversePiece
 
 TYPES: tuple[str, ...] = ("B", "E", "J", "K", "N", "R", "S", "T")
 

@@ -34,10 +34,10 @@ from collections.abc import Mapping
 from dataclasses import dataclass, field
 from typing import Any
 
-from drivers import its90
-from drivers.base import Capabilities, Clock, Device, Reading, WallClock
-from drivers.errors import BadReply, LinkLost, NoAnswer, NotSupported, SettingsError
-from drivers.serialport import DIALOUT_HINT, port_problem
+from tuikiln.drivers import its90
+from tuikiln.drivers.base import Capabilities, Clock, Device, Reading, WallClock
+from tuikiln.drivers.errors import BadReply, LinkLost, NoAnswer, NotSupported, SettingsError
+from tuikiln.drivers.serialport import DIALOUT_HINT, port_problem
 
 FORMATS = ("regex", "keyvalue", "csv", "json")
 UNITS = ("C", "F", "mV")

@@ -19,6 +19,13 @@ ram_setpoint = { fc = 6, address = 9, scale = 0.1, signed = true, units = "C" }
 run          = { fc = 6, address = 4, on = 1, off = 0 }
 ```
 
+Coils and discrete inputs (single bits) sit beside registers: read `run` (or a `status`
+table of bits) with fc 1 (coils) or fc 2 (discrete inputs), and write `run` with fc 5 (one
+coil) or fc 15 (several coils), e.g. `run = { fc = 5, address = 0, on = 1, off = 0 }`
+under [write] and `run = { fc = 1, address = 0, on = 1 }` under [read]. A bit is 0 or 1,
+so `on`/`off` of a coil are 0 or 1; in a bit `status`, `bits = { name = n }` names the bit
+at `address + n`.
+
 Read quantities: chamber, load, setpoint (temperatures; `units` "C" or "F", converted to
 °C), output (percent, no units), run (on/off value: `on = 1`), any key beginning with
 `status` (`bits = { name = bit }`: `sensor_fault` and `running` have meaning, others are
@@ -48,14 +55,16 @@ from dataclasses import dataclass, field
 from pathlib import Path
 from typing import Any
 
-from drivers.errors import SettingsError
+from tuikiln.drivers.errors import SettingsError
 
 MAPS_DIR = Path(__file__).with_name("maps")
 
 KeyPath = tuple[str | int, ...]
 
-READ_FCS = (3, 4)
-WRITE_FCS = (6, 16)
+READ_FCS = (1, 2, 3, 4)
+WRITE_FCS = (5, 6, 15, 16)
+BIT_READ_FCS = (1, 2)  # coils, discrete inputs
+BIT_WRITE_FCS = (5, 15)  # one coil, several coils
 TYPES = ("int16", "uint16", "int32", "uint32", "float32")
 WORD_ORDERS = ("big", "little")
 UNITS = ("C", "F")
@@ -67,6 +76,8 @@ TOP_KEYS = ("name", "about", "max_gap", "read", "write")
 # One Modbus read request returns at most 125 registers (Modbus Application Protocol
 # Specification V1.1b3, section 6.3 "Read Holding Registers": quantity 1 to 125).
 MAX_REGISTERS_PER_READ = 125
+# ... and one coil or discrete-input read at most 2000 bits (same spec, sections 6.1, 6.2).
+MAX_BITS_PER_READ = 2000
 
 
 class MapError(SettingsError):
@@ -153,8 +164,15 @@ class Register:
     maximum: float | None = None
 
     @property
+    def is_bit(self) -> bool:
+        """A coil or discrete input rather than a 16-bit register."""
+        return self.fc in BIT_READ_FCS or self.fc in BIT_WRITE_FCS
+
+    @property
     def count(self) -> int:
-        """Registers this quantity spans."""
+        """Registers (or, for coils and discrete inputs, bits) this quantity spans."""
+        if self.is_bit:
+            return max(self.bits.values(), default=0) + 1
         return 2 if self.type in ("int32", "uint32", "float32") else 1
 
     @property
@@ -166,7 +184,9 @@ class Register:
     # -- raw words <-> numbers --
 
     def decode_raw(self, words: Sequence[int]) -> float:
-        """Registers -> the number they hold (before scale)."""
+        """Registers -> the number they hold (before scale); bits: bit i is `address + i`."""
+        if self.is_bit:
+            return float(sum(1 << i for i, bit in enumerate(words) if bit))
         if self.count == 1:
             value = words[0] & 0xFFFF
             if self.type == "int16" and value >= 0x8000:
@@ -265,7 +285,8 @@ def plan_blocks(registers: Iterable[Register], max_gap: int = 0) -> list[Block]:
         for reg in sorted(by_fc[fc], key=lambda r: r.address):
             reg_end = reg.address + reg.count
             joins = current and reg.address <= end + max_gap
-            if joins and max(end, reg_end) - start <= MAX_REGISTERS_PER_READ:
+            limit = MAX_BITS_PER_READ if fc in BIT_READ_FCS else MAX_REGISTERS_PER_READ
+            if joins and max(end, reg_end) - start <= limit:
                 current.append(reg)
                 end = max(end, reg_end)
                 continue
@@ -381,7 +402,11 @@ class _Checker:
                     continue
                 for channel, spec in entry.items():
                     reg = self.entry(("read", "channels", channel), spec, write=False)
-                    if reg is not None and reg.units is None:
+                    if reg is not None and reg.is_bit:
+                        self.problem(("read", "channels", channel, "fc"),
+                                     "a channel is a temperature: read it from a register "
+                                     "(fc = 3 or 4)")
+                    elif reg is not None and reg.units is None:
                         self.problem(("read", "channels", channel, "units"),
                                      'a channel is a temperature: give units = "C" or "F"')
                     elif reg is not None:
@@ -394,7 +419,11 @@ class _Checker:
             reg = self.entry(path, entry, write=False)
             if reg is None:
                 continue
-            if qty.startswith("status") and not reg.bits:
+            if reg.is_bit and qty != "run" and not qty.startswith("status"):
+                self.problem(path + ("fc",), f"{qty} is a number: read it from a register "
+                             "(fc = 3 or 4); coils and discrete inputs (fc = 1, 2) suit "
+                             "only run and status")
+            elif qty.startswith("status") and not reg.bits:
                 self.problem(path + ("bits",), "a status register needs bits = { name = bit }")
             elif qty in TEMPERATURE_READS and reg.units is None:
                 self.problem(path + ("units",), 'a temperature needs units = "C" or "F"')
@@ -417,7 +446,10 @@ class _Checker:
             reg = self.entry(path, entry, write=True)
             if reg is None:
                 continue
-            if qty == "run" and (reg.on is None or reg.off is None):
+            if reg.is_bit and qty != "run":
+                self.problem(path + ("fc",), f"{qty} is a number: write it to a register "
+                             "(fc = 6 or 16); coils (fc = 5, 15) suit only run")
+            elif qty == "run" and (reg.on is None or reg.off is None):
                 self.problem(path, "a run register needs both on = ... and off = ...")
             elif qty != "run" and reg.units is None:
                 self.problem(path + ("units",), 'a setpoint needs units = "C" or "F"')
@@ -441,9 +473,22 @@ class _Checker:
         if fc is None:
             self.problem(path + ("fc",), f"missing: give fc = {' or '.join(map(str, fcs))}")
         elif fc not in fcs or isinstance(fc, bool):
-            what = ("6 (write one register) or 16 (write several)" if write
-                    else "3 (holding registers) or 4 (input registers)")
+            what = ("5 (write one coil), 6 (write one register), 15 (write several coils) "
+                    "or 16 (write several registers)" if write
+                    else "1 (coils), 2 (discrete inputs), 3 (holding registers) "
+                    "or 4 (input registers)")
             self.problem(path + ("fc",), f"function code must be {what}, not {fc!r}")
+        is_bit = fc in BIT_READ_FCS + BIT_WRITE_FCS and not isinstance(fc, bool)
+        if is_bit:
+            # A coil or discrete input is one bit: encodings and limits of numbers mean nothing.
+            for key in ("type", "signed", "scale", "decimals", "word_order", "units", "open",
+                        "min", "max"):
+                if key in spec:
+                    self.problem(path + (key,), f"fc = {fc} is a coil or discrete input "
+                                 f"(one bit): `{key}` has no meaning there")
+            for key in ("on", "off"):
+                if key in spec and spec[key] not in (0, 1):
+                    self.problem(path + (key,), f"a coil is 0 or 1, not {spec[key]!r}")
         address = spec.get("address")
         if address is None:
             self.problem(path + ("address",), "missing: give the register number, e.g. address = 0")
@@ -488,13 +533,16 @@ class _Checker:
             self.problem(path + ("open",), "must be a list of numbers, e.g. open = [32767]")
             open_values = []
         bits = spec.get("bits", {})
+        bit_limit = (MAX_BITS_PER_READ if is_bit
+                     else 16 * (2 if reg_type in ("int32", "uint32") else 1))
         if not isinstance(bits, Mapping) or not all(
-            isinstance(b, int) and not isinstance(b, bool) and 0 <= b < 16 * (2 if reg_type
-            in ("int32", "uint32") else 1) for b in bits.values()
+            isinstance(b, int) and not isinstance(b, bool) and 0 <= b < bit_limit
+            for b in bits.values()
         ):
-            self.problem(path + ("bits",), "must be { name = bit number 0-15, ... }")
+            what = ("offset from address" if is_bit else "bit number")
+            self.problem(path + ("bits",), f"must be {{ name = {what} 0-{bit_limit - 1}, ... }}")
             bits = {}
-        if bits and reg_type == "float32":
+        if bits and reg_type == "float32" and not is_bit:
             self.problem(path + ("type",), "status bits need an integer register type")
         on, off = spec.get("on"), spec.get("off")
         for key, value in (("on", on), ("off", off)):

@@ -24,11 +24,11 @@ from pymodbus.client import AsyncModbusSerialClient, AsyncModbusTcpClient
 from pymodbus.exceptions import ConnectionException, ModbusException, ModbusIOException
 from pymodbus.framer import FramerType
 
-from drivers.base import Capabilities, Clock, Device, Reading, WallClock
-from drivers.errors import BadReply, LinkLost, NoAnswer, NotSupported, SettingsError
-from drivers.guard import DEFAULT_MIN_INTERVAL_S, SetpointGuard
-from drivers.maps import Register, RegisterMap
-from drivers.serialport import port_problem
+from tuikiln.drivers.base import Capabilities, Clock, Device, Reading, WallClock
+from tuikiln.drivers.errors import BadReply, LinkLost, NoAnswer, NotSupported, SettingsError
+from tuikiln.drivers.guard import DEFAULT_MIN_INTERVAL_S, SetpointGuard
+from tuikiln.drivers.maps import Register, RegisterMap
+from tuikiln.drivers.serialport import port_problem
 
 # pymodbus logs every timeout at ERROR level; our errors already say it in plain words.
 logging.getLogger("pymodbus").setLevel(logging.CRITICAL)
@@ -164,6 +164,11 @@ class ModbusDevice(Device):
         await self._open()
         await self.read()
 
+    async def open_link(self) -> None:
+        """Open the port without a first reading: for scanning a controller whose map is
+        not written yet (`tuikiln probe --scan`), where the map's registers may not exist."""
+        await self._open()
+
     async def _ensure_open(self) -> None:
         if self._client is not None and self._client.connected and not self._lost:
             return
@@ -232,12 +237,18 @@ class ModbusDevice(Device):
     async def read_words(self, fc: int, address: int, count: int) -> list[int]:
         s = self.settings
 
-        def request(client: Any) -> Any:
-            fn = client.read_holding_registers if fc == 3 else client.read_input_registers
-            return fn(address, count=count, device_id=s.address)
+        readers = {1: "read_coils", 2: "read_discrete_inputs", 3: "read_holding_registers",
+                   4: "read_input_registers"}
 
-        response = await self._call(f"reading {count} register(s) at {address}", request)
-        words = list(response.registers)
+        def request(client: Any) -> Any:
+            return getattr(client, readers[fc])(address, count=count, device_id=s.address)
+
+        what = (f"reading {count} {'coil' if fc == 1 else 'discrete input'}(s) at {address}"
+                if fc in (1, 2) else f"reading {count} register(s) at {address}")
+        response = await self._call(what, request)
+        # A bit reply comes padded to whole bytes: only the first `count` bits are ours.
+        words = ([int(bit) for bit in response.bits] if fc in (1, 2)
+                 else list(response.registers))
         if len(words) < count:
             self.garbled += 1
             raise BadReply(f"short reply: {len(words)} of {count} registers")
@@ -247,6 +258,11 @@ class ModbusDevice(Device):
         s = self.settings
 
         def request(client: Any) -> Any:
+            if reg.fc == 5:
+                return client.write_coil(reg.address, bool(words[0]), device_id=s.address)
+            if reg.fc == 15:
+                return client.write_coils(reg.address, [bool(w) for w in words],
+                                          device_id=s.address)
             if reg.fc == 6:
                 return client.write_register(reg.address, words[0], device_id=s.address)
             return client.write_registers(reg.address, words, device_id=s.address)

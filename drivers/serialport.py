@@ -4,7 +4,7 @@ from __future__ import annotations
 
 import os
 
-from drivers.errors import SettingsError
+from tuikiln.drivers.errors import SettingsError
 
 DIALOUT_HINT = (
     "add yourself to the group that owns the port (usually dialout: "

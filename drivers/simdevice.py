@@ -22,10 +22,10 @@ import time
 from collections.abc import Mapping
 from typing import Any
 
-from drivers.base import Capabilities, Device, Reading
-from drivers.errors import BadReply, NoAnswer
-from simulator import SimConfig, SimulatedKiln
-from simulator.config import check_sim_settings
+from tuikiln.drivers.base import Capabilities, Device, Reading
+from tuikiln.drivers.errors import BadReply, NoAnswer
+from tuikiln.simulator import SimConfig, SimulatedKiln
+from tuikiln.simulator.config import check_sim_settings
 
 # 2026-01-01 00:00:00 UTC: the clock's start when a caller wants stable timestamps.
 SIM_EPOCH = 1_767_225_600.0

@@ -5,7 +5,7 @@ Imports nothing of tuikiln or drivers. See `simulator.config` for every setting 
 
 from __future__ import annotations
 
-from simulator.config import (
+from tuikiln.simulator.config import (
     FAULT_KINDS,
     Fault,
     LoadConfig,
@@ -15,7 +15,7 @@ from simulator.config import (
     parse_duration,
     parse_fault,
 )
-from simulator.kiln import RegisterError, SimReading, SimTruth, SimulatedKiln
+from tuikiln.simulator.kiln import RegisterError, SimReading, SimTruth, SimulatedKiln
 
 __all__ = [
     "FAULT_KINDS",

@@ -8,7 +8,7 @@ measurement, not the error, so a setpoint step does not kick the output.
 
 from __future__ import annotations
 
-from simulator.config import OvenConfig
+from tuikiln.simulator.config import OvenConfig
 
 
 class PidController:

@@ -15,9 +15,9 @@ import math
 import random
 from dataclasses import dataclass
 
-from simulator.config import Fault, SimConfig
-from simulator.controller import PidController
-from simulator.physics import DOOR_AIR_MIX, KELVIN, OvenPhysics
+from tuikiln.simulator.config import Fault, SimConfig
+from tuikiln.simulator.controller import PidController
+from tuikiln.simulator.physics import DOOR_AIR_MIX, KELVIN, OvenPhysics
 
 MAX_STEP_S = 1.0
 OPEN_READING = 32767  # register value of an open or absent thermocouple (over-range)

@@ -1,10 +1,13 @@
-"""A small Modbus RTU responder for the simulated controller (holding registers 0..5).
+"""A small Modbus RTU responder for the simulated controller, in one of its layouts.
 
 Modbus Application Protocol v1.1b3 and Modbus over Serial Line v1.02 (modbus.org): an RTU
 frame is address, function code, data, CRC-16 (polynomial 0xA001 reflected, initial 0xFFFF,
-low byte first). Supported: 3 (read holding registers), 6 (write single register), 16 (write
-multiple registers); anything else gets exception 1 (illegal function). A request to
-another address is ignored; address 0 (broadcast) writes without answering.
+low byte first). Supported: 1 (read coils), 2 (read discrete inputs), 3 (read holding
+registers), 4 (read input registers), 5 (write single coil: 0xFF00 on, 0x0000 off),
+6 (write single register), 15 (write multiple coils), 16 (write multiple registers);
+anything else gets exception 1 (illegal function). Where the values live is the layout's
+business (simulator/layouts.py). A request to another address is ignored; address 0
+(broadcast) writes without answering.
 
 Written by hand rather than with pymodbus's server so faults can act on the wire itself: a
 dropped link swallows requests, line noise corrupts replies, and the reply waits for the
@@ -16,13 +19,22 @@ from __future__ import annotations
 import random
 from collections.abc import Callable
 
-from simulator.kiln import RegisterError, SimulatedKiln
+from tuikiln.simulator.kiln import RegisterError, SimulatedKiln
+from tuikiln.simulator.layouts import COILS, DISCRETE, HOLDING, INPUT, Layout
 
+READ_COILS = 1
+READ_DISCRETE = 2
 READ_HOLDING = 3
+READ_INPUT = 4
+WRITE_COIL = 5
 WRITE_SINGLE = 6
+WRITE_COILS = 15
 WRITE_MULTIPLE = 16
 MAX_READ = 125
-WRITABLE = (1, 4)  # setpoint, run
+MAX_READ_BITS = 2000  # Modbus Application Protocol v1.1b3, 6.1 and 6.2: 1 to 2000 bits
+MAX_WRITE_BITS = 1968  # ... 6.11: 1 to 1968 coils
+READ_TABLES = {READ_COILS: COILS, READ_DISCRETE: DISCRETE, READ_HOLDING: HOLDING,
+               READ_INPUT: INPUT}
 
 
 def crc16(data: bytes) -> int:
@@ -64,8 +76,9 @@ class RtuResponder:
     """Turns request frames into reply frames for one `SimulatedKiln`."""
 
     def __init__(self, kiln: SimulatedKiln, address: int = 1, baud: int = 9600,
-                 rng: random.Random | None = None) -> None:
+                 rng: random.Random | None = None, layout: Layout | None = None) -> None:
         self.kiln = kiln
+        self.layout = layout or Layout()
         self.address = address
         self.baud = baud
         self.rng = rng or random.Random(kiln.config.seed + 1)
@@ -139,35 +152,58 @@ class RtuResponder:
     def _answer(self, pdu: bytes) -> bytes:
         function = pdu[0]
         try:
-            if function == READ_HOLDING and len(pdu) == 5:
-                start = int.from_bytes(pdu[1:3], "big")
-                count = int.from_bytes(pdu[3:5], "big")
-                if not 1 <= count <= MAX_READ:
+            if function in READ_TABLES and len(pdu) == 5:
+                return self._read(function, int.from_bytes(pdu[1:3], "big"),
+                                  int.from_bytes(pdu[3:5], "big"))
+            if function == WRITE_COIL and len(pdu) == 5:
+                address, value = int.from_bytes(pdu[1:3], "big"), int.from_bytes(pdu[3:5], "big")
+                if value not in (0xFF00, 0x0000):
                     return _exception(function, 3)
-                registers = self.kiln.registers()
-                if start + count > len(registers):
-                    return _exception(function, 2)
-                values = registers[start : start + count]
-                body = b"".join(v.to_bytes(2, "big") for v in values)
-                return bytes([function, len(body)]) + body
+                self._write(COILS, address, [1 if value else 0])
+                return pdu
             if function == WRITE_SINGLE and len(pdu) == 5:
                 address = int.from_bytes(pdu[1:3], "big")
-                self.kiln.write_register(address, int.from_bytes(pdu[3:5], "big"))
+                self._write(HOLDING, address, [int.from_bytes(pdu[3:5], "big")])
                 return pdu
+            if function == WRITE_COILS and len(pdu) >= 6:
+                start = int.from_bytes(pdu[1:3], "big")
+                count = int.from_bytes(pdu[3:5], "big")
+                size = (count + 7) // 8
+                if not 1 <= count <= MAX_WRITE_BITS or pdu[5] != size or len(pdu) != 6 + size:
+                    return _exception(function, 3)
+                bits = [pdu[6 + i // 8] >> (i % 8) & 1 for i in range(count)]
+                self._write(COILS, start, bits)
+                return pdu[:5]
             if function == WRITE_MULTIPLE and len(pdu) >= 6:
                 start = int.from_bytes(pdu[1:3], "big")
                 count = int.from_bytes(pdu[3:5], "big")
                 if not 1 <= count <= 123 or pdu[5] != 2 * count or len(pdu) != 6 + 2 * count:
                     return _exception(function, 3)
                 values = [int.from_bytes(pdu[6 + 2 * i : 8 + 2 * i], "big") for i in range(count)]
-                if any(start + i not in WRITABLE for i in range(count)):
-                    return _exception(function, 2)  # refuse it all rather than write a part
-                for offset, value in enumerate(values):
-                    self.kiln.write_register(start + offset, value)
+                self._write(HOLDING, start, values)
                 return pdu[:5]
         except RegisterError as exc:
             return _exception(function, exc.code)
         return _exception(function, 1)
+
+    def _read(self, function: int, start: int, count: int) -> bytes:
+        bits = function in (READ_COILS, READ_DISCRETE)
+        if not 1 <= count <= (MAX_READ_BITS if bits else MAX_READ):
+            return _exception(function, 3)
+        table = self.layout.tables(self.kiln)[READ_TABLES[function]]
+        if any(start + i not in table for i in range(count)):
+            return _exception(function, 2)
+        values = [table[start + i] for i in range(count)]
+        if bits:  # packed eight to a byte, the first bit in the lowest place
+            body = bytes(sum((values[i + j] & 1) << j for j in range(min(8, count - i)))
+                         for i in range(0, count, 8))
+        else:
+            body = b"".join(v.to_bytes(2, "big") for v in values)
+        return bytes([function, len(body)]) + body
+
+    def _write(self, table: str, start: int, values: list[int]) -> None:
+        self.layout.check_writable(table, start, len(values))
+        self.layout.write(self.kiln, table, start, values)
 
     def reply_delay(self, request: bytes, reply: bytes | None) -> float:
         """Wire time of request and reply at the emulated baud rate."""

@@ -22,7 +22,7 @@ Everything here is SI: kelvin, watts, joules, metres, seconds.
 
 from __future__ import annotations
 
-from simulator.config import LoadConfig, OvenConfig
+from tuikiln.simulator.config import LoadConfig, OvenConfig
 
 # Stefan-Boltzmann constant, W/(m^2 K^4): CODATA 2018 (exact since the 2019 SI redefinition).
 SIGMA = 5.670374419e-8

@@ -9,6 +9,7 @@ from __future__ import annotations
 
 import argparse
 import asyncio
+import difflib
 import os
 import signal
 import sys
@@ -18,9 +19,10 @@ import tty
 from dataclasses import replace
 from pathlib import Path
 
-from simulator.config import SimConfig, check_sim_settings, parse_fault
-from simulator.kiln import SimulatedKiln
-from simulator.modbus_rtu import RtuResponder
+from tuikiln.simulator.config import SimConfig, check_sim_settings, parse_fault
+from tuikiln.simulator.kiln import SimulatedKiln
+from tuikiln.simulator.layouts import LAYOUTS
+from tuikiln.simulator.modbus_rtu import RtuResponder
 
 QUIET_S = 0.02  # a gap this long ends a frame whose length the function code does not tell
 MAX_SPEED_SLICE_S = 300.0  # simulated seconds per pacer turn when running "as fast as possible"
@@ -33,6 +35,9 @@ def add_serve_arguments(parser: argparse.ArgumentParser) -> None:
     where.add_argument("--tcp", type=int, metavar="PORT",
                        help="serve RTU framing over TCP on 127.0.0.1:PORT (0: any free port)")
     parser.add_argument("--speed", metavar="N|max", help='time multiple, e.g. 60, or "max"')
+    parser.add_argument("--layout", default="sim", metavar="NAME",
+                        help="where the controller keeps its values: "
+                        f"{', '.join(LAYOUTS)} (default sim; each has a map in drivers/maps/)")
     parser.add_argument("--baud", type=int, help="wire time to emulate (default 9600)")
     parser.add_argument("--address", type=int, help="Modbus device address (default 1)")
     parser.add_argument("--config", metavar="FILE",
@@ -269,16 +274,18 @@ async def serve_tcp(responder: RtuResponder, port: int, stop: asyncio.Event) -> 
         await stop.wait()
 
 
-async def serve(config: SimConfig, tcp_port: int | None = None) -> None:
+async def serve(config: SimConfig, tcp_port: int | None = None, layout: str = "sim") -> None:
     kiln = SimulatedKiln(config)
-    responder = RtuResponder(kiln, address=config.address, baud=config.baud)
+    personality = LAYOUTS[layout]()
+    responder = RtuResponder(kiln, address=config.address, baud=config.baud,
+                             layout=personality)
     stop = asyncio.Event()
     loop = asyncio.get_running_loop()
     for sig in (signal.SIGINT, signal.SIGTERM):
         loop.add_signal_handler(sig, stop.set)
     pacer = asyncio.create_task(pace(kiln, config.speed, stop))
     speed = "as fast as possible" if config.speed is None else f"{config.speed:g}x real time"
-    print(f"sim: device {config.address}, {config.baud} baud emulated, {speed}; "
+    print(f"sim: device {config.address}, layout {layout}, {config.baud} baud emulated, {speed}; "
           "Ctrl-C stops (the simulated heater stops too)", file=sys.stderr, flush=True)
     try:
         if tcp_port is None:
@@ -288,20 +295,26 @@ async def serve(config: SimConfig, tcp_port: int | None = None) -> None:
     finally:
         kiln.set_running(False)
         pacer.cancel()
-    print(f"sim: stopped at {kiln.time_s:.0f} s simulated, chamber {kiln.truth.chamber_c:.1f} °C",
-          file=sys.stderr, flush=True)
+    print(f"sim: stopped at {kiln.time_s:.0f} s simulated, chamber {kiln.truth.chamber_c:.1f} °C, "
+          f"setpoint written {personality.setpoint_writes} times", file=sys.stderr, flush=True)
 
 
 def main(args: argparse.Namespace, prog: str = "sim") -> int:
     """Run `serve` from parsed options; bad input gives a message and exit code 2."""
+    layout = getattr(args, "layout", "sim") or "sim"
     try:
+        if layout not in LAYOUTS:
+            close = difflib.get_close_matches(layout, list(LAYOUTS), n=1)
+            maybe = f' (did you mean "{close[0]}"?)' if close else ""
+            raise ServeError(f'--layout "{layout}" is not known{maybe}; '
+                             f"choose one of {', '.join(LAYOUTS)}")
         config = load_config(args)
     except ServeError as exc:
         for line in str(exc).splitlines():
             print(f"{prog}: {line}", file=sys.stderr)
         return 2
     try:
-        asyncio.run(serve(config, args.tcp))
+        asyncio.run(serve(config, args.tcp, layout))
     except OSError as exc:
         print(f"{prog}: cannot serve: {exc.strerror or exc}", file=sys.stderr)
         return 1
@@ -311,7 +324,7 @@ def main(args: argparse.Namespace, prog: str = "sim") -> int:
 
 
 def build_parser() -> argparse.ArgumentParser:
-    parser = argparse.ArgumentParser(prog="python -m simulator.serve", description=__doc__)
+    parser = argparse.ArgumentParser(prog="python -m tuikiln.simulator.serve", description=__doc__)
     add_serve_arguments(parser)
     return parser
 

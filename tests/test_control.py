@@ -13,8 +13,8 @@ import time
 
 import pytest
 
-from drivers.fake import FirstOrderOven, ScriptedDevice
 from tuikiln import control
+from tuikiln.drivers.fake import FirstOrderOven, ScriptedDevice
 from tuikiln.engine import states as st
 from tuikiln.engine.runner import KilnInfo, RunEngine
 from tuikiln.limits import Limits

@@ -12,8 +12,8 @@ import subprocess
 
 import pytest
 
-from drivers.fake import FirstOrderOven, ManualClock, ScriptedDevice
 from tuikiln import events as ev
+from tuikiln.drivers.fake import FirstOrderOven, ManualClock, ScriptedDevice
 from tuikiln.engine import states as st
 from tuikiln.engine.runner import KilnInfo, RunEngine
 from tuikiln.limits import Limits

@@ -7,11 +7,11 @@ import time
 
 import pytest
 
-from drivers.errors import BadReply, NoAnswer, SettingsError
-from drivers.factory import check_device_settings, open_device
-from drivers.lines import LineThermometer
-from drivers.modbus import ModbusDevice
-from drivers.simdevice import SimulatorDevice
+from tuikiln.drivers.errors import BadReply, NoAnswer, SettingsError
+from tuikiln.drivers.factory import check_device_settings, open_device
+from tuikiln.drivers.lines import LineThermometer
+from tuikiln.drivers.modbus import ModbusDevice
+from tuikiln.drivers.simdevice import SimulatorDevice
 
 
 def test_unknown_keys_wrong_types_and_bad_values() -> None:
@@ -113,7 +113,7 @@ async def test_simulator_speed_sleeps_real_time() -> None:
 
 
 async def test_simulator_faults_map_to_device_errors() -> None:
-    from simulator import SimConfig, SimulatedKiln
+    from tuikiln.simulator import SimConfig, SimulatedKiln
 
     kiln = SimulatedKiln(SimConfig(), seed=0)
     device = SimulatorDevice(kiln, None)

@@ -4,9 +4,9 @@ from __future__ import annotations
 
 import pytest
 
-from drivers.errors import LinkLost, NotSupported
-from drivers.fake import FirstOrderOven, ScriptedDevice
-from drivers.guard import SetpointGuard
+from tuikiln.drivers.errors import LinkLost, NotSupported
+from tuikiln.drivers.fake import FirstOrderOven, ScriptedDevice
+from tuikiln.drivers.guard import SetpointGuard
 
 
 def test_slow_ramp_does_not_write_every_poll() -> None:
@@ -73,7 +73,7 @@ async def test_scripted_oven_model_follows_first_order_law() -> None:
 
 
 async def test_monitor_only_fake_refuses_setpoints() -> None:
-    from drivers.base import Capabilities
+    from tuikiln.drivers.base import Capabilities
 
     dev = ScriptedDevice([25.0], capabilities=Capabilities(False, False))
     with pytest.raises(NotSupported):

@@ -9,8 +9,8 @@ import tty
 
 import pytest
 
-from drivers.errors import BadReply, LinkLost, NoAnswer, NotSupported
-from drivers.lines import ChannelSpec, LineSettings, LineThermometer
+from tuikiln.drivers.errors import BadReply, LinkLost, NoAnswer, NotSupported
+from tuikiln.drivers.lines import ChannelSpec, LineSettings, LineThermometer
 
 
 class FakeMeter:

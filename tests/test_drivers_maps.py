@@ -6,7 +6,7 @@ import struct
 
 import pytest
 
-from drivers.maps import MapError, load_map, parse_map, plan_blocks, shipped_maps
+from tuikiln.drivers.maps import MapError, load_map, parse_map, plan_blocks, shipped_maps
 
 SIM_DRAFT = """
 name = "tuikiln simulator"
@@ -81,7 +81,7 @@ laod = { fc = 3, address = 9, units = "C" }
 setpoint = { fc = 6, address = 1, type = "float32", units = "C" }
 """)
     text = "\n".join(problems)
-    assert "mine.toml:3: [read.chamber] fc: function code must be 3" in text
+    assert "mine.toml:3: [read.chamber] fc: function code must be 1 (coils)" in text
     assert "mine.toml:4: [read.load] address: missing" in text
     assert 'mine.toml:5: [read.setpoint] unit: unknown key (did you mean "units"?)' in text
     assert 'mine.toml:6: [read] laod: unknown quantity (did you mean "load"?)' in text

@@ -9,9 +9,6 @@ import struct
 
 import pytest
 
-from drivers.errors import BadReply, LinkLost, NoAnswer, SettingsError
-from drivers.maps import parse_map
-from drivers.modbus import ModbusDevice, ModbusSettings
 from tests.test_drivers_wire import (
     PtyWire,
     free_port,
@@ -19,6 +16,9 @@ from tests.test_drivers_wire import (
     start_serial_server,
     start_tcp_server,
 )
+from tuikiln.drivers.errors import BadReply, LinkLost, NoAnswer, SettingsError
+from tuikiln.drivers.maps import parse_map
+from tuikiln.drivers.modbus import ModbusDevice, ModbusSettings
 
 # Raw words the test server holds, and what they mean under TEST_MAP.
 #   0: chamber  8523 *0.1 = 852.3 °C        1: setpoint 8500 -> 850.0 °C
@@ -138,7 +138,7 @@ async def test_writes_seen_by_an_independent_master(rig) -> None:
 
 
 async def test_slow_ramp_through_the_driver_writes_rarely_and_stop_at_once(rig) -> None:
-    from drivers.fake import ManualClock
+    from tuikiln.drivers.fake import ManualClock
 
     wire, server = rig
     clock = ManualClock()

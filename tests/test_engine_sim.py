@@ -10,8 +10,8 @@ from __future__ import annotations
 import numpy as np
 import pytest
 
-from drivers.factory import open_device
 from tuikiln import events as ev
+from tuikiln.drivers.factory import open_device
 from tuikiln.engine import states as st
 from tuikiln.engine.runner import KilnInfo, RunEngine
 from tuikiln.kiln import parse_kiln
@@ -164,7 +164,7 @@ async def test_line_noise_alone_raises_nothing(tmp_path):
 
 
 async def test_watch_only_follows_the_plan_without_writing(tmp_path):
-    from drivers.base import Capabilities
+    from tuikiln.drivers.base import Capabilities
 
     kiln = parse_kiln('name = "Watched"\nunits = "C"\nmax = 1100\n[device]\nkind = "sim"\n',
                       str(tmp_path / "kiln.toml"))
@@ -200,7 +200,7 @@ def test_a_profile_hotter_than_the_kiln_is_refused(tmp_path):
 
 
 async def test_an_engine_failure_drives_safe_and_is_logged(tmp_path):
-    from drivers.fake import FirstOrderOven, ScriptedDevice
+    from tuikiln.drivers.fake import FirstOrderOven, ScriptedDevice
 
     device = ScriptedDevice(model=FirstOrderOven(), errors={50: RuntimeError("a bug")})
     profile = parse_profile(LONG_RAMP, "p.toml")
@@ -215,7 +215,7 @@ async def test_an_engine_failure_drives_safe_and_is_logged(tmp_path):
 
 
 async def test_a_stop_request_from_a_signal_ends_safe(tmp_path):
-    from drivers.fake import FirstOrderOven, ScriptedDevice
+    from tuikiln.drivers.fake import FirstOrderOven, ScriptedDevice
 
     device = ScriptedDevice(model=FirstOrderOven())
     engine = RunEngine(device, parse_profile(LONG_RAMP, "p.toml"), kiln=KilnInfo("k"),
@@ -271,7 +271,7 @@ async def test_a_target_the_oven_cannot_reach_is_reported(tmp_path):
 async def test_starting_at_a_hold_heats_to_the_hold_first(tmp_path):
     # `tuikiln run --at-step 2` on ramp-then-hold: the hold is at the ramp's target, so the
     # oven must heat there; holding "at whatever the oven is now" would never temper.
-    from drivers.factory import open_device as open_sim
+    from tuikiln.drivers.factory import open_device as open_sim
 
     profile = parse_profile('units = "C"\n[[step]]\nramp = "100/h"\nto = 205\n'
                             '[[step]]\nhold = "20m"\n', "p.toml")

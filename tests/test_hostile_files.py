@@ -22,12 +22,12 @@ import pytest
 from hypothesis import HealthCheck, given, settings
 from hypothesis import strategies as st
 
-from drivers.maps import MapError, parse_map
-from simulator.config import check_sim_settings
 from tuikiln.analysis.csvlog import CsvLayout, parse_csv_log
+from tuikiln.drivers.maps import MapError, parse_map
 from tuikiln.errors import FileProblems
 from tuikiln.kiln import Kiln, parse_kiln
 from tuikiln.profile import Profile, parse_profile
+from tuikiln.simulator.config import check_sim_settings
 
 # ---- shared by the hostile tests ---------------------------------------------------------
 

@@ -22,9 +22,9 @@ import pytest
 from hypothesis import given
 from hypothesis import strategies as st
 
-from drivers.errors import BadReply
-from drivers.lines import ChannelSpec, LineParser, LineSettings, ParsedLine
 from tests.test_hostile_files import TALLY, fuzz, no_hang
+from tuikiln.drivers.errors import BadReply
+from tuikiln.drivers.lines import ChannelSpec, LineParser, LineSettings, ParsedLine
 from tuikiln.errors import FileProblems
 from tuikiln.kiln import parse_kiln
 

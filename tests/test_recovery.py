@@ -14,8 +14,8 @@ import subprocess
 
 import pytest
 
-from drivers.fake import FirstOrderOven, ManualClock, ScriptedDevice
 from tuikiln import events as ev
+from tuikiln.drivers.fake import FirstOrderOven, ManualClock, ScriptedDevice
 from tuikiln.engine import recovery
 from tuikiln.engine import states as st
 from tuikiln.engine.runner import KilnInfo, RunEngine

@@ -12,10 +12,10 @@ from pathlib import Path
 
 import pytest
 
-from simulator import Fault
 from tests.test_replay_sim import SHORT_C, simulate_run
 from tuikiln.cli import main
 from tuikiln.runlog import RunLog
+from tuikiln.simulator import Fault
 
 VOID = {"meta", "br", "hr", "img", "input", "link", "area", "base", "col", "embed", "source",
         "track", "wbr"}

@@ -10,7 +10,7 @@ from pathlib import Path
 from hypothesis import given, settings
 from hypothesis import strategies as st
 
-from simulator import SimConfig, check_sim_settings, parse_duration
+from tuikiln.simulator import SimConfig, check_sim_settings, parse_duration
 
 REPO = Path(__file__).resolve().parents[1]
 
@@ -107,7 +107,7 @@ def test_serve_reports_file_and_line_without_traceback(tmp_path: Path) -> None:
     kiln.write_text('name = "x"\n[device]\nkind = "sim"\n\n[[device.fault]]\nat = "15m"\n'
                     'kind = "door"\n', encoding="utf-8")
     done = subprocess.run(
-        [sys.executable, "-m", "simulator.serve", "--config", str(kiln)],
+        [sys.executable, "-m", "tuikiln.simulator.serve", "--config", str(kiln)],
         cwd=REPO, capture_output=True, text=True, timeout=20,
     )
     assert done.returncode == 2
@@ -117,9 +117,9 @@ def test_serve_reports_file_and_line_without_traceback(tmp_path: Path) -> None:
 
 def test_documented_settings_are_the_defaults() -> None:
     # The module docstring is what the README shows: its example must equal the defaults.
-    import simulator.config
+    import tuikiln.simulator.config
 
-    doc = simulator.config.__doc__ or ""
+    doc = tuikiln.simulator.config.__doc__ or ""
     block = doc.split("```toml", 1)[1].split("```", 1)[0]
     table = tomllib.loads(block)
     del table["device"]["fault"]
@@ -129,7 +129,7 @@ def test_documented_settings_are_the_defaults() -> None:
 
 
 def test_serve_options_change_the_settings(tmp_path: Path) -> None:
-    from simulator.serve import build_parser, load_config
+    from tuikiln.simulator.serve import build_parser, load_config
 
     kiln = tmp_path / "kiln.toml"
     kiln.write_text('[device]\nkind = "sim"\nheater_w = 1500\n[device.noise]\nchamber_c = 0\n',

@@ -6,8 +6,8 @@ from dataclasses import replace
 
 import pytest
 
-from simulator import Fault, OvenConfig, SimConfig, SimulatedKiln, parse_fault
-from simulator.modbus_rtu import RtuResponder, crc_ok, with_crc
+from tuikiln.simulator import Fault, OvenConfig, SimConfig, SimulatedKiln, parse_fault
+from tuikiln.simulator.modbus_rtu import RtuResponder, crc_ok, with_crc
 
 READ_ALL = with_crc(bytes([1, 3, 0, 0, 0, 6]))
 

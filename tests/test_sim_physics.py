@@ -8,8 +8,8 @@ from dataclasses import replace
 import pytest
 import scipy.constants
 
-from simulator import LoadConfig, OvenConfig, SimConfig, SimulatedKiln
-from simulator.physics import KELVIN, SIGMA, OvenPhysics
+from tuikiln.simulator import LoadConfig, OvenConfig, SimConfig, SimulatedKiln
+from tuikiln.simulator.physics import KELVIN, SIGMA, OvenPhysics
 
 
 def _pinned_plate(load: LoadConfig, chamber_c: float, room_c: float = 20.0) -> OvenPhysics:

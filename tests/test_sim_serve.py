@@ -16,8 +16,8 @@ from pymodbus.client import AsyncModbusSerialClient, AsyncModbusTcpClient
 from pymodbus.exceptions import ModbusException
 from pymodbus.framer.rtu import FramerRTU
 
-from simulator.modbus_rtu import crc16, with_crc
 from tests.simserve import ServedSim
+from tuikiln.simulator.modbus_rtu import crc16, with_crc
 
 REPO = Path(__file__).resolve().parents[1]
 MBPOLL = "/usr/bin/mbpoll"

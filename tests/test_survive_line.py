@@ -22,11 +22,11 @@ from typing import Any
 import pytest
 import pytest_asyncio
 
-from drivers.errors import BadReply, DeviceError, LinkLost, NoAnswer
-from drivers.lines import MAX_LINE, ChannelSpec, LineSettings, LineThermometer
-from drivers.maps import load_map
-from drivers.modbus import ModbusDevice, ModbusSettings
 from tests.faultrelay import FaultRelay
+from tuikiln.drivers.errors import BadReply, DeviceError, LinkLost, NoAnswer
+from tuikiln.drivers.lines import MAX_LINE, ChannelSpec, LineSettings, LineThermometer
+from tuikiln.drivers.maps import load_map
+from tuikiln.drivers.modbus import ModbusDevice, ModbusSettings
 
 # One simulator process and one event loop for the whole module.
 pytestmark = pytest.mark.asyncio(loop_scope="module")

@@ -6,9 +6,9 @@ from __future__ import annotations
 
 import asyncio
 
-from drivers.factory import open_device
-from drivers.fake import FirstOrderOven, ManualClock, ScriptedDevice
 from tuikiln import events as ev
+from tuikiln.drivers.factory import open_device
+from tuikiln.drivers.fake import FirstOrderOven, ManualClock, ScriptedDevice
 from tuikiln.engine import states as st
 from tuikiln.engine.runner import KilnInfo, RunEngine
 from tuikiln.kiln import parse_kiln

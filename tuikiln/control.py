@@ -31,6 +31,7 @@ import json
 import os
 import re
 import socket
+import stat
 import struct
 import tempfile
 from collections.abc import Iterator
@@ -44,6 +45,10 @@ from tuikiln.runlog import pid_alive
 MAX_LINE = 64 * 1024
 SOCKET_PATH_MAX = 100  # sun_path is 108 bytes on Linux; keep a margin
 SUBSCRIBER_QUEUE = 2000
+# A local program opening connections and leaving them idle would use up the engine's file
+# descriptors (and with them the log and the device): cap them, and close idle ones.
+MAX_CLIENTS = 32
+IDLE_S = 60.0
 
 
 class KilnBusy(UserError):
@@ -66,6 +71,25 @@ def socket_path(data_dir: Path, kiln_name: str) -> Path:
         return path
     digest = hashlib.sha1(f"{data_dir.resolve()}|{slug}".encode()).hexdigest()[:16]
     return Path(tempfile.gettempdir()) / f"tuikiln-{os.getuid()}" / f"{digest}.sock"
+
+
+def check_private(path: Path, what: str) -> None:
+    """Refuse a socket or its folder unless it is ours and closed to others: in a shared
+    temporary folder another user could have made it first and put a fake engine there."""
+    try:
+        info = os.lstat(path)
+    except OSError as exc:
+        raise NoRun(f"cannot check the {what} {path}: {exc.strerror or exc}") from exc
+    if stat.S_ISLNK(info.st_mode):
+        problem = "is a symbolic link"
+    elif info.st_uid != os.getuid():
+        problem = f"belongs to another user (uid {info.st_uid})"
+    elif info.st_mode & 0o077:
+        problem = f"is open to other users (mode {stat.S_IMODE(info.st_mode):o})"
+    else:
+        return
+    raise UserError(f"refusing the {what} {path}: it {problem}; remove it (or ask whoever "
+                    "made it to) and try again")
 
 
 def active_path(data_dir: Path, kiln_name: str) -> Path:
@@ -185,6 +209,7 @@ class ControlServer:
         self.path.parent.mkdir(parents=True, exist_ok=True, mode=0o700)
         with contextlib.suppress(OSError):
             os.chmod(self.path.parent, 0o700)
+        check_private(self.path.parent, "control-socket folder")
         if self.path.exists() or self.path.is_symlink():
             self.path.unlink()  # we hold the kiln lock: any socket here is a dead run's
         old = os.umask(0o177)
@@ -219,9 +244,16 @@ class ControlServer:
             if not _same_user(writer):
                 await _send(writer, {"ok": False, "error": "refused: another user"})
                 return
+            if len(self._clients) > MAX_CLIENTS:
+                await _send(writer, {"ok": False, "error": f"refused: {MAX_CLIENTS} "
+                                     "connections are open already"})
+                return
             while True:
                 try:
-                    line = await reader.readline()
+                    line = await asyncio.wait_for(reader.readline(), IDLE_S)
+                except TimeoutError:
+                    await _send(writer, {"ok": False, "error": f"closed: idle {IDLE_S:.0f} s"})
+                    return
                 except (ValueError, asyncio.LimitOverrunError):
                     await _send(writer, {"ok": False, "error": "line too long"})
                     return
@@ -296,6 +328,8 @@ async def _send(writer: asyncio.StreamWriter, message: dict[str, Any]) -> None:
 
 
 def _connect(path: str, timeout: float) -> socket.socket:
+    check_private(Path(path).parent, "control-socket folder")
+    check_private(Path(path), "control socket")
     sock = socket.socket(socket.AF_UNIX, socket.SOCK_STREAM)
     sock.settimeout(timeout)
     try:

@@ -53,6 +53,7 @@ from typing import Any
 import numpy as np
 
 from tuikiln.events import Event
+from tuikiln.plaintext import plain, plain_tree
 
 RUNLOG_NAME = "runs.sqlite"
 SCHEMA_VERSION = 1
@@ -462,8 +463,10 @@ class RunRecorder:
             self.maybe_flush()
 
     def event(self, event: Event, *, urgent: bool = False) -> None:
-        self._events.append((self.run_id, event.time, event.kind, event.severity, event.message,
-                             json.dumps(dict(event.detail), default=str)))
+        # plain: one unencodable character in a message would fail every later commit.
+        self._events.append((self.run_id, event.time, event.kind, event.severity,
+                             plain(event.message, lines=True),
+                             json.dumps(plain_tree(dict(event.detail)), default=str)))
         if urgent or event.severity == "critical":
             self.flush()
 

@@ -19,7 +19,7 @@ import tempfile
 import time
 from pathlib import Path
 
-from drivers.factory import open_device
+from tuikiln.drivers.factory import open_device
 from tuikiln.engine.runner import KilnInfo, RunEngine
 from tuikiln.limits import Limits
 from tuikiln.profile import parse_profile

@@ -32,9 +32,9 @@ import numpy as np
 
 sys.path.insert(0, str(Path(__file__).resolve().parents[2]))
 
-from simulator import LoadConfig, SimConfig, SimulatedKiln  # noqa: E402
 from tuikiln.equalize import LoadWatch, rule_of_thumb_s  # noqa: E402
 from tuikiln.limits import Limits  # noqa: E402
+from tuikiln.simulator import LoadConfig, SimConfig, SimulatedKiln  # noqa: E402
 
 MATERIALS = {"carbon steel": "1084", "tool steel": "AISI O1", "stainless": "440C"}
 TYPICAL_EPS, TYPICAL_H = 0.8, 10.0  # the simulator's defaults: oxidised steel, still air

@@ -27,8 +27,8 @@ ROOT = Path(__file__).resolve().parents[2]
 if str(ROOT) not in sys.path:
     sys.path.insert(0, str(ROOT))
 
-from drivers.maps import parse_map  # noqa: E402
-from drivers.modbus import ModbusDevice, ModbusSettings  # noqa: E402
+from tuikiln.drivers.maps import parse_map  # noqa: E402
+from tuikiln.drivers.modbus import ModbusDevice, ModbusSettings  # noqa: E402
 
 BAUD = 9600
 REQUEST_BYTES, REPLY_BYTES, GAP_CHARS = 8, 9, 3.5

@@ -18,7 +18,7 @@ from pathlib import Path
 
 sys.path.insert(0, str(Path(__file__).resolve().parents[2]))
 
-from simulator import Fault, LoadConfig, SimConfig, SimulatedKiln  # noqa: E402
+from tuikiln.simulator import Fault, LoadConfig, SimConfig, SimulatedKiln  # noqa: E402
 
 TARGET = 100_000.0
 

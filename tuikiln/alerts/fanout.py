@@ -14,6 +14,7 @@ from typing import Any, TextIO
 from tuikiln import events as ev
 from tuikiln.alerts.settings import HOOK_GROUPS
 from tuikiln.events import AlertSink, Event
+from tuikiln.plaintext import plain
 
 log = logging.getLogger(__name__)
 
@@ -95,7 +96,7 @@ class TerminalSink:
         mark = {"critical": "!!", "warning": "! "}.get(event.severity, "  ")
         ring = "\a" if self.bell and event.kind in BELL_KINDS else ""
         try:
-            stream.write(f"{ring}{self._format_time(event.time)} {mark} {event.message}\n")
+            stream.write(f"{ring}{self._format_time(event.time)} {mark} {plain(event.message)}\n")
             stream.flush()
         except (OSError, ValueError):
             pass  # a closed terminal must not stop the run

@@ -3,7 +3,8 @@
 A remote command may only make things safer or quieter. The allow-list lives here and
 nowhere else. Payloads are JSON objects on `{prefix}/{id}/command`:
 
-    {"command": "ack"}                          acknowledge the alarms and the operator prompt
+    {"command": "ack"}                          acknowledge the alarms (never a pause step
+                                                or a hold after a restart: going on adds heat)
     {"command": "ack", "alarm": "CODE"}         acknowledge one alarm
     {"command": "pause"}                        pause the run (holds, never adds heat)
     {"command": "abort"}                        end the run and drive the oven safe

@@ -2,13 +2,18 @@
 
 The file has a header row; which columns hold the time and the chamber (and optionally the
 load) temperature, the temperature unit and how the time is written are given by a
-`CsvLayout`. Reading is all or nothing: either every data row is good and a `CsvLog` comes
-back, or `FileProblems` lists the bad rows by line number (the first `MAX_PROBLEMS` of them).
+`CsvLayout`. What it leaves out is read from the file (`csvsniff`): the text encoding (UTF-8,
+with or without a byte-order mark, else Latin-1), the column separator, a decimal comma, the
+unit in the header ("Chamber (°F)", "degF"), and the time's form (seconds, H:MM:SS, ISO 8601,
+Unix time, spreadsheet day serials). Reading is all or nothing: either every data row is
+good and a `CsvLog` comes back, or `FileProblems` lists the bad rows by line number (the
+first `MAX_PROBLEMS` of them).
 """
 
 from __future__ import annotations
 
 import csv
+import dataclasses
 import difflib
 import io
 import math
@@ -20,12 +25,19 @@ from typing import TypeVar
 
 import numpy as np
 
+from tuikiln.analysis import csvsniff
 from tuikiln.errors import FileProblems, Problem
 from tuikiln.units import ABSOLUTE_ZERO_C, UNITS, f_to_c, symbol, to_c
 
 MAX_PROBLEMS = 20
-TIME_FORMATS = ("seconds", "minutes", "iso")
-_SECONDS_PER = {"seconds": 1.0, "minutes": 60.0}
+TIME_FORMATS = ("auto", "seconds", "minutes", "hms", "iso", "epoch", "days")
+# Numeric time forms: seconds per unit ("epoch" is Unix time; "days" spreadsheet serials).
+_SECONDS_PER = {"seconds": 1.0, "minutes": 60.0, "epoch": 1.0, "days": 86400.0}
+# Column names tried when none is given: the usual ones, then `tuikiln export`'s own.
+TIME_COLUMNS = ("time", "t_s", "timestamp", "datetime", "date/time", "elapsed")
+CHAMBER_COLUMNS = ("chamber", "chamber_c", "temperature", "temp", "pv")
+# The first spreadsheet day (serial 0) is 1899-12-30; Unix time 0 is serial 25569.
+_SERIAL_UNIX_DAY = 25569.0
 _T = TypeVar("_T")
 _Row = tuple[int, tuple[str, ...]]  # (first line of the row, its cells)
 
@@ -34,30 +46,38 @@ _Row = tuple[int, tuple[str, ...]]  # (first line of the row, its cells)
 class CsvLayout:
     """Where things are in the file and how they are written.
 
-    `time_format` is "seconds" or "minutes" (from any start; the log is shifted to start at
-    0), "iso" (ISO 8601 timestamps such as 2024-03-01T14:05:00 or ...+01:00), or a strftime
-    format such as "%d/%m/%Y %H:%M:%S". Timestamps without a zone are taken as they are, so a
-    clock change inside a local-time log shows up as time going backwards (and is reported).
+    `time_format` is "auto" (read from the file), "seconds" or "minutes" (from any start;
+    the log is shifted to start at 0), "hms" (elapsed H:MM:SS), "iso" (ISO 8601 timestamps
+    such as 2024-03-01T14:05:00 or ...+01:00), "epoch" (Unix seconds), "days" (spreadsheet
+    day serials), or a strftime format such as "%d/%m/%Y %H:%M:%S". Timestamps without a
+    zone are taken as they are, so a clock change inside a local-time log shows up as time
+    going backwards (and is reported). None elsewhere means: read it from the file.
     """
 
-    time_column: str = "time"
-    chamber_column: str = "chamber"
+    time_column: str | None = None
+    chamber_column: str | None = None
     load_column: str | None = None
-    units: str = "C"
-    time_format: str = "seconds"
-    delimiter: str = ","
-    encoding: str = "utf-8-sig"  # "-sig": a byte-order mark from spreadsheet exports is dropped
+    units: str | None = None
+    time_format: str = "auto"
+    delimiter: str | None = None
+    encoding: str | None = None
+    decimal: str | None = None
 
     def __post_init__(self) -> None:
-        if self.units not in UNITS:
+        if self.units is not None and self.units not in UNITS:
             raise ValueError(f'the temperature unit must be "C" or "F", not "{self.units}"')
         if self.time_format not in TIME_FORMATS and "%" not in self.time_format:
             raise ValueError(
-                f'the time format must be "seconds", "minutes", "iso" or a strftime format '
-                f'such as "%Y-%m-%d %H:%M:%S", not "{self.time_format}"'
+                'the time format must be "auto", "seconds", "minutes", "hms", "iso", "epoch", '
+                f'"days" or a strftime format such as "%Y-%m-%d %H:%M:%S", not '
+                f'"{self.time_format}"'
             )
-        if len(self.delimiter) != 1:
+        if self.delimiter is not None and len(self.delimiter) != 1:
             raise ValueError(f'the column separator must be one character, not "{self.delimiter}"')
+        if self.decimal not in (None, ".", ","):
+            raise ValueError(f'the decimal mark must be "." or ",", not "{self.decimal}"')
+        if self.decimal == "," and self.delimiter == ",":
+            raise ValueError('a decimal comma needs another column separator, such as ";"')
 
 
 @dataclass(frozen=True, eq=False)
@@ -68,6 +88,11 @@ class CsvLog:
     time_s: np.ndarray
     chamber_c: np.ndarray
     load_c: np.ndarray | None
+    start_epoch: float | None = None
+    """Unix time of the first row, when the file's times are absolute (epoch, day serials,
+    ISO with a zone)."""
+    units: str = "C"
+    """The unit the file's temperatures were in (they are converted to °C)."""
 
 
 class _Collector:
@@ -108,24 +133,12 @@ def read_csv_log(path: str | Path, layout: CsvLayout | None = None) -> CsvLog:
 def parse_csv_log(data: bytes | str, source: str, layout: CsvLayout | None = None) -> CsvLog:
     """Like `read_csv_log`, for the file's content; `source` names it in messages."""
     layout = layout or CsvLayout()
-    if isinstance(data, bytes):
-        try:
-            text = data.decode(layout.encoding)
-        except UnicodeDecodeError as exc:
-            line = data[: exc.start].count(b"\n") + 1
-            raise FileProblems(
-                [
-                    Problem(
-                        source,
-                        line,
-                        f"is not {layout.encoding} text (byte "
-                        f"0x{data[exc.start]:02x}); save it as UTF-8",
-                    )
-                ]
-            ) from None
-    else:
-        text = data.removeprefix("\ufeff")
+    text = _decode(data, source, layout.encoding)
     problems = _Collector(source)
+    if layout.delimiter is None:
+        first = [line for line in text.splitlines()[:50] if line.strip()][:3]
+        layout = dataclasses.replace(layout, delimiter=csvsniff.delimiter(first))
+    assert layout.delimiter is not None
     rows = _read_rows(text, layout.delimiter, problems)
     problems.raise_if_any()
     header_at = next((i for i, (_, cells) in enumerate(rows) if not _blank(cells)), None)
@@ -134,7 +147,81 @@ def parse_csv_log(data: bytes | str, source: str, layout: CsvLayout | None = Non
     header_line, header = rows[header_at]
     columns = _find_columns(header, header_line, layout, problems)
     problems.raise_if_any()
-    return _parse_rows(rows[header_at + 1 :], columns, layout, problems)
+    body = rows[header_at + 1 :]
+    layout = _resolve(layout, header, header_line, columns, body, problems)
+    problems.raise_if_any()
+    return _parse_rows(body, columns, layout, problems)
+
+
+def _decode(data: bytes | str, source: str, encoding: str | None) -> str:
+    if isinstance(data, str):
+        return data.removeprefix("\ufeff")
+    if encoding is None:
+        try:
+            return data.decode("utf-8-sig")  # "-sig": a spreadsheet's byte-order mark goes
+        except UnicodeDecodeError:
+            # Not UTF-8: the usual other one for such logs (every byte is a Latin-1 letter).
+            return data.decode("latin-1")
+    if encoding.replace("_", "-").lower() in ("utf-8", "utf8"):
+        encoding = "utf-8-sig"
+    try:
+        return data.decode(encoding)
+    except UnicodeDecodeError as exc:
+        line = data[: exc.start].count(b"\n") + 1
+        raise FileProblems([Problem(source, line, f"is not {encoding} text (byte "
+                                    f"0x{data[exc.start]:02x}); save it as UTF-8")]) from None
+    except LookupError:
+        raise FileProblems([Problem(source, None, f'"{encoding}" is not a text encoding '
+                                    "Python knows (try utf-8 or latin-1)")]) from None
+
+
+def _resolve(layout: CsvLayout, header: Sequence[str], line: int, columns: dict[str, int],
+             body: list[_Row], problems: _Collector) -> CsvLayout:
+    """Fill in what the layout left to the file: units, decimal mark, time form."""
+    sample = [cells for _, cells in body[:200] if not _blank(cells)]
+
+    def cells_of(role: str) -> list[str]:
+        i = columns[role]
+        return [cells[i] for cells in sample if i < len(cells)]
+
+    said: dict[str, str] = {}
+    for role in ("chamber", "load"):
+        if role in columns:
+            unit = csvsniff.header_units(header[columns[role]])
+            if unit is not None:
+                said[header[columns[role]].strip()] = unit
+    units = layout.units
+    if len(set(said.values())) > 1:
+        listed = ", ".join(f'"{name}" in °{unit}' for name, unit in said.items())
+        problems.add(line, f"the header gives different units ({listed}): correct the header")
+    elif said:
+        name, unit = next(iter(said.items()))
+        if units is not None and units != unit:
+            problems.add(line, f'the header says "{name}" is in °{unit}, but the unit was '
+                         f"given as {units}: leave the unit out or correct the header")
+        units = unit
+    decimal = layout.decimal
+    if decimal is None:
+        temps = [c for role in ("chamber", "load") if role in columns for c in cells_of(role)]
+        decimal = "," if layout.delimiter != "," and csvsniff.decimal_comma(temps) else "."
+    time_format = layout.time_format
+    if time_format == "auto" and sample:
+        found = csvsniff.time_format(cells_of("time"), decimal)
+        by_header = csvsniff.header_time_format(header[columns["time"]])
+        if found is None:
+            first = next((c.strip() for c in cells_of("time") if c.strip()), "")
+            problems.add(line + 1, f'the time "{first}" is in no form I know (seconds, '
+                         "H:MM:SS, ISO 8601, Unix time, spreadsheet days): give the time "
+                         "format")
+            found = "seconds"
+        elif found == "seconds" and by_header is not None:
+            found = by_header
+        time_format = found
+    names = {role: header[i].strip() for role, i in columns.items()}
+    return dataclasses.replace(layout, units=units or "C", decimal=decimal,
+                               time_format=time_format, time_column=names["time"],
+                               chamber_column=names["chamber"],
+                               load_column=names.get("load"))
 
 
 def _read_rows(text: str, delimiter: str, problems: _Collector) -> list[_Row]:
@@ -163,14 +250,20 @@ def _find_columns(
     header: Sequence[str], line: int, layout: CsvLayout, problems: _Collector
 ) -> dict[str, int]:
     names = [cell.strip() for cell in header]
-    wanted = {"time": layout.time_column, "chamber": layout.chamber_column}
+    bases = [csvsniff.base_name(n).casefold() for n in names]
+    wanted = {"time": layout.time_column or _known(names, bases, TIME_COLUMNS),
+              "chamber": layout.chamber_column or _known(names, bases, CHAMBER_COLUMNS)}
     if layout.load_column is not None:
         wanted["load"] = layout.load_column
+    elif wanted["time"] == "t_s" and "load_c" in names:
+        wanted["load"] = "load_c"  # `tuikiln export`'s own file reads back without options
     found: dict[str, int] = {}
     for role, name in wanted.items():
         exact = [i for i, n in enumerate(names) if n == name]
         if not exact:
             exact = [i for i, n in enumerate(names) if n.casefold() == name.casefold()]
+        if not exact:
+            exact = [i for i, b in enumerate(bases) if b == name.casefold()]
         if len(exact) == 1:
             found[role] = exact[0]
             continue
@@ -186,6 +279,15 @@ def _find_columns(
     return found
 
 
+def _known(names: list[str], bases: list[str], known: tuple[str, ...]) -> str:
+    """The first known column name the header has (by its name without a unit)."""
+    for name in known:
+        for i, base in enumerate(bases):
+            if base == name:
+                return names[i]
+    return known[0]
+
+
 def _parse_rows(
     rows: list[_Row],
     columns: dict[str, int],
@@ -199,7 +301,7 @@ def _parse_rows(
     parsed = _numbers_at_once(data, columns, layout)
     if parsed is None:
         parsed = _row_by_row(data, columns, layout, problems)
-    seconds, temps = parsed
+    seconds, temps, start = parsed
     for index in np.flatnonzero(np.diff(seconds) <= 0):
         problems.add(
             lines[index + 1],
@@ -211,10 +313,13 @@ def _parse_rows(
         time_s=seconds,
         chamber_c=temps["chamber"],
         load_c=temps.get("load"),
+        start_epoch=start,
+        units=layout.units or "C",
     )
 
 
-_Parsed = tuple[np.ndarray, dict[str, np.ndarray]]
+# (seconds from the first row, temperatures in °C by role, Unix time of the first row)
+_Parsed = tuple[np.ndarray, dict[str, np.ndarray], float | None]
 
 
 def _numbers_at_once(
@@ -229,20 +334,33 @@ def _numbers_at_once(
     if any(len(cells) <= widest for _, cells in data):
         return None
     parsed: dict[str, np.ndarray] = {}
+    comma = layout.decimal == ","
     try:
         for role, index in columns.items():
-            parsed[role] = np.array([cells[index] for _, cells in data], dtype=float)
+            texts = [cells[index] for _, cells in data]
+            if comma:
+                texts = [text.replace(",", ".") for text in texts]
+            parsed[role] = np.array(texts, dtype=float)
     except ValueError:
         return None
     if not all(np.isfinite(values).all() for values in parsed.values()):
         return None
-    seconds = parsed.pop("time") * _SECONDS_PER[layout.time_format]
+    raw = parsed.pop("time")
+    seconds = raw * _SECONDS_PER[layout.time_format]
     temps = {
         role: values if layout.units == "C" else f_to_c(values) for role, values in parsed.items()
     }
     if any((values < ABSOLUTE_ZERO_C).any() for values in temps.values()):
         return None
-    return seconds - seconds[0], temps
+    return seconds - seconds[0], temps, _epoch(float(raw[0]), layout.time_format)
+
+
+def _epoch(first: float, time_format: str) -> float | None:
+    if time_format == "epoch":
+        return first
+    if time_format == "days":
+        return (first - _SERIAL_UNIX_DAY) * 86400.0
+    return None
 
 
 def _row_by_row(
@@ -251,19 +369,20 @@ def _row_by_row(
     layout: CsvLayout,
     problems: _Collector,
 ) -> _Parsed:
-    parse_time = _time_parser(layout.time_format)
+    decimal = layout.decimal or "."
+    parse_time = _time_parser(layout.time_format, decimal)
     lines: list[int] = []
     stamps: list[float | datetime] = []
     temps: dict[str, list[float]] = {role: [] for role in columns if role != "time"}
     for line, cells in data:
         wrong: list[str] = []
-        stamp = _cell(cells, columns["time"], layout.time_column, parse_time, wrong)
+        stamp = _cell(cells, columns["time"], str(layout.time_column), parse_time, wrong)
         values = {
             role: _cell(
                 cells,
                 columns[role],
                 _column_name(layout, role),
-                lambda text: _temperature(text, layout.units),
+                lambda text: _temperature(text, layout.units or "C", decimal),
                 wrong,
             )
             for role in temps
@@ -277,13 +396,14 @@ def _row_by_row(
         for role, value in values.items():
             temps[role].append(value)  # type: ignore[arg-type]
     problems.raise_if_any()
-    seconds = _seconds_from_start(stamps, lines, layout.time_format, problems)
+    seconds, start = _seconds_from_start(stamps, lines, layout.time_format, problems)
     problems.raise_if_any()
-    return seconds, {role: np.array(values, dtype=float) for role, values in temps.items()}
+    return (seconds, {role: np.array(values, dtype=float) for role, values in temps.items()},
+            start)
 
 
 def _column_name(layout: CsvLayout, role: str) -> str:
-    return layout.chamber_column if role == "chamber" else str(layout.load_column)
+    return str(layout.chamber_column if role == "chamber" else layout.load_column)
 
 
 def _cell(
@@ -300,27 +420,35 @@ def _cell(
         return None
 
 
-def _number(text: str) -> float:
+def _number(text: str, decimal: str = ".") -> float:
+    if decimal == ",":
+        if "." in text:
+            raise ValueError(f'"{text}" has a decimal point, but this file writes decimals '
+                             "with a comma")
+        text = text.replace(",", ".")
     try:
         value = float(text)
     except ValueError:
-        hint = " (write decimals with a point)" if "," in text else ""
+        hint = (" (for a decimal comma, give the decimal mark as \",\" and another separator)"
+                if "," in text else "")
         raise ValueError(f'"{text}" is not a number{hint}') from None
     if not math.isfinite(value):
         raise ValueError(f'"{text}" is not a number')
     return value
 
 
-def _temperature(text: str, units: str) -> float:
-    celsius = to_c(_number(text), units)
+def _temperature(text: str, units: str, decimal: str = ".") -> float:
+    celsius = to_c(_number(text, decimal), units)
     if celsius < ABSOLUTE_ZERO_C:
         raise ValueError(f"{text} {symbol(units)} is below absolute zero")
     return celsius
 
 
-def _time_parser(time_format: str) -> Callable[[str], float | datetime]:
+def _time_parser(time_format: str, decimal: str = ".") -> Callable[[str], float | datetime]:
     if time_format in _SECONDS_PER:
-        return _number
+        return lambda text: _number(text, decimal)
+    if time_format == "hms":
+        return csvsniff.hms_seconds
     if time_format == "iso":
 
         def parse_iso(text: str) -> datetime:
@@ -344,10 +472,11 @@ def _time_parser(time_format: str) -> Callable[[str], float | datetime]:
 
 def _seconds_from_start(
     stamps: list[float | datetime], lines: list[int], time_format: str, problems: _Collector
-) -> np.ndarray:
-    if time_format in _SECONDS_PER:
-        values = np.array(stamps, dtype=float) * _SECONDS_PER[time_format]
-        return values - values[0]
+) -> tuple[np.ndarray, float | None]:
+    if time_format in _SECONDS_PER or time_format == "hms":
+        raw = np.array(stamps, dtype=float)
+        values = raw * _SECONDS_PER.get(time_format, 1.0)
+        return values - values[0], _epoch(float(raw[0]), time_format)
     dates: list[datetime] = stamps  # type: ignore[assignment]
     zoned = dates[0].tzinfo is not None
     seconds = np.empty(len(dates))
@@ -360,4 +489,4 @@ def _seconds_from_start(
             seconds[i] = math.nan
             continue
         seconds[i] = (stamp - dates[0]).total_seconds()
-    return seconds
+    return seconds, dates[0].timestamp() if zoned else None

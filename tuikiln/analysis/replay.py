@@ -34,7 +34,7 @@ from tuikiln.analysis import temper as temper_rules
 from tuikiln.analysis.whatif import AlarmSpan, Rerun, alarm_spans, rerun_rules
 from tuikiln.engine import states as st
 from tuikiln.engine.alarms import ALARMS, CRITICAL
-from tuikiln.engine.stepper import within_band
+from tuikiln.engine.stepper import BAND_DWELL_S, within_band
 from tuikiln.limits import Limits
 from tuikiln.profile import Cool, Hold, Pause, Profile, Ramp, Step, describe_step
 from tuikiln.units import Units, delta_from_c, format_duration, format_rate, format_temp, symbol
@@ -66,6 +66,21 @@ _EVENING = st.STATE_CODE[st.EVENING]
 def in_band(temp_c: np.ndarray | float, target_c: float, band_c: float) -> np.ndarray | bool:
     """The engine's band rule (tuikiln.engine.stepper.within_band), for arrays as well."""
     return within_band(np.asarray(temp_c), target_c, band_c)
+
+
+def with_dwell(raw: np.ndarray, seconds: np.ndarray) -> np.ndarray:
+    """The stepper's band dwell over a reached hold's samples: a stretch in or out of the band
+    shorter than BAND_DWELL_S goes to the side of the last longer one (in band at first)."""
+    n = raw.size
+    if n == 0:
+        return raw
+    edges = np.flatnonzero(raw[1:] != raw[:-1]) + 1
+    starts, ends = np.r_[0, edges], np.r_[edges, n]
+    total = np.r_[0.0, np.cumsum(seconds)]
+    decided = np.where(total[ends] - total[starts] >= BAND_DWELL_S, raw[starts].astype(np.int8), -1)
+    last = np.maximum.accumulate(np.where(decided >= 0, np.arange(decided.size), -1))
+    side = np.where(last >= 0, decided[np.maximum(last, 0)], 1).astype(bool)
+    return np.repeat(side, ends - starts)
 
 
 @dataclass(eq=False)
@@ -107,6 +122,28 @@ class Trace:
     @property
     def has_load(self) -> bool:
         return bool(np.isfinite(self.load_c).any())
+
+    @property
+    def sample_s(self) -> float:
+        """The usual interval between samples (the median: a gap does not move it)."""
+        if self.t.size < 2:
+            return 0.0
+        return float(np.median(np.diff(self.t)))
+
+    def has(self, column: str) -> bool:
+        """The log has this signal (a column of all NaN is one the log never had)."""
+        return bool(np.isfinite(getattr(self, column)).any())
+
+
+# Alarms that judge the heater from its output or the controller's setpoint: a log with
+# neither column cannot support them.
+HEATER_ALARMS = frozenset({"no-rise", "heat-stuck-on"})
+
+
+def unjudged_alarms(trace: Trace) -> frozenset[str]:
+    if trace.has("output_pct") or trace.has("setpoint_c"):
+        return frozenset()
+    return HEATER_ALARMS
 
 
 @dataclass
@@ -249,12 +286,21 @@ def replay_run(
     use_rules = rerun if rerun is not None else (trace.step is None or trace.state is None)
     rerun_result: Rerun | None = None
     if use_rules:
+        # Only what the log shows: no step column, so holds are judged to one sample interval;
+        # no heater output nor setpoint column, so nothing is said about the heater.
+        foreign = trace.step is None
         rerun_result = rerun_rules(trace.t, trace.chamber_c, trace.load_c, trace.output_pct,
                                    profile, limits, events=logged_events, flags=trace.flags,
-                                   max_c=max_c, units=units, same_profile=same_profile)
+                                   max_c=max_c, units=units, same_profile=same_profile,
+                                   sample_s=trace.sample_s if foreign else 0.0,
+                                   unjudged=unjudged_alarms(trace))
         step_codes, state_codes = rerun_result.step, rerun_result.state
         rule_events = rerun_result.events
-        if outcome is None or not same_profile or trace.step is None:
+        if foreign:
+            # Another tool's log has no outcome: the steps' verdicts say what happened, and
+            # a log that simply stops is not a run that failed.
+            outcome = rerun_result.outcome
+        elif outcome is None or not same_profile:
             outcome = rerun_result.outcome or st.UNFINISHED
         source = "rules"
     else:
@@ -395,6 +441,15 @@ class _Analysis:
             self._overshoot(figures, temps, times, step.to_c)
         if not finished:
             now = figures.get("reached_c")
+            if self._reached_between_samples(step, times, temps):
+                result.figures["finished"] = True
+                return
+            if self._cooling_at_end(result, step, temps):
+                begun = times.size >= 2 and times[-1] - times[0] > 2.0 * self.trace.sample_s
+                _worse(result, REMARKS, f"the log ends at {w.t(now)} while cooling (the "
+                       f"target is {w.t(step.to_c)})" if begun else
+                       "not in the log: the log ends as the cool begins")
+                return
             result.verdict = MISSED
             result.reasons.append(f"did not finish: {self._ending()} at {w.t(now)} (the "
                                   f"target is {w.t(step.to_c)})")
@@ -404,6 +459,42 @@ class _Analysis:
             _worse(result, REMARKS, f"finished {format_duration(behind)} later than planned "
                    f"(planned {format_rate(rate, self.units)}, achieved "
                    f"{format_rate(achieved, self.units)})")
+
+    def _cooling_at_end(self, result: StepResult, step: Ramp | Cool,
+                        temps: np.ndarray) -> bool:
+        """Another tool's log that stops during the last step, a cool, with the oven falling:
+        the cool happened; only its end is not in the log."""
+        if not isinstance(step, Cool) or self.outcome is not None or self.trace.step is not None:
+            return False
+        if result.index != len(self.profile.steps) - 1:
+            return False
+        good = temps[np.isfinite(temps)]
+        times = self.t[np.searchsorted(self.t, self.t[-1] - 2.0 * self.trace.sample_s):]
+        just_begun = good.size < 2 or times.size >= good.size
+        return just_begun or float(good[-1]) < float(good[0])
+
+    def _reached_between_samples(self, step: Ramp | Cool, times: np.ndarray,
+                                 temps: np.ndarray) -> bool:
+        """A log with no outcome (another tool's, or a thinned export) that ends within the
+        band of the target, or would pass it within one more sample interval at the rate it
+        was going: the target was reached, as far as such a log can show. The engine ends a
+        step at the first reading past the target, noise included, so the last sample kept
+        of a thinned log lies anywhere in the reading noise above it; the band is the tool's
+        own measure of "at temperature"."""
+        if self.outcome is not None or self.trace.step is not None:
+            return False
+        good = np.isfinite(temps)
+        if good.sum() < 2:
+            return False
+        t_good, temp_good = times[good], temps[good]
+        span = float(t_good[-1] - t_good[-2])
+        rate = (float(temp_good[-1]) - float(temp_good[-2])) / span if span > 0 else 0.0
+        ahead = float(temp_good[-1]) + rate * self.trace.sample_s
+        if abs(float(temp_good[-1]) - step.to_c) <= self.limits.band:
+            return True
+        if step.to_c > float(temp_good[0]):
+            return ahead >= step.to_c
+        return ahead <= step.to_c
 
     def _overshoot(self, figures: dict[str, Any], temps: np.ndarray, times: np.ndarray,
                    target_c: float) -> None:
@@ -467,9 +558,9 @@ class _Analysis:
         at = slice(reached_i, None)
         temps_at, times_at, dt_at = temps[at], times[at], dt[at]
         good = np.isfinite(temps_at)
-        inside = np.asarray(in_band(temps_at, target, band)) & good
-        outside = ~inside
         dt_in = np.r_[dt_at[1:], 0.0]  # a sample's state lasts until the next sample
+        inside = with_dwell(np.asarray(in_band(temps_at, target, band)) & good, dt_in)
+        outside = ~inside
         figures["in_band_s"] = float(dt_in[inside].sum())
         figures["out_of_band_s"] = float(dt_in[outside].sum())
         figures["at_temperature_s"] = figures["in_band_s"]
@@ -641,6 +732,9 @@ def temper_figures(result: Replay, c: float = temper_rules.DEFAULT_C) -> dict[st
     hardening = [i for i, step in enumerate(steps) if isinstance(step, Hold)
                  and targets[i] is not None and (targets[i] or 0.0) >= HARDEN_MIN_C]
     after = hardening[-1] if hardening else -1
+    tempers = [i for i, step in enumerate(steps) if isinstance(step, Hold) and i > after
+               and targets[i] is not None and TEMPER_MIN_C <= (targets[i] or 0.0) < TEMPER_MAX_C]
+    foreign = result.trace.step is None
     for i, step in enumerate(steps):
         target = targets[i]
         if not isinstance(step, Hold) or target is None or i <= after:
@@ -659,6 +753,12 @@ def temper_figures(result: Replay, c: float = temper_rules.DEFAULT_C) -> dict[st
                                      target, step.duration_s / 3600.0, c)}
         planned.append((target, step.duration_s / 3600.0))
         span = _span(result, first, last)
+        if foreign and len(tempers) == 1:
+            # Another tool's log: where the rules put the step edges is a guess, the trace is
+            # not. The whole trace above the threshold counts (after the quench, when there
+            # was a hardening: the quench's own cooling is not tempering).
+            n = result.trace.t.size
+            span = (0 if after < 0 else (span[0] if span is not None else n), n)
         entry["parameter"] = None
         if span is not None and span[1] - span[0] >= 2:
             lo, hi = span

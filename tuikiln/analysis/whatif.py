@@ -16,6 +16,7 @@ when the log has none (another tool's log), so a replay never waits for a person
 
 from __future__ import annotations
 
+import dataclasses
 import math
 from collections.abc import Mapping, Sequence
 from dataclasses import dataclass, field
@@ -27,7 +28,7 @@ from tuikiln import events as ev
 from tuikiln.engine import states as st
 from tuikiln.engine.rules import RunRules, TickInput
 from tuikiln.limits import Limits
-from tuikiln.profile import Profile
+from tuikiln.profile import Hold, Profile
 from tuikiln.units import Units
 
 REPLAYED_COMMANDS = ("pause", "resume", "skip", "abort")
@@ -90,14 +91,27 @@ def rerun_rules(
     max_c: float | None = None,
     units: Units | None = None,
     same_profile: bool = True,
+    sample_s: float = 0.0,
+    unjudged: frozenset[str] = frozenset(),
 ) -> Rerun:
     """Feed the samples to a fresh RunRules; `load_c` is the load thermocouple (NaN: none;
-    the rules keep their own core estimate, as in a live run)."""
+    the rules keep their own core estimate, as in a live run).
+
+    `sample_s`: the log's sample interval, for a log that has no step column (another
+    tool's, or a thinned export). The rules count a hold's clock from the first sample in
+    band to the last, which falls short of the real hold by up to one interval, so each hold
+    is taken as done one interval early: a 10 s log that ends at the last sample of a hold
+    finished it. `unjudged`: alarm codes about signals the log does not have."""
+    if sample_s > 0.0:
+        profile = dataclasses.replace(profile, steps=tuple(
+            dataclasses.replace(s, duration_s=max(0.0, s.duration_s - sample_s))
+            if isinstance(s, Hold) else s for s in profile.steps))
     n = t.size
     step = np.full(n, -1, dtype=np.int64)
     state = np.zeros(n, dtype=np.int64)
     setpoints = np.full(n, np.nan)
     rules = RunRules(profile, limits, max_c=max_c, units=units)
+    rules.alarms.unjudged = frozenset(unjudged)
     commands, acks = _logged_commands(events, with_skips=same_profile)
     next_command = 0
     next_ack = 0

@@ -8,6 +8,7 @@ import json
 import sys
 from typing import Any
 
+from tuikiln.plaintext import plain
 from tuikiln.units import format_duration, format_temp
 
 HELP = "steer or watch the run going on"
@@ -57,11 +58,14 @@ def run(args: argparse.Namespace) -> int:
         arg = " ".join(args.text)
     elif cmd == "abort":
         arg = " ".join(args.reason) or None
+    if arg is not None:
+        arg = plain(arg)  # invalid bytes in argv arrive as lone surrogates
     answer = control.request(active.socket, cmd, arg)
     if not answer.get("ok"):
-        print(f"tuikiln: {answer.get('message') or answer.get('error')}", file=sys.stderr)
+        print(f"tuikiln: {plain(answer.get('message') or answer.get('error'))}",
+              file=sys.stderr)
         return 1
-    print(answer.get("message", "done"))
+    print(plain(answer.get("message", "done")))
     return 0
 
 

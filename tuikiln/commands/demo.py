@@ -15,6 +15,7 @@ import shutil
 import signal
 import tempfile
 from dataclasses import replace
+from importlib import resources
 from pathlib import Path
 
 from tuikiln.errors import UserError
@@ -22,7 +23,8 @@ from tuikiln.kiln import Kiln, load_kiln
 from tuikiln.profile import load_profile
 
 HELP = "watch a whole harden-and-temper cycle on the built-in simulator, sped up"
-DEMO_PROFILE = Path(__file__).resolve().parents[2] / "profiles" / "demo-harden-temper.toml"
+# Inside the package (tuikiln.profiles), so the demo finds it after any install.
+DEMO_PROFILE = Path(str(resources.files("tuikiln.profiles") / "demo-harden-temper.toml"))
 DEFAULT_SPEED = 200.0
 
 

@@ -1,7 +1,8 @@
 """`tuikiln probe`: connect to the kiln's device and print a few readings.
 
 For checking wiring, port settings and the register map before the first run. It only
-reads: it never writes a setpoint or switches the heat.
+reads: it never writes a setpoint or switches the heat. `--scan` reads raw ranges of
+registers or coils instead, to help write a map (tuikiln/commands/probe_scan.py).
 """
 
 from __future__ import annotations
@@ -13,8 +14,8 @@ import sys
 import time
 from typing import Any
 
-from drivers.base import Device, Reading
-from drivers.errors import BadReply, DeviceError, LinkLost, NoAnswer, SettingsError
+from tuikiln.drivers.base import Device, Reading
+from tuikiln.drivers.errors import BadReply, DeviceError, LinkLost, NoAnswer, SettingsError
 from tuikiln.errors import UserError
 from tuikiln.units import Units, format_temp
 
@@ -33,6 +34,10 @@ def add_arguments(parser: argparse.ArgumentParser) -> None:
                         help="seconds between readings (default: the kiln file's poll)")
     parser.add_argument("--json", action="store_true",
                         help="one JSON object per reading (temperatures in °C)")
+    parser.add_argument("--scan", action="append", default=[], metavar="FC:FIRST-LAST",
+                        help="read raw coils (1), discrete inputs (2), holding (3) or input "
+                        "(4) registers FIRST..LAST --count times and show which change, to "
+                        "help write a map (repeatable; the kiln file's map is not used)")
 
 
 def _load(path: str | None) -> tuple[dict[str, Any], str, Units]:
@@ -101,13 +106,22 @@ def _user_error(exc: DeviceError, device: Device | None) -> UserError:
 
 
 async def _probe(args: argparse.Namespace, out: Any) -> int:
-    from drivers.factory import open_device
+    from tuikiln.drivers.factory import open_device
 
+    scans = []
+    if args.scan:
+        from tuikiln.commands.probe_scan import parse_scan
+
+        scans = [parse_scan(text) for text in args.scan]
+        if args.count < 1:
+            raise UserError(f"--scan needs --count 1 or more, not {args.count}")
     table, base_dir, units = _load(args.kiln)
     try:
         device = open_device(table, base_dir)
     except SettingsError as exc:
         raise _user_error(exc, None) from None
+    if scans:
+        return await _scan(args, device, scans, out)
     every = args.every if args.every is not None else device.poll_s
     try:
         await device.connect()
@@ -142,6 +156,46 @@ async def _probe(args: argparse.Namespace, out: Any) -> int:
             f"the device answers but the values look wrong: {absurd}\n"
             "  try: check the map's scale or decimals (raw 8523 with one decimal place is "
             "852.3), signed, word_order, and units (C or F) against the controller's manual")
+    return 0
+
+
+async def _scan(args: argparse.Namespace, device: Device, scans: list[Any], out: Any) -> int:
+    from tuikiln.commands.probe_scan import ScanResult, report_json, report_lines, scan_pass
+    from tuikiln.drivers.modbus import ModbusDevice
+
+    if not isinstance(device, ModbusDevice):
+        raise UserError(f"--scan reads Modbus registers; the kiln file's device is "
+                        f"{device.description}")
+    every = args.every if args.every is not None else device.poll_s
+    try:
+        await device.open_link()
+    except DeviceError as exc:
+        await device.close()
+        raise _user_error(exc, device) from None
+    print(f"probe: scanning {device.description}, {args.count} passes {every:g} s apart "
+          "(reads only)", file=sys.stderr)
+    results = [ScanResult(r) for r in scans]
+    try:
+        for number in range(args.count):
+            if number:
+                await device.clock.sleep(every)
+            for result in results:
+                try:
+                    await scan_pass(device, result)
+                except LinkLost as exc:
+                    raise _user_error(exc, device) from None
+    finally:
+        await device.close()
+    for result in results:
+        if args.json:
+            print(report_json(result), file=out)
+        else:
+            print("\n".join(report_lines(result)), file=out)
+    if not any(result.answered() for result in results):
+        raise UserError(f"no address in the scanned ranges answered ({device.description})\n"
+                        "  try: another function code (many controllers keep readings in "
+                        "input registers, fc 4), or check the port settings with a plain "
+                        "`tuikiln probe`")
     return 0
 
 

@@ -297,9 +297,9 @@ async def run_headless(kiln: Any, profile: Any, data_dir: Path, *, speed: float 
                        start_index: int = 0, auto_continue: bool = False,
                        speed_text: str = "", stream: Any = None, resume: Any = None,
                        watchdog_s: float | None = None) -> int:
-    from drivers.errors import DeviceError
-    from drivers.factory import open_device
     from tuikiln import control
+    from tuikiln.drivers.errors import DeviceError
+    from tuikiln.drivers.factory import open_device
     from tuikiln.engine import states as st
     from tuikiln.engine.runner import KilnInfo, RunEngine
     from tuikiln.limits import Limits
@@ -358,7 +358,7 @@ async def run_headless(kiln: Any, profile: Any, data_dir: Path, *, speed: float 
 
 
 async def _first_temperature(device: Any) -> float | None:
-    from drivers.errors import DeviceError, SensorFault
+    from tuikiln.drivers.errors import DeviceError, SensorFault
 
     last: Exception | None = None
     for _ in range(3):

@@ -11,7 +11,7 @@ HELP = "the built-in software oven: `sim serve` answers Modbus RTU on a pty or T
 
 
 def add_arguments(parser: argparse.ArgumentParser) -> None:
-    from simulator.serve import add_serve_arguments
+    from tuikiln.simulator.serve import add_serve_arguments
 
     sub = parser.add_subparsers(dest="sim_command", metavar="SUBCOMMAND")
     serve = sub.add_parser(
@@ -29,6 +29,6 @@ def run(args: argparse.Namespace) -> int:
     if getattr(args, "sim_command", None) != "serve":
         print("tuikiln sim: say what to do: `tuikiln sim serve --pty` (see --help)")
         return 2
-    from simulator.serve import main
+    from tuikiln.simulator.serve import main
 
     return main(args, prog="tuikiln sim")

@@ -12,7 +12,7 @@ import json
 import re
 from typing import Any
 
-from drivers import its90
+from tuikiln.drivers import its90
 from tuikiln.errors import UserError
 from tuikiln.units import c_to_f, parse_temperature
 

@@ -59,6 +59,10 @@ STUCK_RISE_C = 5.0             # ... by at least this much: heat with no output
 FULL_OUTPUT_PCT = 90.0
 NO_RISE_C = 2.0                # less rise than this over stall_for at full output: no heat
 HISTORY_EVERY_S = 10.0
+# After the setpoint drops (a ramp ends in a free or rated cool) the chamber keeps rising for
+# a minute or two on the heat stored in the elements and lining. "Far above the setpoint" is
+# judged against the highest setpoint of this long ago, so that coast is not a stuck relay.
+SETPOINT_LAG_S = 600.0
 SLOW_EVERY_S = 5.0
 
 
@@ -117,8 +121,12 @@ class AlarmRules:
     _demand_since: float | None = None
     _off_since: float | None = None
     _history: deque[tuple[float, float]] = field(default_factory=deque)
+    _recent_sp: deque[tuple[float, float]] = field(default_factory=deque)
     _slow_at: float = -1e300
     _pending: list[Event] = field(default_factory=list)
+    unjudged: frozenset[str] = frozenset()
+    """Codes never raised: a replay of a log without the signal they judge (a log with no
+    heater output column cannot say whether the heater was asked for power)."""
 
     # ----- public -----
 
@@ -187,6 +195,8 @@ class AlarmRules:
             return  # the common case, every tick: nothing to clear
         alarm = self.active.get(code)
         if on and alarm is None:
+            if code in self.unjudged:
+                return
             severity, _ = ALARMS[code]
             self.active[code] = Alarm(code, severity, words, now)
             prefix = "ALARM" if severity == CRITICAL else "Warning"
@@ -385,7 +395,7 @@ class AlarmRules:
         rise = None if before is None else temp - before
         rising_off = (self._off_since is not None and now - self._off_since >= STUCK_OFF_FOR_S
                       and rise is not None and rise >= STUCK_RISE_C)
-        sp = obs.setpoint_c
+        sp = self._highest_recent_setpoint(now, obs.setpoint_c)
         # Far above the setpoint and rising steadily through the whole window: a reading that
         # jumps back after the door was shut (a step, then flat) is not a stuck relay.
         half = self._temp_ago(now, STUCK_RISE_WINDOW_S / 2)
@@ -402,6 +412,17 @@ class AlarmRules:
                       f"{how} — a relay or contactor stuck closed")
         elif rise is not None and rise < NO_RISE_C and not far_above:
             self._set("heat-stuck-on", False, now)
+
+    def _highest_recent_setpoint(self, now: float, sp: float | None) -> float | None:
+        """The highest setpoint of the last SETPOINT_LAG_S (a sliding maximum)."""
+        recent = self._recent_sp
+        if sp is not None:
+            while recent and recent[-1][1] <= sp:
+                recent.pop()
+            recent.append((now, sp))
+        while recent and (now - recent[0][0] > SETPOINT_LAG_S or now < recent[0][0]):
+            recent.popleft()
+        return recent[0][1] if recent else sp
 
     def _check_hold(self, obs: Observation) -> None:
         now = obs.now

@@ -19,10 +19,15 @@ from tuikiln.engine.alarms import AlarmRules, Observation
 from tuikiln.engine.stepper import DetectorFactory, Stepper
 from tuikiln.events import Event
 from tuikiln.limits import Limits
+from tuikiln.plaintext import plain
 from tuikiln.profile import Profile, Ramp
 from tuikiln.units import ROOM_C, Units
 
 COMMANDS = ("pause", "resume", "skip", "abort", "ack", "note")
+# Command sources that are remote (tuikiln/alerts/remote.py): they may silence alarms but never
+# release a pause step or a hold after a restart, since going on from either can add heat.
+REMOTE_SOURCES = ("mqtt",)
+MAX_ARG_CHARS = 2000
 
 
 @dataclass
@@ -203,6 +208,10 @@ class RunRules:
 
     def command(self, now: float, name: str, arg: str | None = None,
                 source: str = "command") -> CommandResult:
+        # Every way in (socket, MQTT, keys, argv) meets here: make the words storable and
+        # printable once, so no note or reason can fail the log or drive a terminal.
+        name, source = plain(name, limit=40), plain(source, limit=40)
+        arg = None if arg is None else plain(arg, limit=MAX_ARG_CHARS)
         if self.ended:
             return self._refuse(now, name, source, "the run has ended")
         s = self.stepper
@@ -239,8 +248,8 @@ class RunRules:
 
     def _ack(self, now: float, code: str | None, source: str) -> CommandResult:
         events: list[Event] = []
-        if code in (None, "", "pause", "you"):
-            events.extend(self.stepper.acknowledge(now))
+        if code in (None, "", "pause", "you") and source not in REMOTE_SOURCES:
+            events.extend(self.stepper.acknowledge(now))  # going on may add heat: local only
         if code not in ("pause", "you"):
             if code and code not in self.alarms.active:
                 active = ", ".join(self.alarms.active) or "none"

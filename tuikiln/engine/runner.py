@@ -37,13 +37,13 @@ from collections.abc import Callable
 from dataclasses import dataclass
 from typing import Any
 
-from drivers.base import Device, Reading
-from drivers.errors import DeviceError, NotSupported, SensorFault
 from tuikiln import events as ev
+from tuikiln.drivers.base import Device, Reading
+from tuikiln.drivers.errors import DeviceError, NotSupported, SensorFault
 from tuikiln.engine import recovery
 from tuikiln.engine import states as st
 from tuikiln.engine.recovery import ResumePlan
-from tuikiln.engine.rules import CommandResult, Decision, RunRules, TickInput
+from tuikiln.engine.rules import REMOTE_SOURCES, CommandResult, Decision, RunRules, TickInput
 from tuikiln.engine.safety import SafeResult, drive_safe
 from tuikiln.engine.status import LastReading, build_status
 from tuikiln.events import Event
@@ -534,7 +534,7 @@ class RunEngine:
         """Commands while holding safe after a restart; None: the rules handle it."""
         if name in ("abort", "note") or (name == "ack" and arg not in (None, "", "you")):
             return None
-        if name not in ("resume", "ack"):
+        if name not in ("resume", "ack") or source in REMOTE_SOURCES:
             return CommandResult(False, "the run holds safe after a restart: `tuikiln resume` "
                                  "first (or `tuikiln abort`)", [Event(
                                      now, ev.COMMAND_REFUSED, f"Refused {name}: holding safe "

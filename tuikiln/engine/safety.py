@@ -11,8 +11,8 @@ from __future__ import annotations
 
 from dataclasses import dataclass
 
-from drivers.base import Device
-from drivers.errors import DeviceError, NotSupported
+from tuikiln.drivers.base import Device
+from tuikiln.drivers.errors import DeviceError, NotSupported
 
 SAFE_SETPOINT_C = 0.0
 ATTEMPTS = 3

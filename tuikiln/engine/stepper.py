@@ -15,7 +15,9 @@ The rules, as chosen for tuikiln (DEVELOPERS.md repeats them):
 - A `max` ramp sets the target at once and ends when the temperature enters the band.
 - A hold keeps the previous target. Its clock starts when the temperature is in the band
   (`reached`) or when the load has evened out (`equalized`); while out of band its clock
-  stops and the time out of band is counted.
+  stops and the time out of band is counted. A stretch in or out of the band shorter than
+  BAND_DWELL_S does not change the state, and its seconds go to the side the hold was on: a
+  chamber dithering on the band's edge neither flips the clock on and off nor raises alarms.
 - A rated cool lowers the setpoint at the rate and ends when the setpoint is at the target
   and the temperature is within the band above it.
 - A `free` cool sets the setpoint to FREE_COOL_SETPOINT_C (the controller's output drops to
@@ -42,6 +44,10 @@ from tuikiln.profile import Cool, Hold, Pause, Profile, Ramp, Step, describe_ste
 from tuikiln.units import ROOM_C, Units, format_duration, format_rate, format_temp
 
 FREE_COOL_SETPOINT_C = 0.0
+# Reading noise (0.3 °C is typical) and a controller cycling on the band's edge cross it every
+# few seconds; a real slip lasts minutes (hold_grace is 2 min). 20 s keeps the state to at
+# most a few changes a minute and still shows a slip long before its alarm (our choice).
+BAND_DWELL_S = 20.0
 
 
 class EqualizeLike(Protocol):
@@ -111,6 +117,7 @@ class Stepper:
         self.ramp_from_c = 0.0
         self.hold_clock_s = 0.0
         self.out_of_band_s = 0.0
+        self.band_pending_s = 0.0    # a stretch on the other side of the band, not yet long
         self.state_since: float | None = None
         self.reached_at: float | None = None
         self.detector: Any = None
@@ -236,6 +243,7 @@ class Stepper:
         self.active_s = 0.0
         self.hold_clock_s = 0.0
         self.out_of_band_s = 0.0
+        self.band_pending_s = 0.0
         self.reached_at = None
         self.detector = None
         self.equalize = None
@@ -351,18 +359,34 @@ class Stepper:
                            index=self.index, core_c=source)
                 self._set_state(now, st.HOLDING)
             return
-        if self.state == st.HOLDING:
-            if in_band:
-                self.hold_clock_s += dt
-            else:
-                self.out_of_band_s += dt
-                self._set_state(now, st.SLIPPED)
-        elif self.state == st.SLIPPED:
-            if in_band:
-                self.hold_clock_s += dt
-                self._set_state(now, st.HOLDING)
-            else:
-                self.out_of_band_s += dt
+        if self.state in (st.HOLDING, st.SLIPPED):
+            self._band_dwell(now, dt, in_band)
+
+    def _band_dwell(self, now: float, dt: float, in_band: bool) -> None:
+        """Count `dt` to the hold clock or to the time out of band, with BAND_DWELL_S of
+        dwell: the seconds of a stretch on the other side wait in `band_pending_s` until the
+        stretch is long enough to change the state (then they go with it) or ends (then
+        they go to the side the hold stayed on). The clock never counts a doubtful second."""
+        holding = self.state == st.HOLDING
+        if in_band == holding:
+            if self.band_pending_s:
+                self._credit(holding, self.band_pending_s)
+                self.band_pending_s = 0.0
+            self._credit(holding, dt)
+            return
+        self.band_pending_s += dt
+        if self.band_pending_s >= BAND_DWELL_S:
+            began = now - self.band_pending_s
+            self._credit(in_band, self.band_pending_s)
+            self.band_pending_s = 0.0
+            self._set_state(now, st.HOLDING if in_band else st.SLIPPED)
+            self.state_since = began  # the slip (or the return) began a dwell ago
+
+    def _credit(self, in_band: bool, seconds: float) -> None:
+        if in_band:
+            self.hold_clock_s += seconds
+        else:
+            self.out_of_band_s += seconds
 
     def _step_done(self, temp: float | None) -> bool:
         step = self.step

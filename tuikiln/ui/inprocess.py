@@ -13,7 +13,7 @@ from collections.abc import Mapping
 from pathlib import Path
 from typing import Any
 
-from drivers.factory import open_device
+from tuikiln.drivers.factory import open_device
 from tuikiln.engine.runner import KilnInfo, RunEngine
 from tuikiln.kiln import Kiln
 from tuikiln.limits import Limits

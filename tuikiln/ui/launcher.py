@@ -12,6 +12,7 @@ import subprocess
 import sys
 import time
 from dataclasses import dataclass, field
+from importlib import resources
 from pathlib import Path
 
 import platformdirs
@@ -23,7 +24,9 @@ from tuikiln.kiln import Kiln, load_kiln
 from tuikiln.runlog import RunInfo, RunLog, default_data_dir
 from tuikiln.ui.loglink import Control, LogLink
 
-PACKAGE_PROFILES = Path(__file__).resolve().parents[2] / "profiles"
+# The examples travel inside the package (pyproject maps profiles/ to tuikiln.profiles), so
+# they are found after any install, not only in a source checkout.
+PACKAGE_PROFILES = Path(str(resources.files("tuikiln.profiles")))
 START_TIMEOUT_S = 20.0
 
 

@@ -46,8 +46,7 @@ def step_starts(events: Sequence[Mapping[str, Any]]) -> dict[int, float]:
 def verdict_lines(header: RunHeader, samples: SampleBuffer,
                   events: Sequence[Mapping[str, Any]]) -> list[str]:
     """Per-step verdicts of the replay analysis (tuikiln.analysis.replay), in words."""
-    from tuikiln.analysis.replay import Trace, replay_run
-    from tuikiln.limits import Limits
+    from tuikiln.analysis.loading import from_log
 
     columns = {name: samples.column(name) for name in
                ("t", "chamber_c", "load_c", "core_c", "setpoint_c", "output_pct", "step",
@@ -55,9 +54,11 @@ def verdict_lines(header: RunHeader, samples: SampleBuffer,
     if not columns["t"].size:
         return ["(no samples: nothing to judge)"]
     try:
-        result = replay_run(Trace.from_samples(columns, header.started), header.profile,
-                            Limits().merged(header.profile.limits), events=list(events),
-                            outcome=header.outcome, units=header.profile.units)
+        # The same loader as `tuikiln replay`: the kiln's [alarms] count here too.
+        loaded = from_log(columns, events, started=header.started, profile=header.profile,
+                          outcome=header.outcome, units=header.profile.units,
+                          kiln_text=str(header.extra.get("kiln_text") or ""))
+        result = loaded.replay()
     except Exception as exc:  # the analysis is another module's: show its failure in words
         return [f"(the replay analysis could not judge this run: {exc})"]
     lines = [f"run: {result.verdict}"] + [f"  {reason}" for reason in result.reasons[:1]]

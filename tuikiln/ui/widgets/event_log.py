@@ -10,6 +10,7 @@ from rich.text import Text
 from textual.reactive import reactive
 from textual.widgets import RichLog
 
+from tuikiln.plaintext import plain
 from tuikiln.ui.runfeed import convert_temperatures
 from tuikiln.units import Units
 
@@ -32,7 +33,9 @@ def event_line(event: Mapping[str, Any], units: Units, started: float | None) ->
         mark = SEVERITY_MARK[severity]
     style = {"critical": "bold reverse", "warning": "bold"}.get(severity, "")
     text = Text(f"{stamp:>6} {mark} ", style="dim")
-    text.append(convert_temperatures(str(event.get("message") or kind), units), style=style)
+    # plain: a remote note's escape codes must not reach the terminal
+    text.append(plain(convert_temperatures(str(event.get("message") or kind), units)),
+                style=style)
     return text
 
 

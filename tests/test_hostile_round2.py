@@ -1,0 +1,308 @@
+"""Issue 20, round two of hostile input: remote commands that could add heat, text that
+cannot be stored or would drive a terminal, a socket folder another user prepared, and
+the fuzz crashes (huge numbers, tiny rates, broken databases) that must end in one line.
+
+The rules checked are tuikiln's own (remote commands only make things safer: the
+docstring of tuikiln/alerts/remote.py); no published source applies. Real SQLite files, the
+real engine on drivers.fake's first-order oven, real subprocesses for the command line.
+"""
+
+from __future__ import annotations
+
+import asyncio
+import json
+import stat
+
+import pytest
+
+from tests.test_engine_rules import drive, rules_for
+from tests.test_recovery import HOLD, Sink, crashed_run, engine_for, in_hold_for
+from tuikiln import events as ev
+from tuikiln.drivers.fake import FirstOrderOven, ScriptedDevice
+from tuikiln.engine import recovery
+from tuikiln.engine import states as st
+from tuikiln.plaintext import plain
+
+# ---- remote commands never add heat -------------------------------------------------------
+
+
+async def test_a_remote_ack_does_not_release_a_hold_after_a_restart(tmp_path):
+    log, model, clock, _ = await crashed_run(tmp_path, HOLD, in_hold_for(60.0))
+    answers: list[dict] = []
+    held: list[float] = []
+
+    class Remote(Sink):
+        def reading(self, sample) -> None:
+            engine = self.engine
+            if not engine.held_for_restart:
+                return
+            held.append(sample["time"])
+            if len(held) == 5:  # "mqtt" is the source tuikiln/alerts/mqtt.py passes
+                answers.append(engine.command("ack", None, "mqtt"))
+                answers.append(engine.command("ack", "you", "mqtt"))
+                answers.append(engine.command("resume", None, "mqtt"))
+            if len(held) == 20:
+                answers.append(engine.command("abort", None, "mqtt"))
+
+    info = recovery.find_unfinished(log, "Test oven")
+    plan = recovery.plan_resume(log, info, "hold", now=clock.now())
+    device = ScriptedDevice(model=model, clock=clock)
+    sink = Remote()
+    engine = engine_for(HOLD, device, log, sink, resume=plan)
+    outcome = await engine.run()
+    assert [a["ok"] for a in answers] == [False, False, False, True], answers
+    assert outcome == st.ABORTED and len(held) >= 20
+    # No setpoint reached the oven after the hold began: the remote words added no heat.
+    assert not [t for t, _ in device.setpoint_writes if t >= held[0]]
+
+
+async def test_a_local_ack_still_releases_the_hold(tmp_path):
+    log, model, clock, _ = await crashed_run(tmp_path, HOLD, in_hold_for(60.0))
+    box: dict = {}
+
+    class Local(Sink):
+        def reading(self, sample) -> None:
+            if self.engine.held_for_restart and "answer" not in box:
+                box["answer"] = self.engine.command("ack", None, "socket")
+
+    info = recovery.find_unfinished(log, "Test oven")
+    plan = recovery.plan_resume(log, info, "hold", now=clock.now())
+    device = ScriptedDevice(model=model, clock=clock)
+    engine = engine_for(HOLD, device, log, Local(), resume=plan)
+    assert await engine.run() == st.COMPLETED and box["answer"]["ok"]
+
+
+def test_a_remote_ack_does_not_answer_a_pause_step():
+    rules = rules_for("""
+units = "C"
+[[step]]
+pause = "Load the oven"
+[[step]]
+ramp = "max"
+to = 300
+""")
+    oven = FirstOrderOven()
+    t, _ = drive(rules, oven, 10)
+    assert not rules.command(t, "ack", None, "mqtt").ok
+    t, _ = drive(rules, oven, 10, t)
+    assert rules.run_state == st.RUN_WAITING and rules.stepper.index == 0
+    assert rules.command(t, "ack", None, "keys").ok
+    drive(rules, oven, 2, t)
+    assert rules.stepper.index == 1
+
+
+# ---- text that cannot be encoded or would drive a terminal ---------------------------------
+
+
+def test_plain_makes_any_text_encodable_and_printable():
+    dirty = "a\ud800b\udcffc\x1b[31mred\x07\x9b2J\u202eevil\r\nnext\t"
+    clean = plain(dirty)
+    clean.encode("utf-8")  # would raise UnicodeEncodeError on a surrogate
+    assert "\x1b" not in clean and "\x07" not in clean and "\x9b" not in clean
+    assert "\u202e" not in clean and "\n" not in clean
+    assert clean.startswith("a\ufffdb\ufffdc")
+    assert "\n" in plain("one\ntwo", lines=True)
+    assert len(plain("x" * 50, limit=10)) == 10
+
+
+async def test_a_note_with_a_lone_surrogate_does_not_stop_the_engine(tmp_path):
+    from tuikiln.runlog import RunLog
+
+    log = RunLog.in_folder(tmp_path)
+    sent: list[dict] = []
+
+    class Noter(Sink):
+        def reading(self, sample) -> None:
+            if not sent:
+                sent.append(self.engine.command("note", "door \ud800 open \x1b[2J", "socket"))
+                sent.append(self.engine.command("abort", "bad \udcff bytes", "command"))
+
+    device = ScriptedDevice(model=FirstOrderOven(tau_s=300.0), clock=None)
+    engine = engine_for(HOLD, device, log, Noter())
+    outcome = await engine.run()
+    assert outcome == st.ABORTED and all(a["ok"] for a in sent)
+    run = log.run(engine.run_id)
+    assert run is not None and run.outcome == st.ABORTED  # the run was finished in the log
+    notes = [e for e in log.events(engine.run_id) if e["kind"] == ev.NOTE]
+    assert notes and "\ufffd" in notes[0]["message"] and "\x1b" not in notes[0]["message"]
+
+
+# ---- the control socket against local attackers -------------------------------------------
+
+
+class _Engine:
+    """What ControlServer needs of an engine (command, status, listeners); no run behind."""
+
+    def __init__(self) -> None:
+        self.listeners: list = []
+        self.commands: list = []
+
+    def status(self) -> dict:
+        return {"state": "running"}
+
+    def command(self, name, arg=None, source="command") -> dict:
+        self.commands.append((name, arg, source))
+        return {"ok": True, "message": "done"}
+
+
+async def test_a_socket_folder_open_to_others_is_refused(tmp_path):
+    import os
+
+    import pytest
+
+    from tuikiln import control
+    from tuikiln.errors import UserError
+
+    folder = tmp_path / "shared"
+    folder.mkdir()
+    os.chmod(folder, 0o777)  # as another user would leave a folder made first in /tmp
+    fake = folder / "x.sock"
+    with pytest.raises(UserError, match="open to other users"):
+        await asyncio.to_thread(control.request, str(fake), "status")
+    # The server makes its own folder private; a folder it cannot make private is refused.
+    server = control.ControlServer(_Engine(), tmp_path / "mine" / "k.sock")
+    await server.start()
+    assert stat.S_IMODE(os.stat(server.path.parent).st_mode) == 0o700
+    answer = await asyncio.to_thread(control.request, str(server.path), "status")
+    assert answer["ok"]
+    await server.close()
+    link = tmp_path / "link"
+    link.symlink_to(folder)
+    with pytest.raises(UserError, match="symbolic link"):
+        await control.ControlServer(_Engine(), link / "k.sock").start()
+
+
+async def test_idle_and_surplus_connections_are_closed(tmp_path, monkeypatch):
+    from tuikiln import control
+
+    monkeypatch.setattr(control, "IDLE_S", 0.5)
+    server = control.ControlServer(_Engine(), tmp_path / "c" / "k.sock")
+    await server.start()
+    opened = []
+    try:
+        for _ in range(control.MAX_CLIENTS + 8):
+            opened.append(await asyncio.open_unix_connection(str(server.path)))
+        answers = [json.loads(await asyncio.wait_for(r.readline(), 10.0)) for r, _ in opened]
+        refused = [a for a in answers if "connections are open" in a.get("error", "")]
+        idle = [a for a in answers if "idle" in a.get("error", "")]
+        assert len(refused) == 8 and len(idle) == control.MAX_CLIENTS
+        for reader, _ in opened:  # every one closed by the server (end of stream)
+            assert await asyncio.wait_for(reader.read(), 10.0) == b""
+        # and the server still serves
+        answer = await asyncio.to_thread(control.request, str(server.path), "status")
+        assert answer["ok"]
+    finally:
+        for _, writer in opened:
+            writer.close()
+        await server.close()
+
+
+# ---- user text on the screen is plain text ------------------------------------------------
+
+MARKUP_PROFILE = """
+name = "[/x] [bold]not bold"
+units = "C"
+[[step]]
+ramp = "600/h"
+to = 300
+[[step]]
+pause = "[/b] load \\u001b[2J the [red]oven"
+"""
+
+
+async def test_the_live_screen_shows_markup_like_names_as_they_are(tmp_path):
+    from tests.test_ui_fakes import ScriptedEngine, screen_text
+    from tuikiln.ui.app import TuikilnApp
+    from tuikiln.ui.screens.live import LiveScreen
+
+    profile = tmp_path / "markup.toml"
+    profile.write_text(MARKUP_PROFILE, encoding="utf-8")
+    engine = ScriptedEngine(tmp_path, profile)
+    engine.advance(60)
+    engine.event("note", "Note: \x1b]0;pwned\x07remote [/y] words")
+    app = TuikilnApp(lambda: LiveScreen(engine.link(), poll_s=0.1), units="C")
+    async with app.run_test(size=(120, 30)) as pilot:
+        await pilot.pause(0.3)
+        text = screen_text(pilot.app.screen)
+        assert "[/x] [bold]not bold" in text  # shown as written, not read as markup
+        assert "remote [/y] words" in text and "\x1b" not in text and "\x07" not in text
+
+
+def test_the_terminal_sink_strips_escape_codes():
+    import io
+
+    from tuikiln.alerts.fanout import TerminalSink
+    from tuikiln.events import Event
+
+    out = io.StringIO()
+    TerminalSink(out).event(Event(0.0, ev.NOTE, "Note: \x1b[2J\x1b]0;t\x07hi \ud800", "info", {}))
+    shown = out.getvalue()
+    assert "\x1b" not in shown and "\x07" not in shown and "hi" in shown
+    shown.encode("utf-8")
+
+
+# ---- fuzz finds: numbers at the edges give one line and exit 1 ----------------------------
+
+HUGE = "9" * 400  # a TOML integer far beyond a float (OverflowError in float())
+
+
+def tuikiln_cli(*args: str, cwd=None, env=None):
+    import os
+    import subprocess
+    import sys
+
+    run_env = {**os.environ, **(env or {})}
+    return subprocess.run([sys.executable, "-m", "tuikiln", *args], capture_output=True,
+                          text=True, timeout=120, cwd=cwd, env=run_env)
+
+
+def one_line_error(proc, *words: str) -> str:
+    assert proc.returncode != 0, proc.stdout
+    assert "Traceback" not in proc.stderr, proc.stderr
+    lines = [line for line in proc.stderr.splitlines() if line.strip()]
+    assert lines, "no message"
+    for word in words:
+        assert word in proc.stderr, proc.stderr
+    return proc.stderr
+
+
+EDGE_PROFILES = {
+    "huge-to": (f'[[step]]\nramp = "600/h"\nto = {HUGE}\n', ':5: step 1: "to"'),
+    "huge-band": (f'[[step]]\nramp = "600/h"\nto = 300\n[[step]]\nhold = "10m"\nband = {HUGE}\n',
+                  ':8: step 2: "band"'),
+    "huge-limit": (f'[[step]]\nramp = "600/h"\nto = 300\n[limits]\nband = {HUGE}\n',
+                   ':7: "band"'),
+    "huge-hold-number": (f'[[step]]\nramp = "max"\nto = 300\n[[step]]\nhold = {HUGE}\n',
+                         ':7: step 2: "hold"'),
+    "hold-1e300": ('[[step]]\nramp = "max"\nto = 300\n[[step]]\nhold = 1e300\n',
+                   ':7: step 2: "hold"'),
+    "hold-a-century": ('[[step]]\nramp = "max"\nto = 300\n[[step]]\nhold = "876000h"\n',
+                       ':7: step 2: "hold"'),
+    "tiny-rate": ('[[step]]\nramp = "0.0000001/h"\nto = 300\n', ':4: step 1: "ramp"'),
+    "rate-rounding-to-zero": (f'[[step]]\nramp = "0.{"0" * 330}1/min"\nto = 300\n',
+                              ':4: step 1: "ramp"'),
+}
+
+
+@pytest.mark.parametrize("name", sorted(EDGE_PROFILES))
+def test_edge_numbers_in_a_profile_give_file_and_line(tmp_path, name):
+    body, where = EDGE_PROFILES[name]
+    path = tmp_path / "p.toml"
+    path.write_text(f'name = "edge"\nunits = "C"\n{body}', encoding="utf-8")
+    one_line_error(tuikiln_cli("plan", str(path)), f"p.toml{where}")
+
+
+@pytest.mark.parametrize("every", ["nan", "inf", "1e-320", "0", "-3"])
+def test_plan_every_refuses_what_cannot_be_listed(tmp_path, every):
+    path = tmp_path / "p.toml"
+    path.write_text('name = "e"\nunits = "C"\n[[step]]\nramp = "600/h"\nto = 300\n',
+                    encoding="utf-8")
+    one_line_error(tuikiln_cli("plan", str(path), "--csv", f"--every={every}"), "--every")
+
+
+def test_a_kiln_max_too_large_for_a_float_is_a_mistake(tmp_path):
+    from tuikiln.errors import FileProblems
+    from tuikiln.kiln import parse_kiln
+
+    with pytest.raises(FileProblems, match='"max"'):
+        parse_kiln(f'name = "k"\nmax = {HUGE}\n', "k.toml")
