@@ -18,10 +18,10 @@ import math
 
 import pytest
 
-from drivers.maps import parse_map
-from drivers.modbus import ModbusDevice, ModbusSettings
 from tests.test_drivers_wire import PtyWire, holding_device, start_serial_server
 from tuikiln import events as ev
+from tuikiln.drivers.maps import parse_map
+from tuikiln.drivers.modbus import ModbusDevice, ModbusSettings
 from tuikiln.engine import states as st
 from tuikiln.engine.runner import KilnInfo, RunEngine
 from tuikiln.limits import Limits
