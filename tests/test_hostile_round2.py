@@ -13,6 +13,8 @@ import asyncio
 import json
 import stat
 
+import pytest
+
 from tests.test_engine_rules import drive, rules_for
 from tests.test_recovery import HOLD, Sink, crashed_run, engine_for, in_hold_for
 from tuikiln import events as ev
@@ -237,3 +239,162 @@ def test_the_terminal_sink_strips_escape_codes():
     shown = out.getvalue()
     assert "\x1b" not in shown and "\x07" not in shown and "hi" in shown
     shown.encode("utf-8")
+
+
+# ---- fuzz finds: numbers at the edges give one line and exit 1 ----------------------------
+
+HUGE = "9" * 400  # a TOML integer far beyond a float (OverflowError in float())
+
+
+def tuikiln_cli(*args: str, cwd=None, env=None):
+    import os
+    import subprocess
+    import sys
+
+    run_env = {**os.environ, **(env or {})}
+    return subprocess.run([sys.executable, "-m", "tuikiln", *args], capture_output=True,
+                          text=True, timeout=120, cwd=cwd, env=run_env)
+
+
+def one_line_error(proc, *words: str) -> str:
+    assert proc.returncode != 0, proc.stdout
+    assert "Traceback" not in proc.stderr, proc.stderr
+    lines = [line for line in proc.stderr.splitlines() if line.strip()]
+    assert lines, "no message"
+    for word in words:
+        assert word in proc.stderr, proc.stderr
+    return proc.stderr
+
+
+EDGE_PROFILES = {
+    "huge-to": (f'[[step]]\nramp = "600/h"\nto = {HUGE}\n', ':5: step 1: "to"'),
+    "huge-band": (f'[[step]]\nramp = "600/h"\nto = 300\n[[step]]\nhold = "10m"\nband = {HUGE}\n',
+                  ':8: step 2: "band"'),
+    "huge-limit": (f'[[step]]\nramp = "600/h"\nto = 300\n[limits]\nband = {HUGE}\n',
+                   ':7: "band"'),
+    "huge-hold-number": (f'[[step]]\nramp = "max"\nto = 300\n[[step]]\nhold = {HUGE}\n',
+                         ':7: step 2: "hold"'),
+    "hold-1e300": ('[[step]]\nramp = "max"\nto = 300\n[[step]]\nhold = 1e300\n',
+                   ':7: step 2: "hold"'),
+    "hold-a-century": ('[[step]]\nramp = "max"\nto = 300\n[[step]]\nhold = "876000h"\n',
+                       ':7: step 2: "hold"'),
+    "tiny-rate": ('[[step]]\nramp = "0.0000001/h"\nto = 300\n', ':4: step 1: "ramp"'),
+    "rate-rounding-to-zero": (f'[[step]]\nramp = "0.{"0" * 330}1/min"\nto = 300\n',
+                              ':4: step 1: "ramp"'),
+}
+
+
+@pytest.mark.parametrize("name", sorted(EDGE_PROFILES))
+def test_edge_numbers_in_a_profile_give_file_and_line(tmp_path, name):
+    body, where = EDGE_PROFILES[name]
+    path = tmp_path / "p.toml"
+    path.write_text(f'name = "edge"\nunits = "C"\n{body}', encoding="utf-8")
+    one_line_error(tuikiln_cli("plan", str(path)), f"p.toml{where}")
+
+
+@pytest.mark.parametrize("every", ["nan", "inf", "1e-320", "0", "-3"])
+def test_plan_every_refuses_what_cannot_be_listed(tmp_path, every):
+    path = tmp_path / "p.toml"
+    path.write_text('name = "e"\nunits = "C"\n[[step]]\nramp = "600/h"\nto = 300\n',
+                    encoding="utf-8")
+    one_line_error(tuikiln_cli("plan", str(path), "--csv", f"--every={every}"), "--every")
+
+
+def test_a_kiln_max_too_large_for_a_float_is_a_mistake(tmp_path):
+    from tuikiln.errors import FileProblems
+    from tuikiln.kiln import parse_kiln
+
+    with pytest.raises(FileProblems, match='"max"'):
+        parse_kiln(f'name = "k"\nmax = {HUGE}\n', "k.toml")
+
+
+# ---- broken run logs and data folders: one line, exit 1 ------------------------------------
+
+
+@pytest.fixture(scope="module")
+def logged_run(tmp_path_factory):
+    """A real run log with one short simulated run in it."""
+    data = tmp_path_factory.mktemp("logged")
+    profile = data / "p.toml"
+    profile.write_text('name = "short"\nunits = "C"\n[[step]]\nramp = "max"\nto = 100\n'
+                       '[[step]]\nhold = "2m"\n', encoding="utf-8")
+    proc = tuikiln_cli("run", str(profile), "--headless", "--speed", "1000", "--data",
+                       str(data / "d"))
+    assert proc.returncode == 0, proc.stderr
+    return data / "d"
+
+
+def _damaged(source, target, keep_header: bool):
+    import shutil
+
+    shutil.copytree(source, target)
+    db = target / "runs.sqlite"
+    data = bytearray(db.read_bytes())
+    start = 4096 if keep_header else 0
+    for i in range(start, len(data), 7):
+        data[i] = (data[i] * 31 + 7) & 255
+    db.write_bytes(bytes(data))
+    for extra in ("runs.sqlite-wal", "runs.sqlite-shm"):
+        (target / extra).unlink(missing_ok=True)
+    return target
+
+
+COMMANDS_ON_A_LOG = [["runs"], ["replay", "1"], ["export", "1"], ["report", "1", "-o", "r.html"],
+                     ["run", "--resume", "--headless"]]
+
+
+@pytest.mark.parametrize("keep_header", [False, True], ids=["not-a-database", "malformed"])
+@pytest.mark.parametrize("command", COMMANDS_ON_A_LOG, ids=lambda c: c[0])
+def test_a_damaged_run_log_gives_one_line(logged_run, tmp_path, command, keep_header):
+    data = _damaged(logged_run, tmp_path / "d", keep_header)
+    err = one_line_error(tuikiln_cli(*command, "--data", str(data), cwd=tmp_path),
+                         "runs.sqlite cannot be used")
+    assert ("not a database" in err) != keep_header
+
+
+def test_a_locked_run_log_gives_one_line(logged_run, tmp_path):
+    import shutil
+    import sqlite3
+
+    data = tmp_path / "d"
+    shutil.copytree(logged_run, data)
+    holder = sqlite3.connect(data / "runs.sqlite", isolation_level=None)
+    try:
+        holder.execute("PRAGMA locking_mode=EXCLUSIVE")
+        holder.execute("BEGIN EXCLUSIVE")
+        holder.execute("INSERT INTO meta VALUES ('held', 'by a test')")
+        one_line_error(tuikiln_cli("runs", "--data", str(data)), "database is locked")
+    finally:
+        holder.close()
+
+
+def test_a_data_folder_that_cannot_be_made_gives_one_line(tmp_path):
+    blocker = tmp_path / "file"
+    blocker.write_text("not a folder", encoding="utf-8")
+    profile = tmp_path / "p.toml"
+    profile.write_text('name = "x"\nunits = "C"\n[[step]]\nramp = "max"\nto = 100\n',
+                       encoding="utf-8")
+    one_line_error(tuikiln_cli("run", str(profile), "--headless", "--data",
+                               str(blocker / "data")), "Not a directory")
+
+
+def test_logs_and_the_run_log_are_private(tmp_path):
+    import os
+
+    from tuikiln import control
+    from tuikiln.runlog import RunLog, open_private
+
+    data = tmp_path / "new" / "data"
+    log = RunLog.in_folder(data)
+    log.close()
+    assert stat.S_IMODE(os.stat(data).st_mode) == 0o700
+    assert stat.S_IMODE(os.stat(data / "runs.sqlite").st_mode) == 0o600
+    wal = data / "runs.sqlite-wal"
+    if wal.exists():
+        assert stat.S_IMODE(os.stat(wal).st_mode) == 0o600
+    active = control.write_active(data, "Oven", {"pid": 1})
+    assert stat.S_IMODE(os.stat(active).st_mode) == 0o600
+    assert stat.S_IMODE(os.stat(active.parent).st_mode) == 0o700
+    with open_private(data / "engine.log") as out:
+        out.write(b"x")
+    assert stat.S_IMODE(os.stat(data / "engine.log").st_mode) == 0o600

@@ -118,7 +118,9 @@ class RunEngine:
         self.outcome: str | None = None
         self.end_words = ""
         self._stop_request: tuple[str, str] | None = None
-        self._written_c: float | None = None
+        self._requested_c: float | None = None
+        """The setpoint last handed to the driver; its write guard may still hold it back,
+        so the device is held against `device.written_setpoint_c`, never against this."""
         self._written_at = -math.inf
         self._drift_ticks = 0
         self._status_at = 0.0
@@ -299,6 +301,9 @@ class RunEngine:
         reading: Reading | None = None
         link_ok = True
         sensor_fault = False
+        # What the device was really sent before this poll: a driver may write a held-back
+        # setpoint during the poll itself, after taking the reading.
+        sent_c = self.device.written_setpoint_c
         try:
             reading = await self.device.read()
         except SensorFault:
@@ -311,7 +316,7 @@ class RunEngine:
             self.last.chamber_c = chamber
             self.last.load_c = reading.load_c
             self.last.output_pct = reading.output_pct
-            self._watch_device_setpoint(reading)
+            self._watch_device_setpoint(reading, sent_c)
         else:
             chamber = None
             self.last.chamber_c = None
@@ -320,18 +325,19 @@ class RunEngine:
                          output_pct=None if reading is None else reading.output_pct,
                          link_ok=link_ok, sensor_fault=sensor_fault)
 
-    def _watch_device_setpoint(self, reading: Reading) -> None:
-        """A controller that rebooted or was changed by hand holds another setpoint, or has
-        stopped its output: arm it again on this tick's write."""
-        if self._written_c is None or self.held_for_restart:
+    def _watch_device_setpoint(self, reading: Reading, sent_c: float | None) -> None:
+        """A controller that rebooted or was changed by hand holds another setpoint than the
+        one it was last really sent, or has stopped its output: arm it again on this tick's
+        write. A write the driver held back is not one the controller should hold."""
+        if self._requested_c is None or self.held_for_restart:
             self._drift_ticks = self._stopped_ticks = 0
             return
-        if reading.setpoint_c is not None and abs(reading.setpoint_c - self._written_c) > \
-                DEVICE_DRIFT_C:
+        if (reading.setpoint_c is not None and sent_c is not None
+                and abs(reading.setpoint_c - sent_c) > DEVICE_DRIFT_C):
             self._drift_ticks += 1
         else:
             self._drift_ticks = 0
-        wants_heat = self._written_c > 0.0 and not self.rules.stepper.heat_off
+        wants_heat = self._requested_c > 0.0 and not self.rules.stepper.heat_off
         if reading.running is False and wants_heat:
             self._stopped_ticks += 1
         else:
@@ -345,7 +351,7 @@ class RunEngine:
             await self._rearm_device(now, setpoint_c)
             return
         resolution = self.device.capabilities.setpoint_resolution_c
-        last = self._written_c
+        last = self._requested_c
         if last is not None:
             change = abs(setpoint_c - last)
             if change < resolution * 0.5:
@@ -361,15 +367,15 @@ class RunEngine:
             return
         except DeviceError:
             return  # the next tick tries again; lost links are the alarms' business
-        self._written_c = setpoint_c
+        self._requested_c = setpoint_c
         self._written_at = now
 
     async def _rearm_device(self, now: float, setpoint_c: float) -> None:
         """Stop, then setpoint and run afresh: a driver that wrote "run" once writes it
         again after a stop, so a controller that came back stopped starts again."""
         device = self.device
-        held = "another setpoint" if self._written_c is None else (
-            f"another setpoint or stopped (ours {format_temp(self._written_c, self.kiln.units)})")
+        held = "another setpoint" if self._requested_c is None else (
+            f"another setpoint or stopped (ours {format_temp(self._requested_c, self.kiln.units)})")
         try:
             if device.capabilities.can_stop_heating:
                 await device.stop_heating()
@@ -378,7 +384,7 @@ class RunEngine:
             return  # the next tick tries again
         self._rearm = False
         self.rearms += 1
-        self._written_c = setpoint_c
+        self._requested_c = setpoint_c
         self._written_at = now
         self._emit(Event(now, ev.DEVICE, f"The controller held {held}: it may have rebooted. "
                          f"Setpoint {format_temp(setpoint_c, self.kiln.units)} and run written "
@@ -538,7 +544,7 @@ class RunEngine:
         assert plan is not None
         self.held_for_restart = False
         words = recovery.restore_stepper(self.rules.stepper, plan, now, self.last.chamber_c)
-        self._written_c = None  # write the setpoint (and run) afresh on the next tick
+        self._requested_c = None  # write the setpoint (and run) afresh on the next tick
         message = f"Carrying on after the restart: {words}"
         events = [Event(now, ev.COMMAND, message, "info", {"name": name, "source": source})]
         events.extend(self.rules.alarms.set_condition("paused-too-long", False, now))
