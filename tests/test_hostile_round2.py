@@ -306,3 +306,95 @@ def test_a_kiln_max_too_large_for_a_float_is_a_mistake(tmp_path):
 
     with pytest.raises(FileProblems, match='"max"'):
         parse_kiln(f'name = "k"\nmax = {HUGE}\n', "k.toml")
+
+
+# ---- broken run logs and data folders: one line, exit 1 ------------------------------------
+
+
+@pytest.fixture(scope="module")
+def logged_run(tmp_path_factory):
+    """A real run log with one short simulated run in it."""
+    data = tmp_path_factory.mktemp("logged")
+    profile = data / "p.toml"
+    profile.write_text('name = "short"\nunits = "C"\n[[step]]\nramp = "max"\nto = 100\n'
+                       '[[step]]\nhold = "2m"\n', encoding="utf-8")
+    proc = tuikiln_cli("run", str(profile), "--headless", "--speed", "1000", "--data",
+                       str(data / "d"))
+    assert proc.returncode == 0, proc.stderr
+    return data / "d"
+
+
+def _damaged(source, target, keep_header: bool):
+    import shutil
+
+    shutil.copytree(source, target)
+    db = target / "runs.sqlite"
+    data = bytearray(db.read_bytes())
+    start = 4096 if keep_header else 0
+    for i in range(start, len(data), 7):
+        data[i] = (data[i] * 31 + 7) & 255
+    db.write_bytes(bytes(data))
+    for extra in ("runs.sqlite-wal", "runs.sqlite-shm"):
+        (target / extra).unlink(missing_ok=True)
+    return target
+
+
+COMMANDS_ON_A_LOG = [["runs"], ["replay", "1"], ["export", "1"], ["report", "1", "-o", "r.html"],
+                     ["run", "--resume", "--headless"]]
+
+
+@pytest.mark.parametrize("keep_header", [False, True], ids=["not-a-database", "malformed"])
+@pytest.mark.parametrize("command", COMMANDS_ON_A_LOG, ids=lambda c: c[0])
+def test_a_damaged_run_log_gives_one_line(logged_run, tmp_path, command, keep_header):
+    data = _damaged(logged_run, tmp_path / "d", keep_header)
+    err = one_line_error(tuikiln_cli(*command, "--data", str(data), cwd=tmp_path),
+                         "runs.sqlite cannot be used")
+    assert ("not a database" in err) != keep_header
+
+
+def test_a_locked_run_log_gives_one_line(logged_run, tmp_path):
+    import shutil
+    import sqlite3
+
+    data = tmp_path / "d"
+    shutil.copytree(logged_run, data)
+    holder = sqlite3.connect(data / "runs.sqlite", isolation_level=None)
+    try:
+        holder.execute("PRAGMA locking_mode=EXCLUSIVE")
+        holder.execute("BEGIN EXCLUSIVE")
+        holder.execute("INSERT INTO meta VALUES ('held', 'by a test')")
+        one_line_error(tuikiln_cli("runs", "--data", str(data)), "database is locked")
+    finally:
+        holder.close()
+
+
+def test_a_data_folder_that_cannot_be_made_gives_one_line(tmp_path):
+    blocker = tmp_path / "file"
+    blocker.write_text("not a folder", encoding="utf-8")
+    profile = tmp_path / "p.toml"
+    profile.write_text('name = "x"\nunits = "C"\n[[step]]\nramp = "max"\nto = 100\n',
+                       encoding="utf-8")
+    one_line_error(tuikiln_cli("run", str(profile), "--headless", "--data",
+                               str(blocker / "data")), "Not a directory")
+
+
+def test_logs_and_the_run_log_are_private(tmp_path):
+    import os
+
+    from tuikiln import control
+    from tuikiln.runlog import RunLog, open_private
+
+    data = tmp_path / "new" / "data"
+    log = RunLog.in_folder(data)
+    log.close()
+    assert stat.S_IMODE(os.stat(data).st_mode) == 0o700
+    assert stat.S_IMODE(os.stat(data / "runs.sqlite").st_mode) == 0o600
+    wal = data / "runs.sqlite-wal"
+    if wal.exists():
+        assert stat.S_IMODE(os.stat(wal).st_mode) == 0o600
+    active = control.write_active(data, "Oven", {"pid": 1})
+    assert stat.S_IMODE(os.stat(active).st_mode) == 0o600
+    assert stat.S_IMODE(os.stat(active.parent).st_mode) == 0o700
+    with open_private(data / "engine.log") as out:
+        out.write(b"x")
+    assert stat.S_IMODE(os.stat(data / "engine.log").st_mode) == 0o600
