@@ -398,3 +398,55 @@ def test_logs_and_the_run_log_are_private(tmp_path):
     with open_private(data / "engine.log") as out:
         out.write(b"x")
     assert stat.S_IMODE(os.stat(data / "engine.log").st_mode) == 0o600
+
+
+# ---- the MQTT password ------------------------------------------------------------------
+
+
+def test_a_password_file_others_can_read_is_refused(tmp_path):
+    from tuikiln.alerts.settings import check_mqtt_settings, read_password
+
+    secret = tmp_path / "mqtt.pass"
+    secret.write_text("hunter2-\xff\n", encoding="latin-1")  # not UTF-8 either
+    secret.chmod(0o644)
+    table = {"host": "h", "username": "u", "password_file": "mqtt.pass"}
+    settings, problems = check_mqtt_settings(table, "k", str(tmp_path))
+    words = dict(problems)[("mqtt", "password_file")]
+    assert "other users" in words and "chmod 600" in words
+    secret.chmod(0o600)
+    settings, problems = check_mqtt_settings(table, "k", str(tmp_path))
+    assert settings is not None and not problems
+    with pytest.raises(OSError) as caught:
+        read_password(settings)
+    # The error names the file, never its bytes.
+    assert "hunter2" not in str(caught.value) and "xff" not in str(caught.value)
+    assert "0xff" not in str(caught.value) and caught.value.__context__ is None
+    secret.chmod(0o640)  # loosened after the check: refused when connecting too
+    with pytest.raises(PermissionError, match="other users"):
+        read_password(settings)
+
+
+async def test_hooks_do_not_inherit_the_mqtt_password(tmp_path, monkeypatch):
+    import sys
+
+    from tuikiln.alerts.hooks import HookRunner
+    from tuikiln.alerts.settings import check_hooks
+    from tuikiln.events import Event
+
+    monkeypatch.setenv("TUIKILN_MQTT_PASSWORD", "default-secret")
+    monkeypatch.setenv("MY_PW", "named-secret")
+    monkeypatch.setenv("HARMLESS", "kept")
+    out = tmp_path / "env.txt"
+    script = tmp_path / "dump.py"
+    script.write_text(f"import os\nopen({str(out)!r}, 'w').write(repr(dict(os.environ)))\n",
+                      encoding="utf-8")
+    hooks, problems = check_hooks([{"on": ["note"], "run": [sys.executable, str(script)]}],
+                                  str(tmp_path))
+    assert not problems, problems
+    runner = HookRunner(hooks, kiln_name="k", secret_env=("MY_PW",))
+    await runner.start()
+    runner.event(Event(0.0, ev.NOTE, "Note: hi", "info", {"text": "hi"}))
+    assert await runner.drain(30)
+    await runner.stop()
+    env = out.read_text(encoding="utf-8")
+    assert "kept" in env and "default-secret" not in env and "named-secret" not in env
