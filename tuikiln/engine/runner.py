@@ -59,6 +59,9 @@ REWRITE_AFTER_S = 5.0      # a moving setpoint is written at most this often ...
 REWRITE_STEP_C = 1.0       # ... unless it moved at least this much
 DEVICE_DRIFT_C = 1.0       # the device holds another setpoint than ours: write it again
 DRIFT_TICKS = 3            # ... after this many readings in a row (a write may be in flight)
+REARM_SPACING_S = 60.0     # a second re-arm waits this long after the first, the next twice as
+REARM_SPACING_MAX_S = 1800.0  # ... long, up to this: a controller that never agrees (a map
+                              # reading another register) is not stopped and started for ever
 STOPPED_TICKS = 2          # readings of "not running" in a row before the controller is re-armed
 WATCHDOG_S = 30.0          # a tick unfinished this long (wall time): the loop is stalled
 SAFE_PATH_TIMEOUT_S = 10.0  # the watchdog's own attempt to stop the heat, per path
@@ -134,6 +137,8 @@ class RunEngine:
         self._stopped_ticks = 0
         self._rearm = False
         self.rearms = 0
+        self._rearm_spacing = REARM_SPACING_S
+        self._rearm_not_before = -math.inf
         self.watchdog_s = watchdog_s
         self.safe_device = safe_device
         self._tick_began: float | None = None
@@ -325,7 +330,7 @@ class RunEngine:
             self.last.chamber_c = chamber
             self.last.load_c = reading.load_c
             self.last.output_pct = reading.output_pct
-            self._watch_device_setpoint(reading, sent_c)
+            self._watch_device_setpoint(now, reading, sent_c)
         else:
             chamber = None
             self.last.chamber_c = None
@@ -334,7 +339,8 @@ class RunEngine:
                          output_pct=None if reading is None else reading.output_pct,
                          link_ok=link_ok, sensor_fault=sensor_fault)
 
-    def _watch_device_setpoint(self, reading: Reading, sent_c: float | None) -> None:
+    def _watch_device_setpoint(self, now: float, reading: Reading,
+                                sent_c: float | None) -> None:
         """A controller that rebooted or was changed by hand holds another setpoint than the
         one it was last really sent, or has stopped its output: arm it again on this tick's
         write. A write the driver held back is not one the controller should hold."""
@@ -351,7 +357,8 @@ class RunEngine:
             self._stopped_ticks += 1
         else:
             self._stopped_ticks = 0
-        if self._drift_ticks >= DRIFT_TICKS or self._stopped_ticks >= STOPPED_TICKS:
+        if ((self._drift_ticks >= DRIFT_TICKS or self._stopped_ticks >= STOPPED_TICKS)
+                and now >= self._rearm_not_before):
             self._rearm = True
             self._drift_ticks = self._stopped_ticks = 0
 
@@ -393,6 +400,8 @@ class RunEngine:
             return  # the next tick tries again
         self._rearm = False
         self.rearms += 1
+        self._rearm_not_before = now + self._rearm_spacing
+        self._rearm_spacing = min(self._rearm_spacing * 2.0, REARM_SPACING_MAX_S)
         self._requested_c = setpoint_c
         self._written_at = now
         self._emit(Event(now, ev.DEVICE, f"The controller held {held}: it may have rebooted. "
