@@ -178,3 +178,29 @@ async def test_after_a_stop_the_next_setpoint_is_written_at_once(controller) -> 
         reading = await device.read()
         assert reading.setpoint_c == pytest.approx(300.0)
         assert reading.running is True
+
+
+# The map reads the setpoint from a register the controller never changes (a mistake in a
+# map, or a controller that shows another setpoint): it never agrees with what was written.
+DISAGREEING_MAP = EEPROM_MAP.replace(
+    'setpoint = { fc = 3, address = 1,', 'setpoint = { fc = 3, address = 3,')
+
+
+async def test_a_controller_that_never_agrees_is_not_re_armed_every_few_ticks(controller) -> None:
+    wire, server = controller
+    clock = OvenClock(server)
+    settings = ModbusSettings(port=wire.link_path, timeout_s=0.5, retries=1,
+                              setpoint_min_interval_s=10.0)
+    device = ModbusDevice(settings, parse_map(DISAGREEING_MAP, "bad.toml"), clock=clock)
+    profile = parse_profile(FAST_RAMP, "fast.toml", max_c=1100.0)
+    sink = Events()
+    async with device:
+        engine = RunEngine(device, profile, kiln=KilnInfo("Odd oven", "C", 1100.0),
+                           limits=Limits(), sinks=[sink], watchdog_s=None)
+        clock.engine = engine
+        outcome = await engine.run()
+    assert outcome == st.COMPLETED, [e.message for e in sink.events]
+    # About 15 minutes of run: re-arms 60, 120, 240, 480 s apart leave room for five at most
+    # (every third tick would be about 300).
+    assert 1 <= engine.rearms <= 5
+    assert clock.highest_setpoint_c == pytest.approx(150.0, abs=0.5)
