@@ -117,6 +117,7 @@ class RunEngine:
         self.speed = speed
         self.auto_continue = auto_continue
         self.last = LastReading()
+        self._sensor_fault = False
         self.started = 0.0
         self.run_id: int | None = None
         self.outcome: str | None = None
@@ -326,6 +327,9 @@ class RunEngine:
             link_ok = False
         if reading is not None:
             sensor_fault = sensor_fault or reading.sensor_fault
+        # Logged as a flag, so a replay (what-if) sees a sensor fault, not a lost link.
+        self._sensor_fault = sensor_fault
+        if reading is not None:
             chamber = reading.chamber_c
             self.last.chamber_c = chamber
             self.last.load_c = reading.load_c
@@ -415,7 +419,9 @@ class RunEngine:
         s = self.rules.stepper
         last = self.last
         flags = 0
-        if last.chamber_c is None:
+        if self._sensor_fault:
+            flags |= st.FLAG_SENSOR_FAULT  # the device answered: a fault, not silence
+        elif last.chamber_c is None:
             flags |= st.FLAG_NO_READING
         if s.paused:
             flags |= st.FLAG_PAUSED
