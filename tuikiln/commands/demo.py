@@ -13,6 +13,7 @@ import asyncio
 import contextlib
 import shutil
 import signal
+import sys
 import tempfile
 from dataclasses import replace
 from importlib import resources
@@ -60,16 +61,22 @@ def run(args: argparse.Namespace) -> int:
     temporary = args.data is None
     data_dir = Path(args.data) if args.data else Path(tempfile.mkdtemp(prefix="tuikiln-demo-"))
     try:
-        words = asyncio.run(demo(kiln, profile, data_dir, args))
+        words, code = asyncio.run(demo(kiln, profile, data_dir, args))
     finally:
         if temporary:
             shutil.rmtree(data_dir, ignore_errors=True)
+    if code:  # the screen stopped on an error (Textual printed it); the run was ended above
+        print("tuikiln: the demo's screen stopped on an error (shown above); its simulated "
+              "run was ended", file=sys.stderr)
+        return code
     if words:
         print(words)
     return 0
 
 
-async def demo(kiln: Kiln, profile, data_dir: Path, args: argparse.Namespace) -> str:
+async def demo(kiln: Kiln, profile, data_dir: Path, args: argparse.Namespace
+               ) -> tuple[str, int]:
+    """The demo's closing words, and the screen's exit status (non-zero: it crashed)."""
     from tuikiln.ui.app import TuikilnApp
     from tuikiln.ui.inprocess import EngineControl, build_engine, run_engine, wait_for_run_id
     from tuikiln.ui.loglink import LogLink
@@ -108,7 +115,7 @@ async def demo(kiln: Kiln, profile, data_dir: Path, args: argparse.Namespace) ->
         for sink in engine.sinks:
             with contextlib.suppress(Exception):
                 await asyncio.wait_for(sink.stop(), 10.0)
-    return words or ""
+    return words or "", app.return_code or 0
 
 
 def _closer(engine, app, signum: int):  # noqa: ANN001, ANN202 - engine and app

@@ -4,6 +4,7 @@ or look back at a run from one screen."""
 from __future__ import annotations
 
 import argparse
+import sys
 
 HELP = "the home screen: kiln, profiles and recent runs; start, watch or replay a run"
 
@@ -22,6 +23,9 @@ def run(args: argparse.Namespace) -> int:
     app = TuikilnApp(lambda: HomeScreen(launcher), units=args.units or launcher.kiln.units,
                      bell=launcher.kiln.bell)
     words = app.run()
+    if app.return_code:  # the screen stopped on an error; Textual has printed it above
+        print("tuikiln: the screen stopped on an error (shown above)", file=sys.stderr)
+        return app.return_code
     if words:
         print(words)
     return 0

@@ -4,6 +4,7 @@ the step verdicts, notes and alarms). RUN is a run id, or "last" (the default)."
 from __future__ import annotations
 
 import argparse
+import sys
 
 from tuikiln.errors import UserError
 
@@ -40,4 +41,7 @@ def run(args: argparse.Namespace) -> int:
     app = TuikilnApp(lambda: ReplayScreen(link), units=args.units or chosen.units or "C")
     app.run()
     link.close()
+    if app.return_code:  # the screen stopped on an error; Textual has printed it above
+        print("tuikiln: the screen stopped on an error (shown above)", file=sys.stderr)
+        return app.return_code
     return 0

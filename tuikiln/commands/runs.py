@@ -58,21 +58,31 @@ def add_arguments(parser: argparse.ArgumentParser) -> None:
         parser.formatter_class = argparse.RawDescriptionHelpFormatter
         parser.epilog = EXPORT_HELP.format(flags=_flag_words())
         parser.add_argument("-o", "--output", metavar="FILE", default=None,
-                            help="write to FILE instead of the standard output")
+                            help="write to FILE (default, or -: the standard output)")
     else:
         parser.add_argument("--json", action="store_true", help="print the list as JSON")
 
 
-def _open_log(args: argparse.Namespace) -> Any:
-    from tuikiln.runlog import RUNLOG_NAME, RunLog, default_data_dir
+def _log_path(args: argparse.Namespace) -> Any:
+    from tuikiln.runlog import RUNLOG_NAME, default_data_dir
 
-    path = default_data_dir(args.data) / RUNLOG_NAME
+    return default_data_dir(args.data) / RUNLOG_NAME
+
+
+def _open_log(args: argparse.Namespace) -> Any:
+    from tuikiln.runlog import RunLog
+
+    path = _log_path(args)
     if not path.exists():
         raise UserError(f"no runs logged yet (no {path})")
     return RunLog(path)
 
 
 def run(args: argparse.Namespace) -> int:
+    if args.command == "runs" and not _log_path(args).exists():
+        # Nothing logged yet is an answer, not a mistake: scripts get an empty list.
+        print("[]" if args.json else "no runs logged yet")
+        return 0
     log = _open_log(args)
     try:
         if args.command == "export":
@@ -122,8 +132,9 @@ def _export(args: argparse.Namespace, log: Any) -> int:
     if info is None:
         raise UserError(f"no run {args.run_id} in the log (see `tuikiln runs`)")
     samples = log.samples(info.id)
+    to_file = args.output not in (None, "-")  # `-o -` is the standard output, as usual
     try:
-        out = open(args.output, "w", newline="") if args.output else sys.stdout  # noqa: SIM115
+        out = open(args.output, "w", newline="") if to_file else sys.stdout  # noqa: SIM115
     except OSError as exc:
         raise UserError(f"{args.output}: cannot write the samples: {exc.strerror or exc}"
                         ) from None
@@ -142,9 +153,9 @@ def _export(args: argparse.Namespace, log: Any) -> int:
                     int(samples["flags"][i])]
             writer.writerow(row)
     finally:
-        if args.output:
+        if to_file:
             out.close()
-    if args.output:
+    if to_file:
         print(f"Wrote {len(samples['t'])} samples of run {info.id} to {args.output}",
               file=sys.stderr)
     return 0

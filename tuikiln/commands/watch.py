@@ -6,6 +6,7 @@ Leaving the screen (q) leaves the run going; `tuikiln watch` comes back to it.
 from __future__ import annotations
 
 import argparse
+import sys
 
 from tuikiln.errors import UserError
 
@@ -35,6 +36,9 @@ def run(args: argparse.Namespace) -> int:
                      bell=launcher.kiln.bell and not args.no_bell)
     words = app.run()
     link.close()
+    if app.return_code:  # the screen stopped on an error; Textual has printed it above
+        print("tuikiln: the screen stopped on an error (shown above)", file=sys.stderr)
+        return app.return_code
     if words:
         print(words)
     return 0

@@ -1,0 +1,43 @@
+"""Exit statuses and streams of the listing and export commands, as scripts rely on them."""
+
+from __future__ import annotations
+
+import json
+from pathlib import Path
+
+import pytest
+
+from tuikiln.cli import main
+
+ROOT = Path(__file__).resolve().parent.parent
+PROFILE = ROOT / "profiles" / "dry-run.toml"
+
+
+def test_runs_on_an_empty_log_is_an_empty_list(tmp_path: Path,
+                                               capsys: pytest.CaptureFixture[str]) -> None:
+    data = str(tmp_path / "never-used")
+    assert main(["--data", data, "runs", "--json"]) == 0
+    assert json.loads(capsys.readouterr().out) == []
+    assert main(["--data", data, "runs"]) == 0
+    assert capsys.readouterr().out.strip() == "no runs logged yet"
+    # Export still needs a run: that is a mistake, said in words.
+    assert main(["--data", data, "export", "last", "--csv"]) == 1
+    assert "no runs logged yet" in capsys.readouterr().err
+
+
+def test_export_to_dash_writes_the_standard_output(tmp_path: Path,
+                                                   monkeypatch: pytest.MonkeyPatch,
+                                                   capsys: pytest.CaptureFixture[str]) -> None:
+    monkeypatch.setenv("XDG_CONFIG_HOME", str(tmp_path / "config"))  # no user kiln file
+    monkeypatch.chdir(tmp_path)
+    data = str(tmp_path / "data")
+    assert main(["--data", data, "run", str(PROFILE), "--headless", "--speed", "max",
+                 "--auto-continue"]) == 0
+    capsys.readouterr()
+    assert main(["--data", data, "export", "1", "--csv", "-o", "-"]) == 0
+    out = capsys.readouterr().out.splitlines()
+    assert out[0].startswith("t_s,utc,chamber_c,load_c")
+    assert len(out) > 10
+    assert not (tmp_path / "-").exists()  # not a file named "-"
+    assert main(["--data", data, "runs", "--json"]) == 0
+    assert [r["id"] for r in json.loads(capsys.readouterr().out)] == [1]
