@@ -80,6 +80,11 @@ class Device(ABC):
     clock: Clock = WallClock()
     poll_s: float = 2.0
     """Seconds between polls the device's settings ask for (kiln file `poll`)."""
+    written_setpoint_c: float | None = None
+    """The setpoint last really written to the device, °C; None when nothing has been written
+    since connecting (or the device may have lost it). A write the driver held back (the
+    EEPROM write guard) is not written: the engine holds the device's own setpoint against
+    this, never against what it asked for."""
 
     @abstractmethod
     async def connect(self) -> None:

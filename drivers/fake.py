@@ -134,7 +134,7 @@ class ScriptedDevice(Device):
     async def write_setpoint(self, celsius: float) -> None:
         if not self.capabilities.can_write_setpoint:
             raise NotSupported(f"{self.description} cannot take a setpoint")
-        self.setpoint_c = celsius
+        self.setpoint_c = self.written_setpoint_c = celsius
         self.setpoint_writes.append((self.clock.now(), celsius))
         if self.model is not None:
             self.model.setpoint_c = celsius
@@ -144,7 +144,7 @@ class ScriptedDevice(Device):
         if not self.capabilities.can_stop_heating:
             raise NotSupported(f"{self.description} cannot stop the heat")
         self.stop_calls.append(self.clock.now())
-        self.setpoint_c = 0.0
+        self.setpoint_c = self.written_setpoint_c = 0.0
         if self.model is not None:
             self.model.setpoint_c = 0.0
             self.model.heating = False

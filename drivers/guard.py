@@ -5,7 +5,8 @@ of 100,000 to 1,000,000 writes (common practice, no source; makers' manuals warn
 writing the setpoint continuously over the serial port). A ramp that rewrote the setpoint
 every second would use up 100,000 writes in about a day. So the guard writes only when the
 value moves by at least what the controller can store, and no more often than a minimum
-interval -- except when the setpoint drops to the safe value: stopping the heat never waits.
+interval -- except when the setpoint drops to the safe value: stopping the heat never waits;
+nor does the first setpoint after such a stop (a re-arm or a resume), so heating starts again.
 
 The guard decides; the driver writes and reports back with `written()`. A value held back
 stays pending, and `due()` tells the driver when to write it on a later poll.
@@ -54,7 +55,7 @@ class SetpointGuard:
         if self._steps(target) == self._steps(last):
             self.pending_c = None
             return False
-        if self.is_safe_drop(target):
+        if self.is_safe_drop(target) or self.is_leaving_safe(target):
             return True
         if self.last_write_time is None:
             return True
@@ -69,6 +70,14 @@ class SetpointGuard:
             target_c <= self.safe_c + self.resolution_c * 0.5
             and (last is None or target_c < last)
         )
+
+    def is_leaving_safe(self, target_c: float) -> bool:
+        """The first setpoint after a stop (a re-arm, a resume): held back by the interval,
+        the controller would sit at the safe value, not heating. Stops are rare, so this
+        costs few writes."""
+        last = self.last_written_c
+        return (last is not None and last <= self.safe_c + self.resolution_c * 0.5
+                and target_c > last)
 
     def written(self, value_c: float, now: float) -> None:
         """The driver wrote `value_c` at `now`."""

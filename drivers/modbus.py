@@ -271,6 +271,11 @@ class ModbusDevice(Device):
 
     # ---- Device ------------------------------------------------------------------
 
+    @property  # type: ignore[override]
+    def written_setpoint_c(self) -> float | None:
+        """What the controller was last really sent; a value the guard holds is not."""
+        return self.guard.last_written_c
+
     async def read(self) -> Reading:
         raw: dict[str, float] = {}
         words_of: dict[str, list[int]] = {}

@@ -124,13 +124,16 @@ class SimulatorDevice(Device):
 
     async def write_setpoint(self, celsius: float) -> None:
         self._check_link("writing the setpoint")
-        self.kiln.set_setpoint(max(0.0, min(float(celsius), self._setpoint_max)))
+        value = max(0.0, min(float(celsius), self._setpoint_max))
+        self.kiln.set_setpoint(value)
         self.kiln.set_running(True)
+        self.written_setpoint_c = value
 
     async def stop_heating(self) -> None:
         self._check_link("stopping the heat")
         self.kiln.set_setpoint(0.0)
         self.kiln.set_running(False)
+        self.written_setpoint_c = 0.0
 
     async def close(self) -> None:
         await asyncio.sleep(0)

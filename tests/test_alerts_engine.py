@@ -28,6 +28,7 @@ BASE = "tuikiln/bench-oven"
 
 def kiln_file(broker: Broker, folder: Path, **extra: object) -> Path:
     (folder / "mqtt.pass").write_text(broker.users["kiln"] + "\n")
+    (folder / "mqtt.pass").chmod(0o600)  # a password file others can read is refused
     options = "".join(f"{key} = {json.dumps(value)}\n" for key, value in extra.items())
     path = folder / "kiln.toml"
     path.write_text(

@@ -38,6 +38,7 @@ def settings_for(broker: Broker, tmp_path: Any, **extra: object) -> MqttSettings
     """Through the real kiln-file checker, with the password in a file of its own."""
     password_file = tmp_path / "mqtt.pass"
     password_file.write_text(broker.users["kiln"] + "\n")
+    password_file.chmod(0o600)  # a password file others can read is refused
     settings, problems = check_mqtt_settings(
         broker.mqtt_table("mqtt.pass", **extra), KILN, str(tmp_path)
     )
@@ -309,6 +310,7 @@ async def test_anonymous_and_wrong_password_clients_are_refused(
             pass
     # The publisher with a wrong password says so once, keeps trying, and never raises.
     (tmp_path / "wrong.pass").write_text("not-the-password\n")
+    (tmp_path / "wrong.pass").chmod(0o600)
     settings, problems = check_mqtt_settings(mosquitto.mqtt_table("wrong.pass"), KILN,
                                              str(tmp_path))
     assert settings is not None and not problems

@@ -83,6 +83,7 @@ def test_the_password_comes_from_its_file_or_the_environment(
     tmp_path: Path, monkeypatch: pytest.MonkeyPatch
 ) -> None:
     (tmp_path / "p").write_text("s3cret with space\n")
+    (tmp_path / "p").chmod(0o600)
     settings, _ = check_mqtt_settings({"host": "h", "username": "u", "password_file": "p"},
                                       "k", str(tmp_path))
     assert settings is not None and read_password(settings) == "s3cret with space"

@@ -52,6 +52,7 @@ def tls_broker(mosquitto_factory: Callable[..., Broker]) -> Broker:
 def publisher(broker: Broker, tmp_path: Path, ca: str | None, emit: Any = None
               ) -> MqttPublisher:
     (tmp_path / "mqtt.pass").write_text(broker.users["kiln"] + "\n")
+    (tmp_path / "mqtt.pass").chmod(0o600)
     table = broker.mqtt_table("mqtt.pass", tls=ca if ca else True)
     settings, problems = check_mqtt_settings(table, "Bench oven", str(tmp_path))
     assert problems == [] and settings is not None

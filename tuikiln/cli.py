@@ -10,6 +10,7 @@ from __future__ import annotations
 import argparse
 import importlib
 import os
+import sqlite3
 import sys
 from collections.abc import Sequence
 from typing import NoReturn
@@ -182,3 +183,11 @@ def main(argv: Sequence[str] | None = None) -> int:
         return 130
     except BrokenPipeError:
         return 0
+    except sqlite3.Error as exc:  # a run log locked, damaged or read-only after opening
+        print(f"tuikiln: the run log cannot be used: {exc or type(exc).__name__} (locked by "
+              "another program, damaged, or read-only?)", file=sys.stderr)
+        return 1
+    except OSError as exc:  # a full disk, a read-only folder: in words, never a traceback
+        where = f" ({exc.filename})" if exc.filename else ""
+        print(f"tuikiln: {exc.strerror or exc}{where}", file=sys.stderr)
+        return 1

@@ -40,7 +40,7 @@ from pathlib import Path
 from typing import Any
 
 from tuikiln.errors import UserError
-from tuikiln.runlog import pid_alive
+from tuikiln.runlog import open_private, pid_alive, private_folder
 
 MAX_LINE = 64 * 1024
 SOCKET_PATH_MAX = 100  # sun_path is 108 bytes on Linux; keep a margin
@@ -108,7 +108,7 @@ class KilnLock:
         self._fd: int | None = None
 
     def acquire(self) -> None:
-        self.path.parent.mkdir(parents=True, exist_ok=True)
+        private_folder(self.path.parent)
         fd = os.open(self.path, os.O_RDWR | os.O_CREAT, 0o600)
         try:
             fcntl.flock(fd, fcntl.LOCK_EX | fcntl.LOCK_NB)
@@ -150,9 +150,10 @@ class ActiveRun:
 
 def write_active(data_dir: Path, kiln_name: str, info: dict[str, Any]) -> Path:
     path = active_path(data_dir, kiln_name)
-    path.parent.mkdir(parents=True, exist_ok=True)
+    private_folder(path.parent)
     tmp = path.with_suffix(".tmp")
-    tmp.write_text(json.dumps(info))
+    with open_private(tmp, "w") as out:
+        out.write(json.dumps(info))
     os.replace(tmp, path)
     return path
 

@@ -6,7 +6,6 @@ With no kiln file the device is the built-in simulator, so the first run works a
 
 from __future__ import annotations
 
-import math
 import os
 from collections.abc import Mapping
 from dataclasses import dataclass, field
@@ -18,7 +17,7 @@ import platformdirs
 from tuikiln.errors import FileProblems, Problem
 from tuikiln.limits import parse_limits, suggest
 from tuikiln.tomllines import LineMap, load_toml, read_text
-from tuikiln.units import UNITS, Units, to_c
+from tuikiln.units import UNITS, Units, finite, to_c
 
 KILN_KEYS = ("name", "units", "max", "device", "alarms", "mqtt", "hook", "on_restart", "bell")
 RESTART_POLICIES = ("continue", "hold", "end")
@@ -102,7 +101,7 @@ def parse_kiln(text: str, file: str = "<kiln>") -> Kiln:
             report((), f'the kiln file needs "max", the kiln\'s highest allowed temperature in '
                    f'°{units} (from its maker\'s plate or manual)')
     elif (isinstance(max_raw, bool) or not isinstance(max_raw, int | float)
-          or not math.isfinite(max_raw) or max_raw <= 0):
+          or not finite(max_raw) or max_raw <= 0):
         report(("max",), '"max" must be a temperature, such as 1100')
     else:
         max_c = to_c(float(max_raw), units)

@@ -8,12 +8,11 @@ its degrees per minute, durations as "5m"); inside they are kelvin, °C/s and se
 from __future__ import annotations
 
 import difflib
-import math
 from collections.abc import Callable, Mapping
 from dataclasses import dataclass, fields, replace
 from typing import Any
 
-from tuikiln.units import Units, delta_to_c, parse_duration
+from tuikiln.units import Units, delta_to_c, finite, parse_duration
 
 # kind: "delta" = temperature difference, "duration", "slope" = degrees per minute, "count"
 
@@ -111,7 +110,7 @@ def _parse_value(key: LimitKey, raw: Any, units: Units) -> float:
     if isinstance(raw, bool) or not isinstance(raw, int | float):
         what = "degrees per minute" if key.kind == "slope" else "degrees"
         raise ValueError(f"needs a number of {what}, such as 15")
-    if not math.isfinite(raw):
+    if not finite(raw):
         raise ValueError("needs a finite number, such as 15")
     if raw <= 0:
         raise ValueError("must be more than zero")

@@ -7,7 +7,6 @@ Every mistake is collected (not only the first) as a `Problem` with file and lin
 
 from __future__ import annotations
 
-import math
 from collections.abc import Mapping
 from dataclasses import dataclass, field
 from pathlib import Path
@@ -22,6 +21,7 @@ from tuikiln.units import (
     UNITS,
     Units,
     delta_to_c,
+    finite,
     format_temp,
     parse_duration,
     parse_rate,
@@ -228,7 +228,8 @@ class _Checker:
             if step is None:
                 # Keep checking later steps against the best guess of the temperature.
                 target = table.get("to")
-                if isinstance(target, int | float) and not isinstance(target, bool):
+                if (isinstance(target, int | float) and not isinstance(target, bool)
+                        and finite(target)):
                     current = to_c(target, self.units)
                 continue
             steps.append(step)
@@ -293,7 +294,7 @@ class _Checker:
         if target is None:
             self.report(where, f'step {number}: a {kind} needs "to", the temperature to reach')
             return None
-        if isinstance(target, bool) or not isinstance(target, int | float) or not math.isfinite(
+        if isinstance(target, bool) or not isinstance(target, int | float) or not finite(
                 target):
             self.report(where + ("to",), f'step {number}: "to" must be a number of degrees')
             return None
@@ -334,7 +335,7 @@ class _Checker:
         band_c = None
         if band is not None:
             if (isinstance(band, bool) or not isinstance(band, int | float)
-                    or not math.isfinite(band) or band <= 0):
+                    or not finite(band) or band <= 0):
                 self.report(where + ("band",), f'step {number}: "band" must be a number of '
                             "degrees above zero, such as 10")
             else:

@@ -52,6 +52,7 @@ from typing import Any
 
 import numpy as np
 
+from tuikiln.errors import UserError
 from tuikiln.events import Event
 from tuikiln.plaintext import plain, plain_tree
 
@@ -143,6 +144,38 @@ def default_data_dir(data: str | None = None) -> Path:
     return Path(platformdirs.user_data_dir("tuikiln"))
 
 
+def private_folder(path: Path) -> Path:
+    """Make `path` (and its parents) if missing, the new ones 0700: run logs say when the
+    house is empty and what the oven is doing. An existing folder keeps its mode."""
+    for folder in reversed([path, *path.parents]):
+        if not folder.exists():
+            folder.mkdir(mode=0o700, exist_ok=True)
+    return path
+
+
+def open_private(path: Path, mode: str = "ab") -> Any:
+    """Open a file for writing, created 0600 (the engine's own log file)."""
+    fd = os.open(path, os.O_WRONLY | os.O_CREAT | (os.O_APPEND if "a" in mode else os.O_TRUNC),
+                 0o600)
+    return os.fdopen(fd, mode)
+
+
+def log_trouble(path: Path, exc: BaseException) -> UserError:
+    """One line for a run log that cannot be opened or read."""
+    if isinstance(exc, OSError):
+        what = exc.strerror or str(exc)
+        return UserError(f"cannot use the data folder {path.parent}: {what} "
+                         "(is it read-only or full? --data picks another)")
+    words = str(exc) or type(exc).__name__
+    hint = {"database is locked": "another program holds it locked: try again when it is done",
+            "attempt to write a readonly database": "the file or its folder is read-only",
+            "database or disk is full": "the disk is full: make room, or --data elsewhere",
+            "unable to open database file": "the file or its folder cannot be opened "
+            "(read-only, missing or full?)"}.get(words, "is the file damaged? Keep a copy "
+                                                 "and move it aside to start a new log")
+    return UserError(f"the run log {path} cannot be used: {words}; {hint}")
+
+
 @dataclass(frozen=True)
 class RunInfo:
     id: int
@@ -210,11 +243,16 @@ class RunLog:
 
     def __init__(self, path: str | os.PathLike[str]) -> None:
         self.path = Path(path)
-        self.path.parent.mkdir(parents=True, exist_ok=True)
-        self._conn = _connect(self.path)
-        self._conn.executescript(_SCHEMA)
-        self._conn.execute("INSERT OR IGNORE INTO meta VALUES ('schema', ?)",
-                           (str(SCHEMA_VERSION),))
+        try:
+            private_folder(self.path.parent)
+            if not self.path.exists():  # made 0600 here; SQLite gives its WAL the same mode
+                os.close(os.open(self.path, os.O_WRONLY | os.O_CREAT, 0o600))
+            self._conn = _connect(self.path)
+            self._conn.executescript(_SCHEMA)
+            self._conn.execute("INSERT OR IGNORE INTO meta VALUES ('schema', ?)",
+                               (str(SCHEMA_VERSION),))
+        except (OSError, sqlite3.Error) as exc:
+            raise log_trouble(self.path, exc) from exc
 
     @classmethod
     def in_folder(cls, data_dir: str | os.PathLike[str]) -> RunLog:

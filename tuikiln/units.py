@@ -77,14 +77,31 @@ _DURATION_FULL = re.compile(r"^\s*(?:\d+(?:\.\d+)?\s*[hms]\s*)+$", re.IGNORECASE
 _UNIT_SECONDS = {"h": 3600.0, "m": 60.0, "s": 1.0}
 
 
+# Longer than any heat treatment: beyond this a duration is a typing mistake, and numbers
+# near the float limit break the clock arithmetic (timestamps, sleeps) at run time.
+MAX_DURATION_S = 366 * 86400.0
+# Slower than this no ramp is meant (0.1 degree an hour takes 10,000 h for 1000 degrees);
+# a rate that rounds to zero would divide by zero in the plan.
+MIN_RATE_PER_H = 0.1
+
+
+def finite(value: int | float) -> bool:
+    """math.isfinite, but False (not OverflowError) for an integer too large for a float."""
+    try:
+        return math.isfinite(value)
+    except OverflowError:
+        return False
+
+
 def parse_duration(text: str | int | float) -> float:
     """'90s', '15m', '2h', '1h30m', '1.5h' -> seconds. A bare number is seconds."""
     if isinstance(text, bool):
         raise ValueError(f'{text!r} is not a duration such as "15m", "2h" or "1h30m"')
     if isinstance(text, int | float):
-        if not math.isfinite(text) or text < 0:
-            raise ValueError(f"{text} is not a duration: it must be zero or more seconds")
-        return float(text)
+        if not finite(text) or text < 0:
+            raise ValueError(f"{str(text)[:40]} is not a duration: it must be zero or more "
+                             "seconds")
+        return _at_most_max(float(text), str(text))
     if not isinstance(text, str) or not _DURATION_FULL.match(text):
         raise ValueError(f'"{text}" is not a duration such as "90s", "15m", "2h" or "1h30m"')
     parts = _DURATION_PART.findall(text)
@@ -101,7 +118,14 @@ def parse_duration(text: str | int | float) -> float:
         total += float(number) * _UNIT_SECONDS[unit]
     if not math.isfinite(total):
         raise ValueError(f'"{text[:40]}" is not a duration: the number is far too large')
-    return total
+    return _at_most_max(total, text)
+
+
+def _at_most_max(seconds: float, text: str) -> float:
+    if seconds > MAX_DURATION_S:
+        raise ValueError(f'"{text[:40]}" is not a duration: longer than a year '
+                         f"({MAX_DURATION_S / 86400:.0f} days)")
+    return seconds
 
 
 def format_duration(seconds: float | None) -> str:
@@ -134,6 +158,10 @@ def parse_rate(text: str, units: Units) -> float | None:
         raise ValueError(f'"{text[:40]}" is not a rate: the number is far too large')
     if value <= 0:
         raise ValueError(f'"{text}" is not a rate: it must be more than zero')
+    per = 3600.0 if match.group(2).lower() in ("h", "hr", "hour") else 60.0
+    if value * 3600.0 / per < MIN_RATE_PER_H:
+        raise ValueError(f'"{text[:40]}" is not a rate: slower than {MIN_RATE_PER_H:g} '
+                         "degrees an hour")
     per = 3600.0 if match.group(2).lower() in ("h", "hr", "hour") else 60.0
     return delta_to_c(value, units) / per
 

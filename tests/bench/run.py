@@ -32,6 +32,7 @@ MODULES = [
     "modbus_rate",
     "watch_cost",
     "equalize",
+    "fuzz_hostile",
     "trials",
 ]
 

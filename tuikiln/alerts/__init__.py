@@ -48,7 +48,9 @@ def build_alerts(
     if mqtt is not None:
         sinks.append(MqttPublisher(mqtt, emit=emit, on_command=on_command, clock=clock))
     if hooks:
-        sinks.append(HookRunner(hooks, kiln_name=kiln_name, emit=emit, units=units, clock=clock))
+        secret = (mqtt.password_env,) if mqtt is not None else ()
+        sinks.append(HookRunner(hooks, kiln_name=kiln_name, emit=emit, units=units, clock=clock,
+                                secret_env=secret))
     return AlertFanout(sinks)
 
 

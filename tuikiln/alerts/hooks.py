@@ -33,7 +33,12 @@ from dataclasses import dataclass
 from typing import Any
 
 from tuikiln import events as ev
-from tuikiln.alerts.settings import PLACEHOLDERS, HookSpec, fill_placeholders
+from tuikiln.alerts.settings import (
+    DEFAULT_PASSWORD_ENV,
+    PLACEHOLDERS,
+    HookSpec,
+    fill_placeholders,
+)
 from tuikiln.events import Event
 from tuikiln.units import format_temp
 
@@ -89,8 +94,12 @@ class HookRunner:
         concurrency: int = CONCURRENCY,
         queue_cap: int = QUEUE_CAP,
         stop_grace: float = 15.0,
+        secret_env: Sequence[str] = (),
     ) -> None:
         self.hooks = list(hooks)
+        # The MQTT password may live in the engine's environment: a hook is someone else's
+        # program, so it never inherits it.
+        self._secret_env = {DEFAULT_PASSWORD_ENV, *secret_env}
         self._kiln = kiln_name
         self._emit_callback = emit
         self._units = units
@@ -219,7 +228,7 @@ class HookRunner:
 
     async def _run(self, job: _Job) -> None:
         argv = build_argv(job.hook.run, job.values)
-        env = dict(os.environ)
+        env = {key: value for key, value in os.environ.items() if key not in self._secret_env}
         env.update({f"TUIKILN_{key.upper()}": value for key, value in job.values.items()})
         env["TUIKILN_EVENT_JSON"] = job.event_json
         try:

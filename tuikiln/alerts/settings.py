@@ -14,6 +14,7 @@ from __future__ import annotations
 import os
 import re
 import shutil
+import stat
 from collections.abc import Mapping
 from dataclasses import dataclass
 from typing import Any
@@ -94,9 +95,30 @@ def read_password(settings: MqttSettings) -> str | None:
     Raises OSError when the password file cannot be read.
     """
     if settings.password_file:
-        with open(settings.password_file, encoding="utf-8") as handle:
-            return handle.read().strip("\r\n")
+        problem = password_file_problem(settings.password_file)
+        if problem:
+            raise PermissionError(problem)
+        try:
+            with open(settings.password_file, encoding="utf-8") as handle:
+                return handle.read().strip("\r\n")
+        except UnicodeDecodeError:
+            pass
+        # Raised outside the handler: the decode error quotes the password's bytes, and
+        # it must not even ride along as the context of this one.
+        raise OSError(f"the password file {settings.password_file} is not UTF-8 text")
     return os.environ.get(settings.password_env)
+
+
+def password_file_problem(path: str) -> str | None:
+    """Why a password file must not be used (others may read it), or None."""
+    try:
+        info = os.stat(path)
+    except OSError as exc:
+        return f"cannot read the password file {path}: {exc.strerror or exc}"
+    if info.st_mode & 0o077:
+        return (f"the password file {path} can be read by other users (mode "
+                f"{stat.S_IMODE(info.st_mode):o}): `chmod 600 {path}` first")
+    return None
 
 
 def kiln_id(name: str) -> str:
@@ -200,6 +222,10 @@ def _check_mqtt(
         values["password_file"] = _readable_file(
             table["password_file"], "password_file", base_dir, (*root, "password_file"), problems
         )
+        problem = values["password_file"] and password_file_problem(values["password_file"])
+        if problem:
+            problems.append(((*root, "password_file"), problem))
+            values["password_file"] = None
         if "password_env" in table:
             problems.append(((*root, "password_env"), 'write either "password_file" or '
                              '"password_env", not both'))

@@ -51,6 +51,9 @@ OUT_OF_BAND_REMARK_S = 10.0
 # textbook value); holds from TEMPER_MIN_C up to TEMPER_MAX_C count as tempers.
 TEMPER_MIN_C = temper_rules.DEFAULT_THRESHOLD_C
 TEMPER_MAX_C = 700.0
+# A ramp whose chamber rose at less than this share of the planned rate fell short of it
+# (our choice: a fifth slower is more than a controller's lag at the start and end).
+RATE_SHORT_SHARE = 0.8
 # A hold at or above this is a hardening (austenitizing) hold: a quench follows it.
 HARDEN_MIN_C = 700.0
 # "Hand-warm" (about 150 °F), when a quenched part is usually put to temper: common practice,
@@ -454,11 +457,45 @@ class _Analysis:
             result.reasons.append(f"did not finish: {self._ending()} at {w.t(now)} (the "
                                   f"target is {w.t(step.to_c)})")
             return
-        if behind is not None and behind > self.limits.behind_for:
+        late = behind is not None and behind > self.limits.behind_for
+        if late:
             achieved = (figures.get("achieved_rate_c_per_h") or 0.0) / 3600.0
             _worse(result, REMARKS, f"finished {format_duration(behind)} later than planned "
                    f"(planned {format_rate(rate, self.units)}, achieved "
                    f"{format_rate(achieved, self.units)})")
+        if isinstance(step, Ramp):
+            self._ramp_shortfall(result, step, figures, said_rate=late)
+
+    def _ramp_shortfall(self, result: StepResult, step: Ramp, figures: dict[str, Any],
+                        said_rate: bool) -> None:
+        """A finished ramp whose chamber fell short of its target or its rate is not plainly
+        met, and one on an oven that never heated is missed: the setpoint moving on plan says
+        nothing about the oven (a controller that never took its setpoint looks the same)."""
+        w = self.words
+        from_c, reached = figures.get("from_c"), figures.get("reached_c")
+        if from_c is None or reached is None:
+            return
+        band = self.limits.band
+        up = step.to_c >= from_c
+        moved = reached - from_c if up else from_c - reached
+        short = step.to_c - reached if up else reached - step.to_c
+        figures["short_of_target_c"] = max(0.0, short)
+        if up and step.to_c - from_c > band and moved < band:
+            _worse(result, MISSED, f"the oven never heated: {w.t(from_c)} at the start, "
+                   f"{w.t(reached)} at the end, {w.d(short)} short of {w.t(step.to_c)}")
+            return
+        if short > band:
+            _worse(result, REMARKS, f"ended {w.d(short)} short of its target "
+                   f"({w.t(reached)} of {w.t(step.to_c)})")
+        rate = step.rate_c_per_s
+        achieved = figures.get("achieved_rate_c_per_h")
+        if rate is None or achieved is None or said_rate:
+            return
+        achieved_s = achieved / 3600.0
+        if achieved_s < RATE_SHORT_SHARE * rate:
+            _worse(result, REMARKS, f"heated at {format_rate(achieved_s, self.units)} of the "
+                   f"planned {format_rate(rate, self.units)} "
+                   f"({(1.0 - achieved_s / rate) * 100.0:.0f} % slower)")
 
     def _cooling_at_end(self, result: StepResult, step: Ramp | Cool,
                         temps: np.ndarray) -> bool:

@@ -5,6 +5,7 @@ from __future__ import annotations
 import argparse
 import csv
 import json
+import math
 import sys
 
 from tuikiln.commands.check import summary
@@ -21,6 +22,7 @@ from tuikiln.units import (
     symbol,
 )
 
+MAX_CSV_ROWS = 10_000_000  # beyond this the CSV is a mistake (and would not fit in memory)
 HELP = "show the planned curve of a profile (table, --json or --csv)"
 
 
@@ -86,8 +88,11 @@ def plan_as_json(plan: Plan, units: str) -> dict:
 
 
 def write_csv(plan: Plan, units: str, every: float | None) -> None:
-    if every is not None and every <= 0:
-        raise UserError("--every must be more than zero seconds")
+    if every is not None and not (math.isfinite(every) and every > 0):
+        raise UserError("--every must be a number of seconds more than zero")
+    if every is not None and plan.total_s / every > MAX_CSV_ROWS:
+        raise UserError(f"--every {every:g} would give more than {MAX_CSV_ROWS:,} rows for "
+                        f"a plan of {plan.total_s:.0f} s: choose a longer interval")
     if every:
         times, temps = plan.sample(every)
     else:

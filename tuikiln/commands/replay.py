@@ -17,12 +17,11 @@ import argparse
 import json
 import math
 import sys
-from dataclasses import dataclass
 from pathlib import Path
 from typing import Any
 
 from tuikiln.errors import FileProblems, UserError
-from tuikiln.limits import LIMIT_KEYS, LimitKey, Limits
+from tuikiln.limits import LIMIT_KEYS, LimitKey
 
 HELP = "hold a logged run (or another tool's CSV log) against its profile, step by step"
 
@@ -89,46 +88,23 @@ def add_arguments(parser: argparse.ArgumentParser) -> None:
                           default=None, help=key.help)
 
 
-@dataclass
-class Loaded:
-    """A log and everything needed to replay it."""
-
-    trace: Any
-    profile: Any
-    limits: Limits
-    events: list[dict[str, Any]]
-    outcome: str | None
-    units: str
-    max_c: float | None
-    run: dict[str, Any]
-    rerun: bool | None
-    same_profile: bool
-
-
 def run(args: argparse.Namespace) -> int:
     from tuikiln.analysis import report as report_mod
-    from tuikiln.analysis.replay import replay_run
 
     loaded = _load(args)
     overrides = _limit_overrides(args, loaded.profile.units)
     c, below_c = _analysis_options(args)
-    kwargs = dict(events=loaded.events, outcome=loaded.outcome, units=loaded.units,
-                  max_c=loaded.max_c, same_profile=loaded.same_profile, c=c,
-                  quench_below_c=below_c, run=loaded.run)
     whatif: dict[str, Any] | None = None
     if overrides:
         from tuikiln.analysis.whatif import compare_alarms
 
-        baseline = replay_run(loaded.trace, loaded.profile, loaded.limits, rerun=True,
-                              **kwargs)  # type: ignore[arg-type]
-        changed = loaded.limits.merged(overrides)
-        result = replay_run(loaded.trace, loaded.profile, changed, rerun=True,
-                            **kwargs)  # type: ignore[arg-type]
+        baseline = loaded.replay(rerun=True, c=c, quench_below_c=below_c)
+        result = loaded.replay(loaded.limits.merged(overrides), rerun=True, c=c,
+                               quench_below_c=below_c)
         changes = compare_alarms(baseline.events, result.events)
         whatif = report_mod.whatif_dict(baseline, result, changes, overrides)
     else:
-        result = replay_run(loaded.trace, loaded.profile, loaded.limits, rerun=loaded.rerun,
-                            **kwargs)  # type: ignore[arg-type]
+        result = loaded.replay(c=c, quench_below_c=below_c)
     if args.command == "report":
         path = Path(args.output)
         if path.suffix.lower() not in (".html", ".htm", ".md", ".markdown"):
@@ -203,7 +179,7 @@ def _analysis_options(args: argparse.Namespace) -> tuple[float, float]:
 # ----- loading -----
 
 
-def _load(args: argparse.Namespace) -> Loaded:
+def _load(args: argparse.Namespace) -> Any:
     csv_path = args.csv if args.command == "import" else getattr(args, "csv", None)
     if csv_path is not None:
         if getattr(args, "run", None):
@@ -218,9 +194,9 @@ def _against(args: argparse.Namespace) -> Any:
     return load_profile(args.against)
 
 
-def _load_csv(args: argparse.Namespace, path: str) -> Loaded:
-    from tuikiln.analysis.csvlog import CsvLayout, read_csv_log
-    from tuikiln.analysis.replay import Trace
+def _load_csv(args: argparse.Namespace, path: str) -> Any:
+    from tuikiln.analysis.csvlog import CsvLayout
+    from tuikiln.analysis.loading import from_csv
     from tuikiln.kiln import load_kiln
 
     if not args.against:
@@ -234,22 +210,12 @@ def _load_csv(args: argparse.Namespace, path: str) -> Loaded:
     except ValueError as exc:
         raise UserError(str(exc)) from None
     profile = _against(args)
-    log = read_csv_log(path, layout)  # all or nothing: FileProblems lists the bad lines
-    if log.time_s.size < 2:
-        raise UserError(f"{path}: the log has fewer than two rows of readings")
-    samples = {"t": log.time_s, "chamber_c": log.chamber_c}
-    if log.load_c is not None:
-        samples["load_c"] = log.load_c
     kiln = load_kiln(args.kiln) if args.kiln else None
-    limits = Limits().merged(kiln.alarms if kiln else {}).merged(profile.limits)
-    return Loaded(Trace.from_samples(samples, float(log.time_s[0])), profile, limits, [],
-                  None, profile.units, kiln.max_c if kiln else None,
-                  {"csv": str(path), "profile": profile.name}, True, True)
+    return from_csv(path, layout, profile, kiln)
 
 
-def _load_run(args: argparse.Namespace) -> Loaded:
-    from tuikiln.analysis.replay import Trace
-    from tuikiln.kiln import Kiln, parse_kiln
+def _load_run(args: argparse.Namespace) -> Any:
+    from tuikiln.analysis.loading import from_log
     from tuikiln.profile import parse_profile
     from tuikiln.runlog import RUNLOG_NAME, RunLog, default_data_dir
 
@@ -261,35 +227,31 @@ def _load_run(args: argparse.Namespace) -> Loaded:
     log = RunLog(path)
     try:
         info = _find_run(log, args.run)
-        if args.against:
-            profile = _against(args)
-        else:
-            if not info.profile_text:
+        against = _against(args) if args.against else None
+        if not info.profile_text:
+            if against is None:
                 raise UserError(f"run {info.id} has no stored profile: give --against PROFILE")
+            profile = against
+        else:
             try:
                 profile = parse_profile(info.profile_text, f"run {info.id}'s profile "
                                         f"({info.profile_path or info.profile})")
             except FileProblems as exc:
-                raise UserError(f"run {info.id}'s stored profile no longer checks:\n{exc}"
-                                ) from None
-        kiln = Kiln()
-        if info.kiln_text:
-            try:
-                kiln = parse_kiln(info.kiln_text, f"run {info.id}'s kiln file")
-            except FileProblems:
-                kiln = Kiln()  # a kiln file that no longer checks: default thresholds
-        limits = Limits().merged(kiln.alarms).merged(profile.limits)
+                if against is None:
+                    raise UserError(f"run {info.id}'s stored profile no longer checks:\n{exc}"
+                                    ) from None
+                profile = against
         samples = log.samples(info.id)
         events = log.events(info.id)
     finally:
         log.close()
     if samples["t"].size < 2:
         raise UserError(f"run {info.id} has fewer than two samples: nothing to replay")
-    trace = Trace.from_samples(samples, info.started)
     run_dict = info.summary()
     run_dict["load"] = dict(info.load) if info.load else None
-    return Loaded(trace, profile, limits, events, info.status, info.units, kiln.max_c,
-                  run_dict, True if args.against else None, not args.against)
+    return from_log(samples, events, started=info.started, profile=profile,
+                    outcome=info.status, units=info.units, kiln_text=info.kiln_text,
+                    against=against, run=run_dict)
 
 
 def _find_run(log: Any, which: str | None) -> Any:

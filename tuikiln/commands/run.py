@@ -209,12 +209,13 @@ def plan_lines(profile: Any, kiln: Any, start_c: float | None, device_words: str
 
 def start_background(args: argparse.Namespace, kiln: Any, profile: Any, data_dir: Path) -> int:
     from tuikiln import control
+    from tuikiln.runlog import open_private, private_folder
 
     lock = control.KilnLock(data_dir, kiln.name)
     lock.acquire()  # fails at once, in plain words, if a run is already going on
     lock.release()
     logs = data_dir / "logs"
-    logs.mkdir(parents=True, exist_ok=True)
+    private_folder(logs)
     log_path = logs / f"run-{time.strftime('%Y%m%d-%H%M%S')}-{os.getpid()}.log"
     command = [sys.executable, "-m", "tuikiln", "run"]
     if args.profile is not None:
@@ -230,7 +231,7 @@ def start_background(args: argparse.Namespace, kiln: Any, profile: Any, data_dir
         command += ["--at-step", str(args.from_step)]
     if args.auto_continue:
         command.append("--auto-continue")
-    with open(log_path, "ab") as log_file:
+    with open_private(log_path) as log_file:
         child = subprocess.Popen(command, stdin=subprocess.DEVNULL, stdout=log_file,
                                  stderr=subprocess.STDOUT, start_new_session=True,
                                  cwd=str(Path.cwd()))

@@ -59,10 +59,14 @@ REWRITE_AFTER_S = 5.0      # a moving setpoint is written at most this often ...
 REWRITE_STEP_C = 1.0       # ... unless it moved at least this much
 DEVICE_DRIFT_C = 1.0       # the device holds another setpoint than ours: write it again
 DRIFT_TICKS = 3            # ... after this many readings in a row (a write may be in flight)
+REARM_SPACING_S = 60.0     # a second re-arm waits this long after the first, the next twice as
+REARM_SPACING_MAX_S = 1800.0  # ... long, up to this: a controller that never agrees (a map
+                              # reading another register) is not stopped and started for ever
 STOPPED_TICKS = 2          # readings of "not running" in a row before the controller is re-armed
 WATCHDOG_S = 30.0          # a tick unfinished this long (wall time): the loop is stalled
 SAFE_PATH_TIMEOUT_S = 10.0  # the watchdog's own attempt to stop the heat, per path
 SUSPENDED = "suspended"     # not an outcome in the log: the run stays unfinished, to resume
+SAFE_RETRY_MAX_S = 30.0     # after a run ended unable to stop the heat: retry at least this often
 COMMIT_EVERY_S = 0.5       # the run log commits at least this often: a one-second tick commits
                            # every tick, so a kill loses at most the tick under way
 
@@ -113,12 +117,15 @@ class RunEngine:
         self.speed = speed
         self.auto_continue = auto_continue
         self.last = LastReading()
+        self._sensor_fault = False
         self.started = 0.0
         self.run_id: int | None = None
         self.outcome: str | None = None
         self.end_words = ""
         self._stop_request: tuple[str, str] | None = None
-        self._written_c: float | None = None
+        self._requested_c: float | None = None
+        """The setpoint last handed to the driver; its write guard may still hold it back,
+        so the device is held against `device.written_setpoint_c`, never against this."""
         self._written_at = -math.inf
         self._drift_ticks = 0
         self._status_at = 0.0
@@ -131,11 +138,16 @@ class RunEngine:
         self._stopped_ticks = 0
         self._rearm = False
         self.rearms = 0
+        self._rearm_spacing = REARM_SPACING_S
+        self._rearm_not_before = -math.inf
         self.watchdog_s = watchdog_s
         self.safe_device = safe_device
         self._tick_began: float | None = None
         self._stalled = False
         self._suspend_request: str | None = None
+        self._stop_asks = 0  # signals and stop requests so far: a new one ends the safe retries
+        self.safe_pending = False
+        """The run has ended but the heat could not be turned off: retrying until it is."""
 
     # ----- outside -----
 
@@ -155,6 +167,7 @@ class RunEngine:
 
     def request_stop(self, outcome: str, reason: str) -> None:
         """From a signal handler: stop at the next tick, driving the device safe."""
+        self._stop_asks += 1
         if self._stop_request is None:
             self._stop_request = (outcome, reason)
 
@@ -162,6 +175,7 @@ class RunEngine:
         """From a service manager's SIGTERM (a reboot, `systemctl stop`): drive the device
         safe at the next tick and leave the run unfinished, to be carried on (per the kiln
         file's on_restart) when the engine starts again."""
+        self._stop_asks += 1
         if self._suspend_request is None and self._stop_request is None:
             self._suspend_request = reason
 
@@ -280,6 +294,9 @@ class RunEngine:
                     await self._safe_and_end(outcome, decision.safe_reason)
                 else:
                     await self._complete(outcome)
+                if self.safe_pending:
+                    self._tick_began = None  # no tick under way: the watchdog stands by
+                    await self._keep_trying_safe(now)
                 return
             if (decision.setpoint_c is not None and not self.watch_only
                     and not self.held_for_restart):
@@ -299,6 +316,9 @@ class RunEngine:
         reading: Reading | None = None
         link_ok = True
         sensor_fault = False
+        # What the device was really sent before this poll: a driver may write a held-back
+        # setpoint during the poll itself, after taking the reading.
+        sent_c = self.device.written_setpoint_c
         try:
             reading = await self.device.read()
         except SensorFault:
@@ -307,11 +327,14 @@ class RunEngine:
             link_ok = False
         if reading is not None:
             sensor_fault = sensor_fault or reading.sensor_fault
+        # Logged as a flag, so a replay (what-if) sees a sensor fault, not a lost link.
+        self._sensor_fault = sensor_fault
+        if reading is not None:
             chamber = reading.chamber_c
             self.last.chamber_c = chamber
             self.last.load_c = reading.load_c
             self.last.output_pct = reading.output_pct
-            self._watch_device_setpoint(reading)
+            self._watch_device_setpoint(now, reading, sent_c)
         else:
             chamber = None
             self.last.chamber_c = None
@@ -320,23 +343,26 @@ class RunEngine:
                          output_pct=None if reading is None else reading.output_pct,
                          link_ok=link_ok, sensor_fault=sensor_fault)
 
-    def _watch_device_setpoint(self, reading: Reading) -> None:
-        """A controller that rebooted or was changed by hand holds another setpoint, or has
-        stopped its output: arm it again on this tick's write."""
-        if self._written_c is None or self.held_for_restart:
+    def _watch_device_setpoint(self, now: float, reading: Reading,
+                                sent_c: float | None) -> None:
+        """A controller that rebooted or was changed by hand holds another setpoint than the
+        one it was last really sent, or has stopped its output: arm it again on this tick's
+        write. A write the driver held back is not one the controller should hold."""
+        if self._requested_c is None or self.held_for_restart:
             self._drift_ticks = self._stopped_ticks = 0
             return
-        if reading.setpoint_c is not None and abs(reading.setpoint_c - self._written_c) > \
-                DEVICE_DRIFT_C:
+        if (reading.setpoint_c is not None and sent_c is not None
+                and abs(reading.setpoint_c - sent_c) > DEVICE_DRIFT_C):
             self._drift_ticks += 1
         else:
             self._drift_ticks = 0
-        wants_heat = self._written_c > 0.0 and not self.rules.stepper.heat_off
+        wants_heat = self._requested_c > 0.0 and not self.rules.stepper.heat_off
         if reading.running is False and wants_heat:
             self._stopped_ticks += 1
         else:
             self._stopped_ticks = 0
-        if self._drift_ticks >= DRIFT_TICKS or self._stopped_ticks >= STOPPED_TICKS:
+        if ((self._drift_ticks >= DRIFT_TICKS or self._stopped_ticks >= STOPPED_TICKS)
+                and now >= self._rearm_not_before):
             self._rearm = True
             self._drift_ticks = self._stopped_ticks = 0
 
@@ -345,7 +371,7 @@ class RunEngine:
             await self._rearm_device(now, setpoint_c)
             return
         resolution = self.device.capabilities.setpoint_resolution_c
-        last = self._written_c
+        last = self._requested_c
         if last is not None:
             change = abs(setpoint_c - last)
             if change < resolution * 0.5:
@@ -361,15 +387,15 @@ class RunEngine:
             return
         except DeviceError:
             return  # the next tick tries again; lost links are the alarms' business
-        self._written_c = setpoint_c
+        self._requested_c = setpoint_c
         self._written_at = now
 
     async def _rearm_device(self, now: float, setpoint_c: float) -> None:
         """Stop, then setpoint and run afresh: a driver that wrote "run" once writes it
         again after a stop, so a controller that came back stopped starts again."""
         device = self.device
-        held = "another setpoint" if self._written_c is None else (
-            f"another setpoint or stopped (ours {format_temp(self._written_c, self.kiln.units)})")
+        held = "another setpoint" if self._requested_c is None else (
+            f"another setpoint or stopped (ours {format_temp(self._requested_c, self.kiln.units)})")
         try:
             if device.capabilities.can_stop_heating:
                 await device.stop_heating()
@@ -378,7 +404,9 @@ class RunEngine:
             return  # the next tick tries again
         self._rearm = False
         self.rearms += 1
-        self._written_c = setpoint_c
+        self._rearm_not_before = now + self._rearm_spacing
+        self._rearm_spacing = min(self._rearm_spacing * 2.0, REARM_SPACING_MAX_S)
+        self._requested_c = setpoint_c
         self._written_at = now
         self._emit(Event(now, ev.DEVICE, f"The controller held {held}: it may have rebooted. "
                          f"Setpoint {format_temp(setpoint_c, self.kiln.units)} and run written "
@@ -391,7 +419,9 @@ class RunEngine:
         s = self.rules.stepper
         last = self.last
         flags = 0
-        if last.chamber_c is None:
+        if self._sensor_fault:
+            flags |= st.FLAG_SENSOR_FAULT  # the device answered: a fault, not silence
+        elif last.chamber_c is None:
             flags |= st.FLAG_NO_READING
         if s.paused:
             flags |= st.FLAG_PAUSED
@@ -432,7 +462,9 @@ class RunEngine:
         words = "heat off"
         if not self.watch_only:
             result = await drive_safe(self.device)
-            words = "heat off" if result.done else result.words
+            self.safe_pending = result.unreached and not result.done
+            words = "heat off" if result.done else result.words + (
+                RETRY_WORDS if self.safe_pending else "")
         self._end(now, outcome, f"Run complete: every step is done; {words}")
 
     async def _safe_and_end(self, outcome: str, reason: str,
@@ -446,6 +478,9 @@ class RunEngine:
             done = False
         else:
             result_words, done = result.words, result.done
+            if not done and result.unreached:
+                self.safe_pending = True
+                result_words += RETRY_WORDS
         self._emit(Event(now, ev.SAFE_STATE, f"Safe state: {reason}; {result_words}",
                          "critical" if not done or outcome != st.ABORTED else "warning",
                          {"reason": reason, "done": done, "words": result_words}))
@@ -459,6 +494,37 @@ class RunEngine:
         if self.recorder is not None:
             self.recorder.end(outcome, now)
         self._publish_status(force=True)
+
+    async def _keep_trying_safe(self, since: float) -> None:
+        """The run has ended without reaching the controller (a lost link): keep trying the
+        safe state, so that an oven whose link comes back is not left heating. A new stop
+        request (a signal, Ctrl-C) ends the trying; the person was told to switch off."""
+        asks = self._stop_asks
+        wait = max(self.tick_s, 0.1)
+        while self._stop_asks == asks:
+            await self.clock.sleep(wait)
+            wait = min(wait * 2.0, SAFE_RETRY_MAX_S)
+            if self._stop_asks != asks:
+                break
+            try:
+                result = await asyncio.wait_for(drive_safe(self.device, attempts=1),
+                                                SAFE_PATH_TIMEOUT_S)
+            except TimeoutError:
+                continue
+            if result.done:
+                self.safe_pending = False
+                now = self.clock.now()
+                self._emit(Event(now, ev.SAFE_STATE, "The controller answers again: "
+                                 f"{result.words}, {format_duration(now - since)} after the run "
+                                 "ended", "warning",
+                                 {"reason": "link back", "done": True, "words": result.words,
+                                  "after_end": True}))
+                self._publish_status(force=True)
+                return
+        self._emit(Event(self.clock.now(), ev.SAFE_STATE, "Stopped trying to turn the heat "
+                         "off: the oven may still be heating. Switch it off by hand now",
+                         "critical", {"reason": "stopped trying", "done": False,
+                                      "words": "not reached", "after_end": True}))
 
     async def _suspend(self, reason: str) -> None:
         result = await drive_safe(self.device) if not self.watch_only else None
@@ -538,7 +604,7 @@ class RunEngine:
         assert plan is not None
         self.held_for_restart = False
         words = recovery.restore_stepper(self.rules.stepper, plan, now, self.last.chamber_c)
-        self._written_c = None  # write the setpoint (and run) afresh on the next tick
+        self._requested_c = None  # write the setpoint (and run) afresh on the next tick
         message = f"Carrying on after the restart: {words}"
         events = [Event(now, ev.COMMAND, message, "info", {"name": name, "source": source})]
         events.extend(self.rules.alarms.set_condition("paused-too-long", False, now))
@@ -629,6 +695,9 @@ class RunEngine:
         for listener in list(self.listeners):
             _safe_call(listener, "status", status)
 
+
+RETRY_WORDS = ("; tuikiln keeps trying to turn it off while it runs, and says so when the "
+               "controller answers")
 
 _URGENT = frozenset({ev.ALARM_RAISED, ev.SAFE_STATE, ev.RUN_END, ev.OPERATOR_NEEDED,
                      ev.RUN_START})

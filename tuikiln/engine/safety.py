@@ -22,6 +22,8 @@ ATTEMPTS = 3
 class SafeResult:
     done: bool
     words: str
+    unreached: bool = False
+    """The device did not answer (a lost link): trying again later may still succeed."""
 
 
 async def drive_safe(device: Device, attempts: int = ATTEMPTS,
@@ -31,6 +33,7 @@ async def drive_safe(device: Device, attempts: int = ATTEMPTS,
         return SafeResult(False, "this device only reports temperatures: tuikiln cannot turn "
                           "the heat off. Switch the oven off at its controller or mains switch")
     last_error = ""
+    unreached = False
     for attempt in range(attempts):
         try:
             if caps.can_stop_heating:
@@ -44,6 +47,7 @@ async def drive_safe(device: Device, attempts: int = ATTEMPTS,
             break
         except DeviceError as exc:
             last_error = str(exc)
+            unreached = True
             if attempt + 1 < attempts:
                 try:
                     await device.clock.sleep(pause_s)
@@ -51,5 +55,6 @@ async def drive_safe(device: Device, attempts: int = ATTEMPTS,
                     pass
         except Exception as exc:  # noqa: BLE001 - whatever a driver does, keep trying safe
             last_error = f"{type(exc).__name__}: {exc}"
+            unreached = False
     return SafeResult(False, f"could not reach the controller to turn the heat off "
-                      f"({last_error}). Switch the oven off by hand now")
+                      f"({last_error}). Switch the oven off by hand now", unreached)

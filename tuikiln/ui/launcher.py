@@ -21,7 +21,7 @@ from tuikiln import control
 from tuikiln.control import ActiveRun
 from tuikiln.errors import FileProblems, UserError
 from tuikiln.kiln import Kiln, load_kiln
-from tuikiln.runlog import RunInfo, RunLog, default_data_dir
+from tuikiln.runlog import RunInfo, RunLog, default_data_dir, open_private, private_folder
 from tuikiln.ui.loglink import Control, LogLink
 
 # The examples travel inside the package (pyproject maps profiles/ to tuikiln.profiles), so
@@ -89,14 +89,14 @@ class Launcher:
     def start(self, profile_path: str) -> int:
         """Start the engine on `profile_path` in its own session; the new run's id."""
         logs = self.data_dir / "logs"
-        logs.mkdir(parents=True, exist_ok=True)
+        private_folder(logs)
         log_path = logs / f"run-{time.strftime('%Y%m%d-%H%M%S')}-{os.getpid()}.log"
         command = [sys.executable, "-m", "tuikiln", "run", str(Path(profile_path).resolve()),
                    "--headless", "--detached", "--data", str(self.data_dir.resolve())]
         if self.kiln_path:
             command += ["--kiln", str(Path(self.kiln_path).resolve())]
         command += self.extra_run_args
-        with open(log_path, "ab") as output:
+        with open_private(log_path) as output:
             process = subprocess.Popen(command, stdin=subprocess.DEVNULL, stdout=output,
                                        stderr=subprocess.STDOUT, start_new_session=True)
         deadline = time.monotonic() + START_TIMEOUT_S

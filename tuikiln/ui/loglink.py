@@ -55,7 +55,9 @@ class LogLink:
             outcome=run.outcome if run.outcome else (None if run.status == "running"
                                                       else run.status),
             ended=run.ended, extra={"device": run.device, "speed": run.speed,
-                                    "watch_only": run.watch_only},
+                                    "watch_only": run.watch_only,
+                                    # the review screen judges with the run's thresholds
+                                    "kiln_text": run.kiln_text},
         )
         return self._header
 

@@ -4,6 +4,7 @@ per-step verdicts of the replay analysis (where it exists), and the run's notes 
 from __future__ import annotations
 
 import asyncio
+import contextlib
 from collections.abc import Mapping, Sequence
 from typing import Any
 
@@ -19,7 +20,7 @@ from textual.widgets import Footer, Static
 
 from tuikiln.profile import describe_step
 from tuikiln.ui.chartdata import replay_chart
-from tuikiln.ui.runfeed import RunHeader, RunLink, SampleBuffer, convert_temperatures
+from tuikiln.ui.runfeed import RunHeader, RunLink, SampleBuffer
 from tuikiln.ui.screens.help import HelpScreen
 from tuikiln.ui.widgets.chart import TemperatureChart
 from tuikiln.ui.widgets.event_log import EventLog
@@ -44,10 +45,12 @@ def step_starts(events: Sequence[Mapping[str, Any]]) -> dict[int, float]:
 
 
 def verdict_lines(header: RunHeader, samples: SampleBuffer,
-                  events: Sequence[Mapping[str, Any]]) -> list[str]:
-    """Per-step verdicts of the replay analysis (tuikiln.analysis.replay), in words."""
-    from tuikiln.analysis.replay import Trace, replay_run
-    from tuikiln.limits import Limits
+                  events: Sequence[Mapping[str, Any]], units: str | None = None) -> list[str]:
+    """Per-step verdicts of the replay analysis (tuikiln.analysis.replay), in words, with
+    temperatures in `units` (the profile's by default). The analysis writes them from its
+    numbers in those units: its sentences are never rewritten afterwards, where a band
+    ("± 8 °C") would be taken for a temperature."""
+    from tuikiln.analysis.loading import from_log
 
     columns = {name: samples.column(name) for name in
                ("t", "chamber_c", "load_c", "core_c", "setpoint_c", "output_pct", "step",
@@ -55,15 +58,18 @@ def verdict_lines(header: RunHeader, samples: SampleBuffer,
     if not columns["t"].size:
         return ["(no samples: nothing to judge)"]
     try:
-        result = replay_run(Trace.from_samples(columns, header.started), header.profile,
-                            Limits().merged(header.profile.limits), events=list(events),
-                            outcome=header.outcome, units=header.profile.units)
+        # The same loader as `tuikiln replay`: the kiln's [alarms] count here too.
+        shown = "F" if units == "F" else "C" if units == "C" else header.profile.units
+        loaded = from_log(columns, events, started=header.started, profile=header.profile,
+                          outcome=header.outcome, units=shown,
+                          kiln_text=str(header.extra.get("kiln_text") or ""))
+        result = loaded.replay()
     except Exception as exc:  # the analysis is another module's: show its failure in words
         return [f"(the replay analysis could not judge this run: {exc})"]
     lines = [f"run: {result.verdict}"] + [f"  {reason}" for reason in result.reasons[:1]]
     for step in result.steps:
         lines.append(f"{VERDICT_MARK.get(step.verdict, '·')} {step.verdict}: "
-                     f"{step.title(header.profile.units)}")
+                     f"{step.title(shown)}")
         lines += [f"    {reason}" for reason in step.reasons[:2]]
     return lines
 
@@ -91,7 +97,8 @@ class ReplayScreen(Screen[None]):
         self.events: list[Mapping[str, Any]] = []
         self.cursor: float | None = None
         self.zoomed = False
-        self.verdicts: list[str] = []
+        self.verdicts: dict[str, list[str]] = {}
+        """Verdict lines by display units, each written by the analysis in those units."""
 
     def compose(self) -> ComposeResult:
         yield Static("loading the run …", id="replay-title")
@@ -122,8 +129,9 @@ class ReplayScreen(Screen[None]):
         log.started = self.header.started
         log.units = self.app.units
         log.add_events([e for e in self.events if e.get("kind") in KEPT_KINDS])
-        self.verdicts = await asyncio.to_thread(verdict_lines, self.header, self.samples,
-                                                self.events)
+        units = self.app.units
+        self.verdicts[units] = await asyncio.to_thread(verdict_lines, self.header,
+                                                       self.samples, self.events, units)
         self.cursor = self.header.started
         self.show()
 
@@ -151,9 +159,22 @@ class ReplayScreen(Screen[None]):
             f"Replay · run {header.run_id}: {header.profile.name} · "
             f"{format_duration(self.ended - header.started)} · {outcome}")
         self.query_one("#replay-cursor", Static).update(self.cursor_text())
-        words = convert_temperatures("\n".join(self.verdicts), units)
+        lines = self.verdicts.get(units)
+        if lines is None:
+            lines = ["(writing the verdicts in °" + units + " …)"]
+            self.verdicts_in(units)
         self.query_one("#replay-verdicts", Static).update(
-            Text("Verdicts\n", style="bold") + Text(words))
+            Text("Verdicts\n", style="bold") + Text("\n".join(lines)))
+
+    @work(exclusive=True, group="replay-verdicts")
+    async def verdicts_in(self, units: str) -> None:
+        if self.header is None:
+            return
+        lines = await asyncio.to_thread(verdict_lines, self.header, self.samples, self.events,
+                                        units)
+        self.verdicts[units] = lines
+        with contextlib.suppress(NoMatches):  # left the screen meanwhile
+            self.show()
 
     def cursor_text(self) -> Text:
         assert self.header is not None
