@@ -22,7 +22,7 @@ def test_export_then_import_round_trip(tmp_path: Path, monkeypatch: pytest.Monke
     out = tmp_path / "run.csv"
     assert main(["--data", data, "export", "1", "--csv", "-o", str(out)]) == 0
     capsys.readouterr()
-    assert out.read_text().splitlines()[0].startswith("t_s,chamber_c,load_c")
+    assert out.read_text().splitlines()[0].startswith("t_s,utc,chamber_c,load_c")
     assert main(["import", str(out), "--against", str(PROFILE), "--json"]) == 0
     result = json.loads(capsys.readouterr().out)
     assert [s["kind"] for s in result["steps"]] == ["ramp", "hold", "pause", "cool"]

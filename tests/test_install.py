@@ -102,6 +102,23 @@ def test_the_wheel_carries_every_module_profile_and_map(wheel: Path) -> None:
     assert "tuikiln/drivers/maps/generic-pid.toml" in names
 
 
+def test_the_wheel_says_its_license_and_one_version(wheel: Path) -> None:
+    """pyproject takes the version from tuikiln/__init__.py; the license is an SPDX
+    expression (PEP 639: License-Expression) with the MIT text shipped beside it."""
+    namespace: dict[str, object] = {}
+    exec((ROOT / "tuikiln" / "__init__.py").read_text(encoding="utf-8"), namespace)
+    version = namespace["__version__"]
+    assert wheel.name.startswith(f"tuikiln-{version}-"), wheel.name
+    with zipfile.ZipFile(wheel) as zf:
+        names = zf.namelist()
+        (meta,) = [n for n in names if n.endswith(".dist-info/METADATA")]
+        headers = zf.read(meta).decode("utf-8").split("\n\n")[0].splitlines()
+        assert f"Version: {version}" in headers
+        assert "License-Expression: MIT" in headers
+        (licence,) = [n for n in names if n.endswith(".dist-info/licenses/LICENSE")]
+        assert zf.read(licence).decode("utf-8").startswith("MIT License")
+
+
 def test_the_package_list_names_every_subpackage() -> None:
     """Without a wheel: pyproject's `packages` against the folders with an __init__.py."""
     config = tomllib.loads((ROOT / "pyproject.toml").read_text(encoding="utf-8"))

@@ -82,9 +82,12 @@ def _import(path: Path, profile: Path) -> dict[str, Any]:
     return json.loads(out.getvalue())
 
 
-def _foreign(recorded: dict[str, Any], name: str, rows: list[list[str]]) -> Path:
+def _foreign(recorded: dict[str, Any], name: str, rows: list[list[str]],
+             time_column: str = "t_s") -> Path:
     """Another tool's shape: only time and chamber, no step, state, output or setpoint."""
-    return _write(recorded["folder"] / name, ["time", "chamber"], [r[:2] for r in rows])
+    t, chamber = (recorded["header"].index(c) for c in (time_column, "chamber_c"))
+    return _write(recorded["folder"] / name, ["time", "chamber"],
+                  [[r[t], r[chamber]] for r in rows])
 
 
 def _every_10s(rows: list[list[str]]) -> list[list[str]]:
@@ -156,9 +159,10 @@ def test_no_heater_alarm_from_a_log_without_heater_columns(recorded: dict[str, A
     assert "heater is asked" not in words
 
 
-def _whole_trace_parameter(rows: list[list[str]]) -> float:
-    t = np.array([float(r[0]) for r in rows])
-    temp = np.array([float(r[1]) for r in rows])
+def _whole_trace_parameter(header: list[str], rows: list[list[str]]) -> float:
+    i, j = header.index("t_s"), header.index("chamber_c")
+    t = np.array([float(r[i]) for r in rows])
+    temp = np.array([float(r[j]) for r in rows])
     value = temper.trace_parameter(t, temp)
     assert value is not None
     return value
@@ -172,8 +176,24 @@ def test_tempering_parameter_covers_the_whole_trace(recorded: dict[str, Any]) ->
     result = _import(path, recorded["off_band"])
     assert result["steps"][1]["verdict"] == "missed"
     hold = result["temper"]["holds"][0]
-    assert hold["parameter"] == pytest.approx(_whole_trace_parameter(rows), rel=1e-9)
+    whole = _whole_trace_parameter(recorded["header"], rows)
+    assert hold["parameter"] == pytest.approx(whole, rel=1e-9)
     # A 2 h hold at 205 C alone is P = 478.15 K * (20 + log10 2 h) = 9706.9 (Hollomon & Jaffe
     # 1945, Trans. AIME 162; C = 20 from memory): the trace, ramps included, gives a bit more.
     alone = 478.15 * (20.0 + math.log10(2.0))
     assert alone < hold["parameter"] < alone + 60.0
+
+
+def test_absolute_times_of_the_export_read_as_iso(recorded: dict[str, Any]) -> None:
+    # The export's utc column alone (ISO 8601, "Z") times another tool's log just as well.
+    path = _foreign(recorded, "iso.csv", _every_10s(recorded["rows"]), time_column="utc")
+    result = _import(path, recorded["profile"])
+    assert result["verdict"] == "met", result["reasons"]
+    assert result["run"]["started_epoch"] == pytest.approx(_epoch(recorded), abs=0.001)
+
+
+def _epoch(recorded: dict[str, Any]) -> float:
+    from datetime import datetime
+
+    first = recorded["rows"][0][recorded["header"].index("utc")]
+    return datetime.fromisoformat(first).timestamp()

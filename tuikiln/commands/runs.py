@@ -1,5 +1,6 @@
 """`tuikiln runs [--json]` lists the logged runs; `tuikiln export RUN --csv [-o FILE]` writes
-a run's samples as CSV (temperatures in °C, time in seconds from the run's start)."""
+a run's samples as CSV (temperatures in °C, time in seconds from the run's start and as an
+absolute UTC time); `tuikiln export --help` lists the columns and flags (EXPORT_HELP)."""
 
 from __future__ import annotations
 
@@ -15,8 +16,37 @@ from tuikiln.errors import UserError
 
 HELP = "list logged runs, or export one"
 
-CSV_COLUMNS = ("t_s", "chamber_c", "load_c", "core_c", "setpoint_c", "output_pct", "step",
-               "state", "flags")
+CSV_COLUMNS = ("t_s", "utc", "chamber_c", "load_c", "core_c", "setpoint_c", "output_pct",
+               "step", "state", "flags")
+
+
+def _flag_words() -> str:
+    from tuikiln.engine import states as st
+
+    words = ((st.FLAG_NO_READING, "no reading: the device did not answer"),
+             (st.FLAG_SENSOR_FAULT, "sensor fault: the device answered without a temperature"),
+             (st.FLAG_PAUSED, "paused by you"),
+             (st.FLAG_WATCH_ONLY, "watch only: tuikiln did not drive the controller"),
+             (st.FLAG_ALARM, "an alarm was active"),
+             (st.FLAG_CORE_ESTIMATED, "core_c is the estimate (no load thermocouple)"),
+             (st.FLAG_HEAT_OFF, "heat off (a free cool, a pause or the safe state)"))
+    return "\n".join(f"  {bit:>3}  {text}" for bit, text in words)
+
+
+EXPORT_HELP = """\
+columns (one row per sample; an empty cell is a value that was not read):
+  t_s         seconds from the start of the run
+  utc         the same moment as an ISO 8601 UTC time (a simulated run: the simulation's clock)
+  chamber_c   chamber thermocouple, °C
+  load_c      load thermocouple, °C
+  core_c      the load's core, °C (measured, or estimated: see flag 32)
+  setpoint_c  the setpoint tuikiln asked for, °C
+  output_pct  the controller's heater output, %
+  step        the profile step, counted from 0
+  state       the step's state (heating, reaching, evening, holding, slipped, ...)
+  flags       the sum of these bits:
+{flags}
+`tuikiln import FILE --against PROFILE` reads the file back without options."""
 
 
 def add_arguments(parser: argparse.ArgumentParser) -> None:
@@ -25,6 +55,8 @@ def add_arguments(parser: argparse.ArgumentParser) -> None:
         parser.add_argument("run_id", metavar="RUN", help='the run number (see `tuikiln runs`)'
                             ' or "last"')
         parser.add_argument("--csv", action="store_true", help="write CSV (the default)")
+        parser.formatter_class = argparse.RawDescriptionHelpFormatter
+        parser.epilog = EXPORT_HELP.format(flags=_flag_words())
         parser.add_argument("-o", "--output", metavar="FILE", default=None,
                             help="write to FILE instead of the standard output")
     else:
@@ -48,6 +80,14 @@ def run(args: argparse.Namespace) -> int:
         return _list(args, log)
     finally:
         log.close()
+
+
+def _utc(t: float) -> str:
+    """Engine-clock seconds as an ISO 8601 UTC time, to the tenth of a second."""
+    from datetime import UTC, datetime
+
+    return datetime.fromtimestamp(round(t, 1), UTC).isoformat(timespec="milliseconds"
+                                                              ).replace("+00:00", "Z")
 
 
 def _when(t: float | None) -> str:
@@ -94,7 +134,7 @@ def _export(args: argparse.Namespace, log: Any) -> int:
         columns = [samples[c] for c in ("chamber_c", "load_c", "core_c", "setpoint_c",
                                          "output_pct")]
         for i in range(len(t)):
-            row: list[Any] = [f"{t[i]:.1f}"]
+            row: list[Any] = [f"{t[i]:.1f}", _utc(float(samples["t"][i]))]
             row += ["" if math.isnan(c[i]) else f"{c[i]:.2f}" for c in columns]
             state = int(samples["state"][i])
             row += [int(samples["step"][i]),
