@@ -570,3 +570,23 @@ def test_no_remote_command_moves_a_pause_step_on(payload):
     drive(rules, oven, 5, t)
     if not rules.ended:  # an abort ends the run (heat off); nothing else may go on
         assert rules.stepper.index == 0
+
+
+def test_a_locked_log_keeps_samples_and_writes_them_when_free(tmp_path):
+    import sqlite3
+
+    from tuikiln.runlog import RunLog
+
+    log = RunLog.in_folder(tmp_path)
+    recorder = log.start_run(kiln="k", profile="p", started=0.0)
+    holder = sqlite3.connect(tmp_path / "runs.sqlite", isolation_level=None)
+    holder.execute("BEGIN IMMEDIATE")  # another program writing, holding the write lock
+    for i in range(10):
+        recorder.sample(float(i), 100.0, None, None, 100.0, 10.0, 0, 1, 0)
+    assert not recorder.flush(force=True)
+    assert recorder.trouble and "locked" in recorder.trouble
+    holder.execute("ROLLBACK")
+    holder.close()
+    assert recorder.end("completed", 10.0)
+    assert len(log.samples(recorder.run_id)["t"]) == 10
+    recorder.close()

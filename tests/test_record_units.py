@@ -62,3 +62,11 @@ def test_verdicts_in_fahrenheit_keep_a_band_a_band(tmp_path: Path,
     # 8 K is 14.4 °F of difference (a kelvin is 1.8 °F, NIST SP 811 B.9); 225 °C is 437 °F.
     assert "the band is ± 14 °F" in in_f and "437 °F" in in_f
     assert "°C" not in in_f and "± -" not in in_f and "± 46" not in in_f
+
+
+def test_event_words_keep_a_band_a_band() -> None:
+    from tuikiln.ui.runfeed import convert_temperatures
+
+    # 8 K = 14.4 °F and 16 °F = 8.9 K of difference (NIST SP 811 B.9): never 46 °F or -9 °C.
+    assert convert_temperatures("at 150 °C ± 8 °C", "F") == "at 302 °F ± 14 °F"
+    assert convert_temperatures("± 16 °F", "C") == "± 9 °C"

@@ -40,7 +40,7 @@ def test_random_profiles_run_clean(request):
     def check(trial):
         import asyncio
 
-        result = asyncio.run(run_profile(trial.toml()))
+        result = asyncio.run(run_profile(trial.toml(), seed=trial.seed))
         assert (result.outcome, result.raised) == (st.COMPLETED, []), trial.toml()
 
     check()
@@ -56,7 +56,7 @@ def test_random_profiles_with_a_fault_raise_the_right_alarm(request):
         trial.steps.append({"hold": "3h", "start": "reached"})
         table, right = FAULTS[fault]
         faults = f'[[device.fault]]\nat = "{at_min}m"\n{table}'
-        result = asyncio.run(run_profile(trial.toml(), faults=faults))
+        result = asyncio.run(run_profile(trial.toml(), seed=trial.seed, faults=faults))
         critical = [code for code in result.raised if code in right]
         assert critical and result.outcome == st.STOPPED_BY_ALARM, (fault, at_min, trial.toml(),
                                                                     result.raised)

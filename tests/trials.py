@@ -45,6 +45,8 @@ FAULTS: dict[str, tuple[str, frozenset[str]]] = {
 class Trial:
     steps: list[dict] = field(default_factory=list)
     units: str = "C"
+    seed: int = 1
+    """The simulator's seed: its reading noise."""
 
     def toml(self) -> str:
         lines = [f'name = "trial"\nunits = "{self.units}"']
@@ -69,7 +71,7 @@ class Trial:
 def trials(draw: hs.DrawFn, *, max_steps: int = 5) -> Trial:
     """Any order of ramps (max or rated), holds (either start rule, an own band or not),
     cools (rated or free) and pauses, from near room to near the kiln's maximum."""
-    trial = Trial(units=draw(hs.sampled_from(["C", "F"])))
+    trial = Trial(units=draw(hs.sampled_from(["C", "F"])), seed=draw(hs.integers(1, 999)))
     now_c = ROOM_C
     for _ in range(draw(hs.integers(1, max_steps))):
         kinds = ["hold", "pause"]

@@ -41,6 +41,7 @@ simulated run); `runs.started` is on the same clock, `runs.wall_started` on the 
 
 from __future__ import annotations
 
+import contextlib
 import json
 import os
 import sqlite3
@@ -64,6 +65,11 @@ _FLOAT_COLUMNS = SAMPLE_COLUMNS[:6]
 _INT_COLUMNS = SAMPLE_COLUMNS[6:]
 _NULL = -1.0e308  # stands for NULL while rows stream into numpy (NaN cannot be stored)
 RETRY_AFTER_S = 5.0
+# The engine writes inside its loop: a log another program holds locked must cost a tick a
+# moment, not ten seconds (samples stay in memory and the write is retried), except for the
+# run's end, which waits as long as a reader does.
+WRITER_BUSY_MS = 250
+READER_BUSY_MS = 10_000
 BLOCK_ROWS = 1024
 # Column layout of one packed block (in this order, each n values, little-endian).
 _BLOCK_TYPES: tuple[tuple[str, str], ...] = (
@@ -234,7 +240,7 @@ def _connect(path: Path, *, writer: bool = False) -> sqlite3.Connection:
         conn.execute("PRAGMA wal_autocheckpoint=0")
     else:
         conn.execute("PRAGMA synchronous=NORMAL")
-    conn.execute("PRAGMA busy_timeout=10000")
+    conn.execute(f"PRAGMA busy_timeout={WRITER_BUSY_MS if writer else READER_BUSY_MS}")
     return conn
 
 
@@ -605,6 +611,8 @@ class RunRecorder:
         return len(self._samples) + len(self._events)
 
     def end(self, outcome: str, ended: float) -> bool:
+        with contextlib.suppress(sqlite3.Error):
+            self.conn.execute(f"PRAGMA busy_timeout={READER_BUSY_MS}")
         ok = self.flush(force=True)
         try:
             self.conn.execute("UPDATE runs SET outcome = ?, ended = ? WHERE id = ?",

@@ -33,6 +33,7 @@ MODULES = [
     "watch_cost",
     "equalize",
     "fuzz_hostile",
+    "trials",
 ]
 
 

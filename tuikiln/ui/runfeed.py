@@ -127,8 +127,9 @@ class SampleBuffer:
 
 
 # "1750 °F", "955°C", "-3.5 °C"; a difference is followed by words such as "above"/"per".
+# A value after "±" is a band's half width: a difference too.
 _TEMPERATURE_TEXT = re.compile(
-    r"(?P<value>[-+]?\d+(?:\.\d+)?)\s?°(?P<unit>[CF])(?P<rate>/h|/min)?"
+    r"(?P<pm>±\s?)?(?P<value>[-+]?\d+(?:\.\d+)?)\s?°(?P<unit>[CF])(?P<rate>/h|/min)?"
     r"(?P<after>\s+(?:above|below|over|under|out|off|from|per|too)\b)?"
 )
 
@@ -145,14 +146,14 @@ def convert_temperatures(text: str, units: Units) -> str:
         if unit == units:
             return match.group(0)
         value = float(match.group("value"))
-        difference = bool(match.group("rate") or match.group("after"))
+        difference = bool(match.group("rate") or match.group("after") or match.group("pm"))
         if difference:
             converted = delta_from_c(delta_to_c(value, unit), units)
         else:
             converted = from_c(to_c(value, unit), units)
         digits = len(match.group("value").partition(".")[2])
         number = f"{converted:.{digits}f}"
-        return (f"{number} {symbol(units)}{match.group('rate') or ''}"
+        return (f"{match.group('pm') or ''}{number} {symbol(units)}{match.group('rate') or ''}"
                 f"{match.group('after') or ''}")
 
     return _TEMPERATURE_TEXT.sub(replace, text)
