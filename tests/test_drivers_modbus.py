@@ -124,6 +124,8 @@ async def test_writes_seen_by_an_independent_master(rig) -> None:
     device = ModbusDevice(settings(wire.link_path), parse_map(TEST_MAP, "test.toml"))
     async with device:
         await device.write_setpoint(-5.0)  # below the map's min = 0: clamped
+        await device.write_setpoint(500.0)  # the first after the safe value: written at once
+        assert device.guard.pending_c is None
         await device.write_setpoint(912.34)  # held back by the guard's interval
         assert device.guard.pending_c == pytest.approx(912.34)
     device = ModbusDevice(settings(wire.link_path, setpoint_min_interval_s=0.0),
