@@ -5,9 +5,13 @@ from __future__ import annotations
 
 import argparse
 import sys
+from typing import TYPE_CHECKING
 
 from tuikiln.errors import UserError
 from tuikiln.ui.glyphs import add_glyphs_option, glyphs_from_args
+
+if TYPE_CHECKING:
+    from tuikiln.runlog import RunInfo
 
 HELP = "look back at a past run on screen: chart against the plan, cursor, verdicts, notes"
 
@@ -30,6 +34,7 @@ def run(args: argparse.Namespace) -> int:
     runs = launcher.runs(100000)
     if not runs:
         raise UserError(f"there are no runs in {launcher.data_dir} yet")
+    chosen: RunInfo | None
     if args.run_id == "last":
         chosen = runs[0]
     else:

@@ -5,6 +5,7 @@ from __future__ import annotations
 import asyncio
 import time
 from pathlib import Path
+from typing import TYPE_CHECKING
 
 from rich.text import Text
 from textual import events, work
@@ -26,6 +27,11 @@ from tuikiln.ui.screens.preview import PreviewScreen
 from tuikiln.ui.screens.replay import ReplayScreen
 from tuikiln.ui.widgets.key_footer import KeyFooter
 from tuikiln.units import format_duration, format_temp
+
+if TYPE_CHECKING:
+    from textual import getters
+
+    from tuikiln.ui.app import TuikilnApp
 
 ABOUT = ("Home. Pick a profile and press Enter to see its plan (s there starts it), or pick a "
          "past run and press Enter to replay it. Tab moves between the lists.")
@@ -49,6 +55,9 @@ def device_words(launcher: Launcher) -> str:
 
 
 class HomeScreen(Screen[None]):
+    if TYPE_CHECKING:  # the app every screen runs in, for the checker (no runtime check)
+        app = getters.app(TuikilnApp)
+
     BINDINGS = [
         # Priority: the lists would take Enter for themselves and the footer hide it.
         Binding("enter", "open", "Open", priority=True),
@@ -85,7 +94,7 @@ class HomeScreen(Screen[None]):
         profiles.border_title = "Profiles (Enter: plan and start)"
         runs = self.query_one("#home-runs", DataTable)
         runs.border_title = "Recent runs (Enter: replay or watch)"
-        self.watch(self.app, "units", lambda _u: self.action_refresh(), init=False)
+        self.watch(self.app, "units", self.units_changed, init=False)
         self.action_refresh()
         # A run started or ended elsewhere (another terminal) shows in the kiln line.
         self.set_interval(GOING_REFRESH_S, self.refresh_going)
@@ -112,6 +121,9 @@ class HomeScreen(Screen[None]):
     @work(exclusive=True, group="home-going")
     async def refresh_going(self) -> None:
         self.show_kiln(await asyncio.to_thread(self.launcher.going_run))
+
+    def units_changed(self, _units: str) -> None:
+        self.action_refresh()
 
     @work(exclusive=True, group="home-refresh")
     async def action_refresh(self) -> None:

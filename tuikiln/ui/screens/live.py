@@ -10,7 +10,7 @@ from __future__ import annotations
 import asyncio
 import time
 from collections.abc import Callable, Mapping
-from typing import Any
+from typing import TYPE_CHECKING, Any
 
 from textual import events, work
 from textual.app import ComposeResult
@@ -35,6 +35,11 @@ from tuikiln.ui.widgets.textupdate import update_in_place
 from tuikiln.ui.words import ACK_KEY, unacknowledged
 from tuikiln.units import format_duration
 
+if TYPE_CHECKING:
+    from textual import getters
+
+    from tuikiln.ui.app import TuikilnApp
+
 ABOUT = ("The live run. The chart shows the chamber, the load (or its estimated core), the "
          "setpoint so far and the plan ahead of now (dashed). Leaving with q leaves the run "
          "going; come back with `tuikiln watch`.")
@@ -43,6 +48,9 @@ BELL_KINDS = ("alarm-raised", "operator-needed")
 
 class LiveScreen(Screen[None]):
     """Follows one run through a RunLink."""
+
+    if TYPE_CHECKING:  # the app every screen runs in, for the checker (no runtime check)
+        app = getters.app(TuikilnApp)
 
     # Every key but the bell's fits the footer at 80 columns (short words, compact footer);
     # the help (?) gives each its long words. Order: the run's keys first, then the way out.
@@ -201,7 +209,7 @@ class LiveScreen(Screen[None]):
             self.app.bell()
 
     def maybe_auto_acknowledge(self) -> None:
-        waiting = bool(self.status) and self.status.get("step_state") == "waiting-you"
+        waiting = self.status is not None and self.status.get("step_state") == "waiting-you"
         if not waiting:
             self.waiting_since = None
             self.show_notice("")
@@ -238,6 +246,13 @@ class LiveScreen(Screen[None]):
 
     # ----- commands -----
 
+    def send_if_yes(self, name: str) -> Callable[[bool | None], None]:
+        """The answer to a confirmation: send the command `name` on a yes."""
+        def answer(yes: bool | None) -> None:
+            if yes:
+                self.send(name)
+        return answer
+
     @work(group="live-commands")
     async def send(self, name: str, arg: str | None = None) -> None:
         try:
@@ -267,17 +282,20 @@ class LiveScreen(Screen[None]):
                 words = f"step {index + 1} ({describe_step(step, self.app.units)})"
         self.app.push_screen(
             ConfirmScreen(f"Skip {words} and go on to the next one?", yes="skip it"),
-            lambda yes: self.send("skip") if yes else None)
+            self.send_if_yes("skip"))
 
     def action_abort(self) -> None:
         self.app.push_screen(
             ConfirmScreen("Abort the run? The heating stops and the setpoint goes down; "
                           "the run cannot be resumed.", yes="abort the run"),
-            lambda yes: self.send("abort") if yes else None)
+            self.send_if_yes("abort"))
 
     def action_note(self) -> None:
-        self.app.push_screen(NoteScreen(),
-                             lambda text: self.send("note", text) if text else None)
+        def take_note(text: str | None) -> None:
+            if text:
+                self.send("note", text)
+
+        self.app.push_screen(NoteScreen(), take_note)
 
     def action_switch_units(self) -> None:
         self.app.units = "F" if self.app.units == "C" else "C"

@@ -6,6 +6,7 @@ from __future__ import annotations
 import time
 from collections.abc import Callable
 from pathlib import Path
+from typing import TYPE_CHECKING
 
 from rich.text import Text
 from textual.app import ComposeResult
@@ -23,6 +24,11 @@ from tuikiln.ui.screens.help import SAFETY, HelpScreen
 from tuikiln.ui.widgets.chart import TemperatureChart
 from tuikiln.ui.widgets.key_footer import KeyFooter
 from tuikiln.units import format_duration, format_temp
+
+if TYPE_CHECKING:
+    from textual import getters
+
+    from tuikiln.ui.app import TuikilnApp
 
 ABOUT = ("A profile before it runs. Steps marked … are open-ended: their length is known "
          "only at run time (a 'max' ramp, waiting for the load to even out, a free cool, a "
@@ -49,6 +55,9 @@ def summary_text(plan: Plan, units: str, now: float) -> Text:
 
 class PreviewScreen(Screen[None]):
     """Opened from home on a profile; s starts it (after a summary and a yes)."""
+
+    if TYPE_CHECKING:  # the app every screen runs in, for the checker (no runtime check)
+        app = getters.app(TuikilnApp)
 
     BINDINGS = [
         Binding("s", "start", "Start this run"),

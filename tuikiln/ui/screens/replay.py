@@ -6,7 +6,7 @@ from __future__ import annotations
 import asyncio
 import contextlib
 from collections.abc import Mapping, Sequence
-from typing import Any
+from typing import TYPE_CHECKING, Any
 
 import numpy as np
 from rich.text import Text
@@ -26,6 +26,11 @@ from tuikiln.ui.widgets.chart import TemperatureChart
 from tuikiln.ui.widgets.event_log import EventLog
 from tuikiln.ui.widgets.key_footer import KeyFooter
 from tuikiln.units import format_duration, format_temp
+
+if TYPE_CHECKING:
+    from textual import getters
+
+    from tuikiln.ui.app import TuikilnApp
 
 ABOUT = ("Replay of a past run. The dashed line is the plan, each step drawn from the "
          "moment it really began. Move the cursor with ← → (Shift: ten times further), "
@@ -76,6 +81,9 @@ def verdict_lines(header: RunHeader, samples: SampleBuffer,
 
 
 class ReplayScreen(Screen[None]):
+    if TYPE_CHECKING:  # the app every screen runs in, for the checker (no runtime check)
+        app = getters.app(TuikilnApp)
+
     BINDINGS = [
         # Priority: the event log below would take these keys for scrolling.
         Binding("left", "move(-1)", "earlier", priority=True),
