@@ -503,6 +503,7 @@ class _Checker:
             self.problem(path + ("max",), "must be above min")
         if len(self.problems) > before:
             return None
+        assert fc is not None and address is not None  # a missing one was a problem above
         return Register(
             name=str(path[-1]), fc=fc, address=address, type=reg_type, scale=float(scale),
             word_order=word_order, units=units, open_values=tuple(float(v) for v in open_values),

@@ -82,7 +82,7 @@ class _Parser(argparse.ArgumentParser):
         self.exit(1, f"{self.prog}: {message}\n")
 
 
-def _global_options() -> argparse.ArgumentParser:
+def _global_options() -> _Parser:
     """Options every command takes, before or after its name."""
     common = _Parser(add_help=False)
     common.add_argument(
