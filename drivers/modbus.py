@@ -271,8 +271,8 @@ class ModbusDevice(Device):
 
     # ---- Device ------------------------------------------------------------------
 
-    @property  # type: ignore[override]
-    def written_setpoint_c(self) -> float | None:
+    @property
+    def written_setpoint_c(self) -> float | None:  # type: ignore[override]
         """What the controller was last really sent; a value the guard holds is not."""
         return self.guard.last_written_c
 
@@ -323,9 +323,9 @@ class ModbusDevice(Device):
             running = status.pop("running")
         channels: dict[str, float] = {}
         for name, reg in self.map.channels.items():
-            value, _ = self._temperature(reg, raw)
-            if value is not None:
-                channels[name] = value
+            celsius, _ = self._temperature(reg, raw)
+            if celsius is not None:
+                channels[name] = celsius
         return Reading(
             time=self.clock.now(), chamber_c=chamber, load_c=load, setpoint_c=setpoint,
             output_pct=output, sensor_fault=sensor_fault, running=running,

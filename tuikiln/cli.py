@@ -86,7 +86,7 @@ class _Parser(argparse.ArgumentParser):
         self.exit(1, f"{self.prog}: {message}\n")
 
 
-def _global_options() -> argparse.ArgumentParser:
+def _global_options() -> _Parser:
     """Options every command takes, before or after its name."""
     common = _Parser(add_help=False)
     common.add_argument(
@@ -169,7 +169,7 @@ def main(argv: Sequence[str] | None = None) -> int:
     argv = list(sys.argv[1:] if argv is None else argv)
     unknown = _unknown_command(argv)
     if unknown is not None:
-        from tuikiln.limits import suggest
+        from tuikiln.drivers.checking import suggest
 
         print(f'tuikiln: unknown command "{unknown}"{suggest(unknown, list(COMMANDS))}; '
               "`tuikiln --help` lists them", file=sys.stderr)

@@ -293,7 +293,8 @@ class RunLog:
         Temperatures and output come back as float64 (stored as float32: 0.0001 °C steps at
         1000 °C, far below any thermocouple's resolution).
         """
-        where, params = "run_id = ?", [run_id]
+        where = "run_id = ?"
+        params: list[float] = [run_id]
         if since_t is not None:
             where += " AND last_t > ?"
             params.append(since_t)

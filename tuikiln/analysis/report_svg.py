@@ -135,9 +135,9 @@ def chart_svg(result: Replay) -> str:
     for name, colour, dash in SERIES[1:] + SERIES[:1]:
         if name not in series:
             continue
-        x, y = series[name]
+        series_h, series_c = series[name]
         dashed = f' stroke-dasharray="{dash}"' if dash else ""
-        out.append(f'<path d="{_path(sx(x), sy(y))}" fill="none" stroke="{colour}" '
+        out.append(f'<path d="{_path(sx(series_h), sy(series_c))}" fill="none" stroke="{colour}" '
                    f'stroke-width="1.6"{dashed}><title>{name}</title></path>')
     # Alarms: a line and a marker where each was raised.
     for alarm in result.alarms:

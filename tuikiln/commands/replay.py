@@ -152,7 +152,7 @@ def _limit_overrides(args: argparse.Namespace, units: str) -> dict[str, float]:
         name = str(path[-1]) if path else ""
         problems.append(f"--{name.replace('_', '-')}: {message}")
 
-    values = parse_limits(table, units, report, ("options",))  # type: ignore[arg-type]
+    values = parse_limits(table, units, report, ("options",))
     if problems:
         raise UserError("\n".join(problems))
     return values
