@@ -16,6 +16,7 @@ library line is kept, for a bug report.
 
 from __future__ import annotations
 
+import io
 import logging
 import os
 import sys
@@ -96,7 +97,7 @@ class _LazyFile(logging.FileHandler):
     """A log file whose folder, and the file, are made at the first line logged: a screen
     that logs nothing leaves nothing behind (the demo's data folder is temporary)."""
 
-    def _open(self):  # type: ignore[no-untyped-def]  # logging's own hook
+    def _open(self) -> io.TextIOWrapper:  # logging's own hook, called at the first record
         from tuikiln.runlog import private_folder
 
         private_folder(Path(self.baseFilename).parent)
