@@ -32,6 +32,10 @@ LAYERS: dict[str, tuple[str, ...]] = {
         "tuikiln.drivers.maps", "tuikiln.drivers.modbus", "tuikiln.drivers.serialport",
         "tuikiln.drivers.simdevice",
     ),
+    # Plain helpers every layer above the simulator shares (settings tables, "did you mean",
+    # TOML lines). They live in drivers/ because drivers may not import tuikiln; they import
+    # only the standard library.
+    "shared": ("tuikiln.drivers.checking", "tuikiln.drivers.tomllines"),
     # Example profiles (a data package).
     "data": ("tuikiln.profiles",),
     # Words, numbers and names everything else shares; they import only each other.
@@ -48,6 +52,7 @@ LAYERS: dict[str, tuple[str, ...]] = {
         "tuikiln.analysis.csvlog", "tuikiln.analysis.csvsniff", "tuikiln.analysis.quench",
         "tuikiln.analysis.replay", "tuikiln.analysis.temper", "tuikiln.analysis.whatif",
         "tuikiln.analysis.report", "tuikiln.analysis.report_svg",
+        "tuikiln.ovenmodel", "tuikiln.simc",
     ),
     # The kiln file and the alert channels it configures.
     "setup": (
@@ -69,7 +74,7 @@ LAYERS: dict[str, tuple[str, ...]] = {
         "tuikiln.ui.screens.preview", "tuikiln.ui.screens.replay",
         "tuikiln.ui.widgets", "tuikiln.ui.widgets.alarm_banner", "tuikiln.ui.widgets.chart",
         "tuikiln.ui.widgets.event_log", "tuikiln.ui.widgets.readout",
-        "tuikiln.ui.widgets.textupdate",
+        "tuikiln.ui.widgets.textupdate", "tuikiln.ui.glyphs", "tuikiln.ui.widgets.key_footer",
     ),
     # The command line: the top, may use everything.
     "commands": (
@@ -86,16 +91,17 @@ LAYERS: dict[str, tuple[str, ...]] = {
 # drivers/simdevice.py and `tuikiln sim serve` (checked below, module by module).
 ALLOWED: dict[str, set[str]] = {
     "simulator": set(),
-    "drivers": {"simulator"},
+    "shared": set(),
+    "drivers": {"shared", "simulator"},
     "data": set(),
-    "base": set(),
-    "core": {"base"},
-    "setup": {"base", "core", "drivers"},
-    "record": {"base", "core", "setup"},
-    "host": {"base", "core", "setup", "record", "drivers"},
-    "ui": {"base", "core", "setup", "record", "host", "drivers"},
-    "commands": {"base", "core", "setup", "record", "host", "ui", "drivers", "simulator",
-                 "data"},
+    "base": {"shared"},
+    "core": {"shared", "base"},
+    "setup": {"shared", "base", "core", "drivers"},
+    "record": {"shared", "base", "core", "setup"},
+    "host": {"shared", "base", "core", "setup", "record", "drivers"},
+    "ui": {"shared", "base", "core", "setup", "record", "host", "drivers"},
+    "commands": {"shared", "base", "core", "setup", "record", "host", "ui", "drivers",
+                 "simulator", "data"},
 }
 
 # The domain core: pure rules, no screen, no serial port, no clock.

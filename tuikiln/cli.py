@@ -156,7 +156,7 @@ def main(argv: Sequence[str] | None = None) -> int:
     argv = list(sys.argv[1:] if argv is None else argv)
     unknown = _unknown_command(argv)
     if unknown is not None:
-        from tuikiln.limits import suggest
+        from tuikiln.drivers.checking import suggest
 
         print(f'tuikiln: unknown command "{unknown}"{suggest(unknown, list(COMMANDS))}; '
               "`tuikiln --help` lists them", file=sys.stderr)

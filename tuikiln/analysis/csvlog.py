@@ -14,7 +14,6 @@ from __future__ import annotations
 
 import csv
 import dataclasses
-import difflib
 import io
 import math
 from collections.abc import Callable, Sequence
@@ -26,6 +25,7 @@ from typing import TypeVar
 import numpy as np
 
 from tuikiln.analysis import csvsniff
+from tuikiln.drivers.checking import suggest
 from tuikiln.errors import FileProblems, Problem
 from tuikiln.units import ABSOLUTE_ZERO_C, UNITS, f_to_c, symbol, to_c
 
@@ -272,10 +272,7 @@ def _find_columns(
             continue
         listed = ", ".join(f'"{n}"' for n in names if n) or "none"
         message = f'no {role} column "{name}" (the columns are {listed})'
-        close = difflib.get_close_matches(name, names, n=1, cutoff=0.5)
-        if close:
-            message += f'; did you mean "{close[0]}"?'
-        problems.add(line, message)
+        problems.add(line, message + suggest(name, [n for n in names if n], cutoff=0.5))
     return found
 
 

@@ -13,7 +13,7 @@ from textual.app import ComposeResult
 from textual.binding import Binding
 from textual.containers import Horizontal, Vertical
 from textual.screen import Screen
-from textual.widgets import DataTable, Footer, Static
+from textual.widgets import DataTable, Static
 
 from tuikiln.control import ActiveRun
 from tuikiln.errors import UserError
@@ -25,6 +25,7 @@ from tuikiln.ui.screens.help import SAFETY, HelpScreen
 from tuikiln.ui.screens.live import LiveScreen
 from tuikiln.ui.screens.preview import PreviewScreen
 from tuikiln.ui.screens.replay import ReplayScreen
+from tuikiln.ui.widgets.key_footer import KeyFooter
 from tuikiln.units import format_duration, format_temp
 
 if TYPE_CHECKING:
@@ -58,7 +59,8 @@ class HomeScreen(Screen[None]):
         app = getters.app(TuikilnApp)
 
     BINDINGS = [
-        Binding("enter", "open", "Open"),
+        # Priority: the lists would take Enter for themselves and the footer hide it.
+        Binding("enter", "open", "Open", priority=True),
         Binding("w", "watch", "Watch the going run"),
         Binding("tab", "app.focus_next", "Next list", show=False),
         Binding("g", "refresh", "Refresh"),
@@ -81,7 +83,7 @@ class HomeScreen(Screen[None]):
                 yield DataTable(id="home-profiles", cursor_type="row", zebra_stripes=True)
             yield DataTable(id="home-runs", cursor_type="row", zebra_stripes=True)
         yield Static(SAFETY, id="home-help")
-        yield Footer()
+        yield KeyFooter()
 
     def on_resize(self, event: events.Resize) -> None:
         # Below 120 columns the two tables cut their columns off: stack them (app.tcss).

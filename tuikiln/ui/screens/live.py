@@ -18,7 +18,7 @@ from textual.binding import Binding
 from textual.containers import Horizontal, Vertical
 from textual.css.query import NoMatches
 from textual.screen import Screen
-from textual.widgets import Footer, Static
+from textual.widgets import Static
 
 from tuikiln.profile import Pause
 from tuikiln.ui.chartdata import LAST_HOUR, WHOLE_RUN, live_chart
@@ -29,6 +29,7 @@ from tuikiln.ui.screens.note import NoteScreen
 from tuikiln.ui.widgets.alarm_banner import AlarmBanner
 from tuikiln.ui.widgets.chart import TemperatureChart
 from tuikiln.ui.widgets.event_log import EventLog
+from tuikiln.ui.widgets.key_footer import KeyFooter
 from tuikiln.ui.widgets.readout import Readout
 from tuikiln.ui.widgets.textupdate import update_in_place
 from tuikiln.ui.words import ACK_KEY, unacknowledged
@@ -51,19 +52,19 @@ class LiveScreen(Screen[None]):
     if TYPE_CHECKING:  # the app every screen runs in, for the checker (no runtime check)
         app = getters.app(TuikilnApp)
 
-    # Footer order is what a narrow terminal keeps: the keys of the run first, then the
-    # way out and help, then the view (at 80 columns the last ones are cut off).
+    # Every key but the bell's fits the footer at 80 columns (short words, compact footer);
+    # the help (?) gives each its long words. Order: the run's keys first, then the way out.
     BINDINGS = [
-        Binding("a", "acknowledge", "Acknowledge"),
-        Binding("p", "pause", "Pause"),
-        Binding("r", "resume", "Resume"),
-        Binding("s", "skip", "Skip"),
-        Binding("x", "abort", "Abort"),
-        Binding("n", "note", "Note"),
-        Binding("q", "leave", "Leave"),
-        Binding("question_mark,f1", "help", "Help"),
-        Binding("u", "switch_units", "°C/°F"),
-        Binding("z", "zoom", "Zoom"),
+        Binding("a", "acknowledge", "Ack", tooltip="Acknowledge the alarms or the pause"),
+        Binding("p", "pause", "Pause", tooltip="Pause: hold the setpoint, stop the clocks"),
+        Binding("r", "resume", "Resume", tooltip="Resume a paused run"),
+        Binding("s", "skip", "Skip", tooltip="Skip to the next step (asks first)"),
+        Binding("x", "abort", "Abort", tooltip="Abort: heat off, setpoint down (asks first)"),
+        Binding("n", "note", "Note", tooltip="Add a note to the run's log"),
+        Binding("q", "leave", "Leave", tooltip="Leave the screen; the run goes on"),
+        Binding("question_mark,f1", "help", "Help", tooltip="Every key, with what it does"),
+        Binding("u", "switch_units", "°C/°F", tooltip="Show °C or °F"),
+        Binding("z", "zoom", "Zoom", tooltip="Chart: the whole run or the last hour"),
         Binding("b", "toggle_bell", "Bell on/off", show=False),
     ]
 
@@ -104,7 +105,7 @@ class LiveScreen(Screen[None]):
                 yield Readout(id="live-readout")
         yield AlarmBanner(id="live-alarms")
         yield EventLog(id="live-events")
-        yield Footer()
+        yield KeyFooter()
 
     def on_mount(self) -> None:
         self.bell_on = bool(getattr(self.app, "bell_on", True))

@@ -13,7 +13,7 @@ from textual.app import ComposeResult
 from textual.binding import Binding
 from textual.containers import Vertical
 from textual.screen import Screen
-from textual.widgets import DataTable, Footer, Static
+from textual.widgets import DataTable, Static
 
 from tuikiln.errors import FileProblems, UserError
 from tuikiln.plan import Plan, plan_profile
@@ -22,6 +22,7 @@ from tuikiln.ui.chartdata import preview_chart
 from tuikiln.ui.screens.confirm import ConfirmScreen
 from tuikiln.ui.screens.help import SAFETY, HelpScreen
 from tuikiln.ui.widgets.chart import TemperatureChart
+from tuikiln.ui.widgets.key_footer import KeyFooter
 from tuikiln.units import format_duration, format_temp
 
 if TYPE_CHECKING:
@@ -89,7 +90,7 @@ class PreviewScreen(Screen[None]):
                 yield TemperatureChart(id="preview-chart")
                 yield Static("", id="preview-summary")
                 yield DataTable(id="preview-steps", cursor_type="row", zebra_stripes=True)
-        yield Footer()
+        yield KeyFooter()
 
     def on_mount(self) -> None:
         self.watch(self.app, "units", self.show, init=True)

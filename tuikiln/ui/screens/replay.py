@@ -16,7 +16,7 @@ from textual.binding import Binding
 from textual.containers import Horizontal, VerticalScroll
 from textual.css.query import NoMatches
 from textual.screen import Screen
-from textual.widgets import Footer, Static
+from textual.widgets import Static
 
 from tuikiln.profile import describe_step
 from tuikiln.ui.chartdata import replay_chart
@@ -24,6 +24,7 @@ from tuikiln.ui.runfeed import RunHeader, RunLink, SampleBuffer
 from tuikiln.ui.screens.help import HelpScreen
 from tuikiln.ui.widgets.chart import TemperatureChart
 from tuikiln.ui.widgets.event_log import EventLog
+from tuikiln.ui.widgets.key_footer import KeyFooter
 from tuikiln.units import format_duration, format_temp
 
 if TYPE_CHECKING:
@@ -116,7 +117,7 @@ class ReplayScreen(Screen[None]):
                 yield Static("", id="replay-cursor")
                 yield Static("", id="replay-verdicts")
         yield EventLog(id="replay-events")
-        yield Footer()
+        yield KeyFooter()
 
     def on_mount(self) -> None:
         self.watch(self.app, "units", self.units_changed, init=False)
