@@ -25,6 +25,9 @@ CORE_MODULES = [
     "tuikiln.analysis.temper",
     "tuikiln.analysis.quench",
     "tuikiln.analysis.replay",
+    "tuikiln.ovenmodel",
+    "tuikiln.ovenmodel_plan",
+    "tuikiln.simc",
 ]
 
 
