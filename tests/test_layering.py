@@ -52,7 +52,7 @@ LAYERS: dict[str, tuple[str, ...]] = {
         "tuikiln.analysis.csvlog", "tuikiln.analysis.csvsniff", "tuikiln.analysis.quench",
         "tuikiln.analysis.replay", "tuikiln.analysis.temper", "tuikiln.analysis.whatif",
         "tuikiln.analysis.report", "tuikiln.analysis.report_svg",
-        "tuikiln.ovenmodel", "tuikiln.simc",
+        "tuikiln.ovenmodel", "tuikiln.ovenmodel_plan", "tuikiln.simc",
     ),
     # The kiln file and the alert channels it configures.
     "setup": (
@@ -60,8 +60,10 @@ LAYERS: dict[str, tuple[str, ...]] = {
         "tuikiln.alerts.fanout", "tuikiln.alerts.hooks", "tuikiln.alerts.mqtt",
         "tuikiln.alerts.remote",
     ),
-    # The run log, the control socket, and the one loader from a log to a replay.
-    "record": ("tuikiln.runlog", "tuikiln.control", "tuikiln.analysis.loading"),
+    # The files the program keeps: the run log, the control socket, the one loader from a
+    # log to a replay, learned oven models, its own log of messages.
+    "record": ("tuikiln.runlog", "tuikiln.control", "tuikiln.analysis.loading",
+               "tuikiln.ovenmodel_store", "tuikiln.logsetup"),
     # The engine's host: the async loop, restart recovery, the safe state.
     "host": ("tuikiln.engine.runner", "tuikiln.engine.recovery", "tuikiln.engine.safety"),
     # Screens and what feeds them.
@@ -84,6 +86,7 @@ LAYERS: dict[str, tuple[str, ...]] = {
         "tuikiln.commands.replay", "tuikiln.commands.review", "tuikiln.commands.run",
         "tuikiln.commands.runs", "tuikiln.commands.service", "tuikiln.commands.sim",
         "tuikiln.commands.temper", "tuikiln.commands.thermocouple", "tuikiln.commands.watch",
+        "tuikiln.commands.learn",
     ),
 }
 
