@@ -14,6 +14,7 @@ from __future__ import annotations
 
 import csv
 import dataclasses
+import functools
 import io
 import math
 from collections.abc import Callable, Sequence
@@ -395,7 +396,7 @@ def _row_by_row(
                 cells,
                 columns[role],
                 _column_name(layout, role),
-                lambda text, unit=unit_of[role]: _temperature(text, unit, decimal),
+                functools.partial(_temperature, units=unit_of[role], decimal=decimal),
                 wrong,
             )
             for role in temps

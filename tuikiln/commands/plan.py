@@ -73,11 +73,13 @@ def _forecast(args: argparse.Namespace, plan: Plan, kiln: Any) -> Forecast:
     from pathlib import Path
 
     from tuikiln.limits import Limits
+    from tuikiln.ovenmodel import OvenModel
     from tuikiln.ovenmodel_plan import predict, temper_warnings
     from tuikiln.ovenmodel_store import model_path, read_model, saved_model
     from tuikiln.runlog import default_data_dir
 
     data_dir = default_data_dir(args.data)
+    model: OvenModel | None
     if args.model:
         path = Path(args.model)
         model = read_model(path)
@@ -110,7 +112,7 @@ def plan_as_json(plan: Plan, units: str, forecast: Forecast | None = None) -> di
         return None if value is None else round(value, 1)
 
     predicted = forecast.prediction if forecast is not None else None
-    out = {
+    out: dict[str, Any] = {
         "name": plan.profile.name,
         "units": units,
         "total_s": round(plan.total_s, 3),
