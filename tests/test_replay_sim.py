@@ -14,7 +14,7 @@ from tuikiln.engine.rules import RunRules, TickInput
 from tuikiln.limits import Limits
 from tuikiln.profile import parse_profile
 from tuikiln.runlog import RunLog
-from tuikiln.simulator import Fault, LoadConfig, SimConfig, SimulatedKiln
+from tuikiln.simulator import Fault, LoadConfig, OvenConfig, SimConfig, SimulatedKiln
 
 START_T = 1_700_000_000.0
 
@@ -39,12 +39,15 @@ to = 420
 
 def simulate_run(log: RunLog, profile_text: str, *, faults: tuple[Fault, ...] = (),
                  seed: int = 1, load_tc: bool = True, limit_s: float = 30_000.0,
-                 every_s: float = 1.0) -> int:
-    """Run the profile on the simulator with the engine's rules; the run id in `log`."""
+                 every_s: float = 1.0, oven: OvenConfig | None = None,
+                 load: LoadConfig | None = None) -> int:
+    """Run the profile on the simulator with the engine's rules; the run id in `log`
+    (`oven`, `load`: another oven than the default one, with another load)."""
     profile = parse_profile(profile_text, "test.toml")
     limits = Limits().merged(profile.limits)
     rules = RunRules(profile, limits, max_c=1200.0)
-    config = SimConfig(load=LoadConfig(), load_thermocouple=load_tc, faults=faults)
+    config = SimConfig(oven=oven or OvenConfig(), load=load or LoadConfig(),
+                       load_thermocouple=load_tc, faults=faults)
     kiln = SimulatedKiln(config, seed=seed)
     kiln.set_running(True)
     recorder = log.start_run(kiln="Simulated bench oven", profile=profile.name,

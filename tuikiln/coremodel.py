@@ -155,7 +155,8 @@ class LoadModel:
         """The model for a profile's [load] (material text, thickness in metres or None)."""
         _, words = match_material(material)
         given = thickness_m is not None and thickness_m > 0.0
-        return cls(steel_for(material), thickness_m if given else DEFAULT_THICKNESS_M,
+        thickness = thickness_m if thickness_m is not None and given else DEFAULT_THICKNESS_M
+        return cls(steel_for(material), thickness,
                    material_words=words, thickness_given=given, wrap=wrap)
 
     def _advice(self, material_words: str, thickness_given: bool) -> str:

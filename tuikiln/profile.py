@@ -12,8 +12,9 @@ from dataclasses import dataclass, field
 from pathlib import Path
 from typing import Any, Literal
 
+from tuikiln.drivers.checking import suggest, unknown_key
 from tuikiln.errors import FileProblems, Problem
-from tuikiln.limits import parse_limits, suggest
+from tuikiln.limits import parse_limits
 from tuikiln.tomllines import LineMap, load_toml, read_text
 from tuikiln.units import (
     ABSOLUTE_ZERO_C,
@@ -160,7 +161,7 @@ class _Checker:
     def profile(self, data: dict[str, Any], text: str, start_c: float) -> Profile | None:
         for key in data:
             if key not in TOP_KEYS:
-                self.report((key,), f'unknown key "{key}"{suggest(key, TOP_KEYS)}')
+                self.report((key,), unknown_key(key, TOP_KEYS))
         units = data.get("units")
         if units is None:
             self.report((), 'the profile needs units = "C" or units = "F" '
@@ -199,7 +200,7 @@ class _Checker:
             return Load()
         for key in table:
             if key not in LOAD_KEYS:
-                self.report(("load", key), f'unknown key "{key}"{suggest(key, LOAD_KEYS)}')
+                self.report(("load", key), unknown_key(key, LOAD_KEYS))
         material = table.get("material")
         if material is not None and not isinstance(material, str):
             self.report(("load", "material"), '"material" must be text, such as "AISI O1"')

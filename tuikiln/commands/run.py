@@ -265,8 +265,10 @@ def _interactive() -> bool:
 
 def _attach_screen(args: argparse.Namespace, data_dir: Path) -> int:
     """The live screen on the run just started; leaving it leaves the run going."""
+    from tuikiln import logsetup
     from tuikiln.commands import watch
 
+    logsetup.to_file(data_dir)  # the screen draws on the standard error
     time.sleep(0.3)  # let the run write its first samples
     return watch.run(argparse.Namespace(data=str(data_dir), kiln=args.kiln, units=None,
                                         no_bell=False))

@@ -561,7 +561,7 @@ class RunEngine:
                           "why": plan.why}))
         stepper = self.rules.stepper
         if plan.policy == "end":
-            return self.rules.stop(now, recovery.ENDED_AFTER_RESTART,
+            return self.rules.stop(now, plan.end_outcome or recovery.ENDED_AFTER_RESTART,
                                    "the kiln file says on_restart = \"end\"" if not plan.why
                                    else plan.why)
         words = recovery.restore_stepper(stepper, plan, now, after)
