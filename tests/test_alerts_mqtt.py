@@ -149,7 +149,8 @@ async def test_events_state_and_readings_reach_an_independent_mosquitto_sub(
 
     seen = {line.split(" ", 1)[0]: line.split(" ", 1)[1] for line in lines if " " in line}
     assert f"{BASE}/status online" in lines
-    assert json.loads(seen[f"{BASE}/event"]) == raised.as_dict()
+    assert json.loads(seen[f"{BASE}/event"]) == {**raised.as_dict(),
+                                                 "time_iso": "2023-11-14T22:15:00.500+00:00"}
     state = json.loads(seen[f"{BASE}/state"])
     assert state["step_words"] == "holding"
     assert state["load_c"] is None  # NaN is not JSON: sent as null
