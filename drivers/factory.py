@@ -26,33 +26,67 @@ problems.
 
 from __future__ import annotations
 
-import difflib
 import math
 import re
 from collections.abc import Mapping
 from typing import Any
 
 from tuikiln.drivers.base import Device
+from tuikiln.drivers.checking import KeyPath, Problems, Setting, check_table, check_value, keys_of
 from tuikiln.drivers.errors import SettingsError
 from tuikiln.drivers.guard import DEFAULT_MIN_INTERVAL_S
 from tuikiln.drivers.lines import DEFAULT_OPEN, FORMATS, ChannelSpec, LineSettings, LineThermometer
 from tuikiln.drivers.maps import MapError, RegisterMap, load_map
 from tuikiln.drivers.modbus import ModbusDevice, ModbusSettings, parse_tcp
 
-KeyPath = tuple[str | int, ...]
-Problems = list[tuple[KeyPath, str]]
-
 KINDS = ("sim", "modbus", "lines")
-SERIAL_KEYS = ("kind", "port", "baud", "parity", "stopbits", "bytesize", "poll", "timeout",
-               "reconnect_max")
-MODBUS_KEYS = SERIAL_KEYS + ("address", "map", "retries", "setpoint_min_interval")
-LINES_KEYS = SERIAL_KEYS + ("format", "pattern", "separator", "pair_separator", "header",
-                            "channels")
-CHANNEL_KEYS = ("field", "unit", "thermocouple", "cold_junction", "cold_junction_field",
-                "cold_junction_unit", "open")
 STANDARD_BAUDS = (300, 600, 1200, 2400, 4800, 9600, 14400, 19200, 38400, 57600, 115200)
 PARITIES = ("N", "E", "O")
 THERMOCOUPLES = ("B", "E", "J", "K", "N", "R", "S", "T")
+
+# The declared keys of [device] (drivers/checking.py checks them); `port` and `baud` have
+# more checks in `_Check.serial`, `map` in `_check_modbus`, the line formats in `_check_lines`.
+SERIAL: tuple[Setting, ...] = (
+    Setting("kind"),  # checked first, by `_kind`: it says which table this is
+    Setting("port", "text", "", example='"/dev/ttyUSB0" (or "tcp://HOST:PORT")',
+            missing='say which port: port = "/dev/ttyUSB0" (or "tcp://HOST:PORT")'),
+    Setting("baud", "whole", 9600, 300, 1_000_000),
+    Setting("parity", "choice", "N", choices=PARITIES, any_case=True),
+    Setting("stopbits", "whole", 1, 1, 2),
+    Setting("bytesize", "whole", 8, 7, 8),
+    Setting("poll", "number", 2.0, 0.05, 3600.0),
+    Setting("timeout", "number", 1.0, 0.05, 60.0),
+    Setting("reconnect_max", "number", 30.0, 0.1, 3600.0),
+)
+MODBUS: tuple[Setting, ...] = SERIAL + (
+    Setting("address", "whole", 1, 1, 247),
+    Setting("map", "text", None, example='"generic-pid"',
+            missing='say which register map: map = "generic-pid" (a shipped name) or a '
+            "path to your own .toml file"),
+    Setting("retries", "whole", 2, 0, 10),
+    Setting("setpoint_min_interval", "number", DEFAULT_MIN_INTERVAL_S, 0.0, 3600.0),
+)
+# A line thermometer polls faster and may wait longer for a line than a Modbus answer.
+LINES: tuple[Setting, ...] = tuple(
+    {"poll": Setting("poll", "number", 1.0, 0.05, 3600.0),
+     "timeout": Setting("timeout", "number", 5.0, 0.05, 600.0)}.get(s.key, s)
+    for s in SERIAL
+) + (
+    Setting("format", "choice", None, choices=FORMATS,
+            missing="say how to read a line: format = one of "
+            + ", ".join(f'"{f}"' for f in FORMATS)),
+    Setting("pattern", "text", None, example="'T1=(?P<t1>[-0-9.]+)'"),
+    Setting("separator", "text", ",", example='","'),
+    Setting("pair_separator", "text", None, example='"="'),
+    Setting("header", "flag", False),
+    Setting("channels", "any"),
+)
+CHANNEL: tuple[Setting, ...] = (
+    Setting("field"), Setting("unit"), Setting("thermocouple"), Setting("cold_junction"),
+    Setting("cold_junction_field"), Setting("cold_junction_unit"), Setting("open"),
+)
+SERIAL_KEYS, MODBUS_KEYS, LINES_KEYS, CHANNEL_KEYS = (
+    keys_of(SERIAL), keys_of(MODBUS), keys_of(LINES), keys_of(CHANNEL))
 
 
 class DeviceSettingsError(SettingsError):
@@ -69,94 +103,46 @@ def _device_table(table: Mapping[str, Any]) -> Mapping[str, Any]:
     return inner if isinstance(inner, Mapping) else table
 
 
-def _suggest(word: str, choices: tuple[str, ...] | list[str]) -> str:
-    close = difflib.get_close_matches(word, list(choices), n=1)
-    return f' (did you mean "{close[0]}"?)' if close else ""
-
-
 class _Check:
-    def __init__(self, device: Mapping[str, Any]) -> None:
+    """One [device] table checked against its declared keys, plus the checks of code."""
+
+    def __init__(self, device: Mapping[str, Any], settings: tuple[Setting, ...]) -> None:
         self.device = device
         self.problems: Problems = []
+        self.values = check_table(device, settings, ("device",), self.problems)
 
     def add(self, key: str | KeyPath, message: str) -> None:
         path = (key,) if isinstance(key, str) else key
         self.problems.append((("device", *path), message))
 
-    def unknown(self, allowed: tuple[str, ...]) -> None:
-        for key in self.device:
-            if key not in allowed:
-                self.add(str(key), f'unknown key "{key}"{_suggest(str(key), allowed)}')
-
-    def number(self, key: str, default: float, lo: float, hi: float, *, whole: bool = False
-               ) -> float:
-        value = self.device.get(key, default)
-        ok = isinstance(value, int | float) and not isinstance(value, bool)
-        if ok and whole and not float(value).is_integer():
-            ok = False
-        if not ok or not math.isfinite(value):
-            kind = "a whole number" if whole else "a number"
-            self.add(key, f'"{key}" must be {kind}, not {value!r}')
-            return default
-        if not lo <= value <= hi:
-            self.add(key, f'"{key}" must be from {lo:g} to {hi:g}, not {value:g}')
-            return default
-        return value
-
-    def text(self, key: str, default: str | None = None) -> str | None:
-        value = self.device.get(key, default)
-        if value is not None and not isinstance(value, str):
-            self.add(key, f'"{key}" must be text in quotes, not {value!r}')
-            return default
-        return value
-
-    def choice(self, key: str, default: str, choices: tuple[str, ...]) -> str:
-        value = self.device.get(key, default)
-        if isinstance(value, str) and value.upper() in choices:
-            return value.upper()
-        shown = ", ".join(f'"{c}"' for c in choices)
-        self.add(key, f'"{key}" must be one of {shown}, not {value!r}')
-        return default
-
     def serial(self) -> dict[str, Any]:
-        port = self.text("port")
-        if not port:
-            self.add("port", 'say which port: port = "/dev/ttyUSB0" (or "tcp://HOST:PORT")')
-            port = ""
-        elif port.startswith("tcp://"):
+        port = self.values["port"]
+        if port.startswith("tcp://"):
             try:
                 parse_tcp(port)
             except ValueError as exc:
                 self.add("port", str(exc))
-        baud = int(self.number("baud", 9600, 300, 1_000_000, whole=True))
+        baud = self.values["baud"]
         if "baud" in self.device and baud not in STANDARD_BAUDS and baud == self.device["baud"]:
             near = min(STANDARD_BAUDS, key=lambda b: abs(b - baud))
             self.add("baud", f"{baud} is not a usual baud rate (did you mean {near}?)")
-        stopbits = self.number("stopbits", 1, 1, 2, whole=True)
-        bytesize = self.number("bytesize", 8, 7, 8, whole=True)
         return dict(
-            port=port, baud=baud, parity=self.choice("parity", "N", PARITIES),
-            stopbits=int(stopbits), bytesize=int(bytesize),
-            timeout_s=self.number("timeout", 1.0, 0.05, 60.0),
-            reconnect_max_s=self.number("reconnect_max", 30.0, 0.1, 3600.0),
+            port=port, baud=baud, parity=self.values["parity"],
+            stopbits=self.values["stopbits"], bytesize=self.values["bytesize"],
+            timeout_s=self.values["timeout"], reconnect_max_s=self.values["reconnect_max"],
         )
 
 
 def _check_modbus(device: Mapping[str, Any], base_dir: str
                   ) -> tuple[ModbusSettings | None, RegisterMap | None, float, Problems]:
-    check = _Check(device)
-    check.unknown(MODBUS_KEYS)
+    check = _Check(device, MODBUS)
     common = check.serial()
-    address = int(check.number("address", 1, 1, 247, whole=True))
-    poll = check.number("poll", 2.0, 0.05, 3600.0)
-    retries = int(check.number("retries", 2, 0, 10, whole=True))
-    interval = check.number("setpoint_min_interval", DEFAULT_MIN_INTERVAL_S, 0.0, 3600.0)
-    map_name = check.text("map")
+    values = check.values
+    address, poll, retries = values["address"], values["poll"], values["retries"]
+    interval = values["setpoint_min_interval"]
+    map_name = values["map"]
     register_map: RegisterMap | None = None
-    if not map_name:
-        check.add("map", 'say which register map: map = "generic-pid" (a shipped name) or '
-                  "a path to your own .toml file")
-    else:
+    if map_name:
         try:
             register_map = load_map(map_name, base_dir)
         except MapError as exc:
@@ -170,18 +156,10 @@ def _check_modbus(device: Mapping[str, Any], base_dir: str
 
 
 def _check_lines(device: Mapping[str, Any]) -> tuple[LineSettings | None, float, Problems]:
-    check = _Check(device)
-    check.unknown(LINES_KEYS)
+    check = _Check(device, LINES)
     common = check.serial()
-    common["timeout_s"] = check.number("timeout", 5.0, 0.05, 600.0)
-    poll = check.number("poll", 1.0, 0.05, 3600.0)
-    fmt = device.get("format")
-    if fmt not in FORMATS:
-        shown = ", ".join(f'"{f}"' for f in FORMATS)
-        extra = _suggest(str(fmt), FORMATS) if isinstance(fmt, str) else ""
-        check.add("format", f'"format" must be one of {shown}{extra}'
-                  if fmt is not None else f"say how to read a line: format = one of {shown}")
-    pattern = check.text("pattern")
+    values = check.values
+    poll, fmt, pattern = values["poll"], values["format"], values["pattern"]
     groups: set[str] | None = None
     if fmt == "regex":
         if not pattern:
@@ -194,12 +172,8 @@ def _check_lines(device: Mapping[str, Any]) -> tuple[LineSettings | None, float,
             except re.error as exc:
                 check.add("pattern", f"the pattern is not a valid regular expression ({exc})")
                 groups = None
-    separator = check.text("separator", ",") or ","
-    pair_separator = check.text("pair_separator")
-    header = device.get("header", False)
-    if not isinstance(header, bool):
-        check.add("header", '"header" must be true or false')
-        header = False
+    separator, pair_separator = values["separator"], values["pair_separator"]
+    header = values["header"]
     channels: list[ChannelSpec] = []
     raw_channels = device.get("channels")
     if not isinstance(raw_channels, Mapping) or not raw_channels:
@@ -211,9 +185,7 @@ def _check_lines(device: Mapping[str, Any]) -> tuple[LineSettings | None, float,
         if not isinstance(spec, Mapping):
             check.add(path, 'must be a table such as { field = "T1", unit = "C" }')
             continue
-        for key in spec:
-            if key not in CHANNEL_KEYS:
-                check.add((*path, key), f'unknown key "{key}"{_suggest(str(key), CHANNEL_KEYS)}')
+        check_table(spec, CHANNEL, ("device", *path), check.problems)
         fld = spec.get("field")
         if not isinstance(fld, str | int) or isinstance(fld, bool) or fld == "":
             check.add((*path, "field"), "give the field: a name, or a column number from 0")
@@ -268,11 +240,9 @@ def _check_lines(device: Mapping[str, Any]) -> tuple[LineSettings | None, float,
         ))
     if check.problems:
         return None, poll, check.problems
-    common.pop("reconnect_max_s")
     settings = LineSettings(
         format=str(fmt), channels=tuple(channels), pattern=pattern, separator=separator,
-        pair_separator=pair_separator, header=header,
-        reconnect_max_s=check.number("reconnect_max", 30.0, 0.1, 3600.0), **common,
+        pair_separator=pair_separator, header=header, **common,
     )
     return settings, poll, []
 
@@ -281,9 +251,8 @@ def _kind(device: Mapping[str, Any]) -> tuple[str | None, Problems]:
     kind = device.get("kind", "sim")
     if kind in KINDS:
         return kind, []
-    shown = ", ".join(f'"{k}"' for k in KINDS)
-    extra = _suggest(str(kind), KINDS) if isinstance(kind, str) else ""
-    return None, [(("device", "kind"), f'"kind" must be one of {shown}, not {kind!r}{extra}')]
+    _, message = check_value(Setting("kind", "choice", choices=KINDS), kind)
+    return None, [(("device", "kind"), str(message))]
 
 
 def check_device_settings(table: Mapping[str, Any], base_dir: str) -> Problems:

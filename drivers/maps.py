@@ -45,7 +45,6 @@ Every mistake is reported as `file:line: [table] key: what is wrong`.
 
 from __future__ import annotations
 
-import difflib
 import math
 import re
 import struct
@@ -55,11 +54,11 @@ from dataclasses import dataclass, field
 from pathlib import Path
 from typing import Any
 
+from tuikiln.drivers.checking import suggest
 from tuikiln.drivers.errors import SettingsError
+from tuikiln.drivers.tomllines import KeyPath, LineMap
 
 MAPS_DIR = Path(__file__).with_name("maps")
-
-KeyPath = tuple[str | int, ...]
 
 READ_FCS = (1, 2, 3, 4)
 WRITE_FCS = (5, 6, 15, 16)
@@ -89,57 +88,6 @@ class MapError(SettingsError):
             "\n".join(self.problems),
             hint="fix the register map (see drivers/maps/generic-pid.toml for every key)",
         )
-
-
-# ---- where keys sit in the file (tomllib keeps no positions) --------------------------
-
-_HEADER = re.compile(r"^\s*\[\s*([^\]\[]+?)\s*\]\s*(?:#.*)?$")
-_KEY = re.compile(r"""^\s*("[^"]*"|'[^']*'|[A-Za-z0-9_\-]+(?:\s*\.\s*[A-Za-z0-9_\-]+)*)\s*=""")
-_INLINE_KEY = re.compile(r"""(?:^|[{,])\s*("[^"]*"|[A-Za-z0-9_\-]+)\s*=""")
-
-
-def _dotted(text: str) -> tuple[str, ...]:
-    return tuple(part.strip().strip("\"'") for part in text.split("."))
-
-
-class KeyLines:
-    """Key path -> 1-based line, from a light scan of `[table]` headers and `key =` lines.
-
-    Keys inside a one-line inline table (`x = { a = 1, b = 2 }`) get the line of `x`.
-    Arrays of tables are not used in maps, so they are not handled.
-    """
-
-    def __init__(self, text: str) -> None:
-        self.lines: dict[KeyPath, int] = {}
-        table: KeyPath = ()
-        for number, raw in enumerate(text.splitlines(), start=1):
-            stripped = raw.strip()
-            if not stripped or stripped.startswith("#"):
-                continue
-            header = _HEADER.match(raw)
-            if header and not _KEY.match(raw):
-                table = _dotted(header.group(1))
-                self.lines.setdefault(table, number)
-                continue
-            key = _KEY.match(raw)
-            if not key:
-                continue
-            path = table + _dotted(key.group(1))
-            self.lines.setdefault(path, number)
-            rest = raw[key.end():]
-            brace = rest.find("{")
-            if brace >= 0:
-                for inner in _INLINE_KEY.finditer(rest[brace:]):
-                    self.lines.setdefault(path + (inner.group(1).strip('"'),), number)
-
-    def line(self, path: KeyPath) -> int | None:
-        """The line of `path`, or of its nearest enclosing key or table."""
-        path = tuple(path)
-        while path:
-            if path in self.lines:
-                return self.lines[path]
-            path = path[:-1]
-        return None
 
 
 # ---- the parsed map --------------------------------------------------------------------
@@ -343,16 +291,11 @@ def parse_map(text: str, source: str = "<map>") -> RegisterMap:
         raise MapError([f"{name}: not a register map: the file nests too deeply"]) from None
     except ValueError:  # e.g. an integer of more than 4300 digits (Python's int limit)
         raise MapError([f"{name}: not a register map: a number is too long"]) from None
-    checker = _Checker(name, KeyLines(text))
+    checker = _Checker(name, LineMap(text))
     result = checker.check(data, source)
     if checker.problems or result is None:
         raise MapError(checker.problems)
     return result
-
-
-def _suggest(word: str, choices: Iterable[str]) -> str:
-    close = difflib.get_close_matches(word, list(choices), n=1)
-    return f' (did you mean "{close[0]}"?)' if close else ""
 
 
 def _is_number(value: object) -> bool:
@@ -364,7 +307,7 @@ def _is_whole(value: object) -> bool:
 
 
 class _Checker:
-    def __init__(self, file_name: str, lines: KeyLines) -> None:
+    def __init__(self, file_name: str, lines: LineMap) -> None:
         self.file_name = file_name
         self.lines = lines
         self.problems: list[str] = []
@@ -379,7 +322,7 @@ class _Checker:
     def check(self, data: Mapping[str, Any], source: str) -> RegisterMap | None:
         for key in data:
             if key not in TOP_KEYS:
-                self.problem((key,), f"unknown key{_suggest(key, TOP_KEYS)}")
+                self.problem((key,), f"unknown key{suggest(key, TOP_KEYS)}")
         name = data.get("name", Path(source).stem)
         if not isinstance(name, str):
             self.problem(("name",), "must be text in quotes")
@@ -413,7 +356,7 @@ class _Checker:
                         channels[channel] = reg
                 continue
             if qty not in READ_NAMES and not qty.startswith("status"):
-                self.problem(path, f"unknown quantity{_suggest(qty, READ_NAMES)}; "
+                self.problem(path, f"unknown quantity{suggest(qty, READ_NAMES)}; "
                              "extra temperatures go under [read.channels]")
                 continue
             reg = self.entry(path, entry, write=False)
@@ -441,7 +384,7 @@ class _Checker:
         for qty, entry in write_table.items():
             path = ("write", qty)
             if qty not in WRITE_NAMES:
-                self.problem(path, f"unknown quantity{_suggest(qty, WRITE_NAMES)}")
+                self.problem(path, f"unknown quantity{suggest(qty, WRITE_NAMES)}")
                 continue
             reg = self.entry(path, entry, write=True)
             if reg is None:
@@ -467,7 +410,7 @@ class _Checker:
         before = len(self.problems)
         for key in spec:
             if key not in ENTRY_KEYS:
-                self.problem(path + (key,), f"unknown key{_suggest(key, ENTRY_KEYS)}")
+                self.problem(path + (key,), f"unknown key{suggest(key, ENTRY_KEYS)}")
         fcs = WRITE_FCS if write else READ_FCS
         fc = spec.get("fc")
         if fc is None:
@@ -501,7 +444,7 @@ class _Checker:
         reg_type = spec.get("type", "int16" if signed else "uint16")
         if reg_type not in TYPES:
             self.problem(path + ("type",), f"must be one of {', '.join(TYPES)}"
-                         f"{_suggest(str(reg_type), TYPES)}")
+                         f"{suggest(str(reg_type), TYPES)}")
             reg_type = "uint16"
         elif "signed" in spec and reg_type in ("int16", "uint16", "int32", "uint32"):
             if signed != reg_type.startswith("int"):
@@ -560,6 +503,7 @@ class _Checker:
             self.problem(path + ("max",), "must be above min")
         if len(self.problems) > before:
             return None
+        assert fc is not None and address is not None  # a missing one was a problem above
         return Register(
             name=str(path[-1]), fc=fc, address=address, type=reg_type, scale=float(scale),
             word_order=word_order, units=units, open_values=tuple(float(v) for v in open_values),

@@ -16,7 +16,6 @@ from __future__ import annotations
 
 import asyncio
 import errno
-import logging
 from dataclasses import dataclass
 from typing import Any
 
@@ -31,7 +30,8 @@ from tuikiln.drivers.maps import Register, RegisterMap
 from tuikiln.drivers.serialport import port_problem
 
 # pymodbus logs every timeout at ERROR level; our errors already say it in plain words.
-logging.getLogger("pymodbus").setLevel(logging.CRITICAL)
+# The command line keeps libraries' lines out of sight below --log-level debug
+# (tuikiln/logsetup.py); a program using this driver alone decides for itself.
 
 NO_ANSWER_HINT = (
     "check the controller's Modbus address, baud rate and parity match the kiln file, "
@@ -271,8 +271,8 @@ class ModbusDevice(Device):
 
     # ---- Device ------------------------------------------------------------------
 
-    @property  # type: ignore[override]
-    def written_setpoint_c(self) -> float | None:
+    @property
+    def written_setpoint_c(self) -> float | None:  # type: ignore[override]
         """What the controller was last really sent; a value the guard holds is not."""
         return self.guard.last_written_c
 
@@ -323,9 +323,9 @@ class ModbusDevice(Device):
             running = status.pop("running")
         channels: dict[str, float] = {}
         for name, reg in self.map.channels.items():
-            value, _ = self._temperature(reg, raw)
-            if value is not None:
-                channels[name] = value
+            celsius, _ = self._temperature(reg, raw)
+            if celsius is not None:
+                channels[name] = celsius
         return Reading(
             time=self.clock.now(), chamber_c=chamber, load_c=load, setpoint_c=setpoint,
             output_pct=output, sensor_fault=sensor_fault, running=running,

@@ -79,6 +79,8 @@ class SimClock:
 
 
 class SimulatorDevice(Device):
+    clock: SimClock  # the simulation's own clock: `read` stamps readings from its start
+
     def __init__(self, kiln: SimulatedKiln, speed: float | None = None, *,
                  seed: int = 0, start: float | None = None) -> None:
         self.kiln = kiln

@@ -137,7 +137,7 @@ class FahrenheitFloat(Layout):
             return
         if None in halves:
             raise RegisterError(3, "write both words of the float setpoint in one request")
-        low, high = halves
+        low, high = words[self.RAM_SETPOINT], words[self.RAM_SETPOINT + 1]
         fahrenheit = struct.unpack(">f", struct.pack(">HH", high, low))[0]
         celsius = (fahrenheit - 32.0) * 5.0 / 9.0
         if not (math.isfinite(celsius) and 0.0 <= celsius <= kiln.config.oven.setpoint_max_c):

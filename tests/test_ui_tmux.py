@@ -4,14 +4,16 @@ step show; keys act; quitting leaves no process behind."""
 from __future__ import annotations
 
 import os
+import re
 import shutil
 import subprocess
 import sys
-import time
 import uuid
 from pathlib import Path
 
 import pytest
+
+from tests.waiting import alive, wait_until
 
 ROOT = Path(__file__).resolve().parents[1]
 pytestmark = pytest.mark.skipif(shutil.which("tmux") is None, reason="tmux is not installed")
@@ -29,14 +31,14 @@ class Tmux:
         return self("capture-pane", "-p", "-t", "demo")
 
     def wait_for(self, *words: str, timeout: float = 15.0) -> str:
-        deadline = time.monotonic() + timeout
-        text = ""
-        while time.monotonic() < deadline:
+        def shown() -> str | None:
             text = self.screen()
-            if all(word in text for word in words):
-                return text
-            time.sleep(0.2)
-        raise AssertionError(f"{words} not on screen:\n{text}")
+            return text if all(word in text for word in words) else None
+
+        try:
+            return wait_until(shown, timeout, f"{words} on screen")
+        except AssertionError as exc:
+            raise AssertionError(f"{exc}:\n{self.screen()}") from None
 
 
 @pytest.fixture
@@ -69,15 +71,115 @@ def test_demo_in_a_real_terminal(tmux: Tmux, tmp_path: Path) -> None:
     tmux.wait_for("Abort the run?", "[y] abort the run")
     tmux("send-keys", "-t", "demo", "n")
     tmux("send-keys", "-t", "demo", "q")
-    deadline = time.monotonic() + 10
-    while time.monotonic() < deadline:
-        try:
-            os.kill(pid, 0)
-        except ProcessLookupError:
-            break
-        time.sleep(0.1)
-    else:
-        raise AssertionError("the demo process is still there after q")
+    wait_until(lambda: not alive(pid), 10, "the demo process to end after q")
     leftover = subprocess.run(["pgrep", "-f", f"--data {tmp_path}"], capture_output=True,
                               text=True).stdout.split()
     assert leftover == []
+
+
+# ----- terminal fallbacks (issue 18): NO_COLOR, the Linux console, 80x24 -----
+
+EVENT_LINE = re.compile(r"^ \+\d+h\d\d ")  # the event log's lines (another widget's marks)
+
+
+def start(tmux: Tmux, tmp_path: Path, words: str, env: str = "", size: tuple = (80, 24)
+          ) -> int:
+    """Start `tuikiln WORDS` in a fresh pane of this size; the pane's process id."""
+    command = (f"cd {ROOT} && exec env -u COLUMNS -u LINES -u NO_COLOR -u TUIKILN_GLYPHS "
+               f"{env} {sys.executable} -m tuikiln {words}")
+    tmux("new-session", "-d", "-s", "demo", "-x", str(size[0]), "-y", str(size[1]), command)
+    return int(tmux("display-message", "-p", "-t", "demo", "#{pane_pid}").strip())
+
+
+def braille_in(text: str) -> bool:
+    return any(0x2800 <= ord(ch) <= 0x28FF for ch in text)  # Unicode "Braille Patterns"
+
+
+def footer_words(screen_class: type) -> list[str]:
+    """The words of every key the screen shows in its footer."""
+    return [b.description for b in screen_class.BINDINGS if b.show]
+
+
+def demo_words(tmp_path: Path) -> str:
+    return f"demo --speed 300 --wait 0 --no-bell --data {tmp_path}"
+
+
+def test_no_color_tells_lines_apart_by_shape_at_80x24(tmux: Tmux, tmp_path: Path) -> None:
+    from tuikiln.ui.glyphs import BLOCK_MARKS
+    from tuikiln.ui.screens.live import LiveScreen
+
+    start(tmux, tmp_path, demo_words(tmp_path), env="NO_COLOR=1")
+    # The legend shows each line's mark; the load and the plan ahead appear within seconds.
+    screen = tmux.wait_for(f"{BLOCK_MARKS['chamber']} chamber", f"{BLOCK_MARKS['load']} load",
+                           f"{BLOCK_MARKS['plan']} plan", "step 1 of 8")
+    lines = screen.splitlines()
+    chart = "\n".join(line[:48] for line in lines[2:18])
+    assert BLOCK_MARKS["chamber"] in chart and BLOCK_MARKS["plan"] in chart
+    assert not braille_in(screen)  # braille dots differ only by colour: drawn by mark
+    footer = lines[-1]
+    for words in footer_words(LiveScreen):  # every key of the live screen, at 80 columns
+        assert words in footer, (words, footer)
+    # A key the footer has no room for (the bell) is in the help, which the footer names.
+    tmux("send-keys", "-t", "demo", "?")
+    tmux.wait_for("Bell on/off", "Acknowledge the alarms or the pause")
+    tmux("send-keys", "-t", "demo", "Escape")
+    tmux("send-keys", "-t", "demo", "q")
+
+
+def test_linux_console_draws_without_braille(tmux: Tmux, tmp_path: Path) -> None:
+    from tuikiln.ui.glyphs import BLOCK_MARKS
+
+    start(tmux, tmp_path, demo_words(tmp_path), env="TERM=linux")
+    screen = tmux.wait_for(f"{BLOCK_MARKS['chamber']} chamber", "step 1 of 8", "chamber ")
+    assert not braille_in(screen)
+    # Everything but the event log's lines is in code page 437, the character set of the
+    # Linux console's built-in font (from memory); Python's "cp437" codec is the table.
+    for line in screen.splitlines():
+        if not EVENT_LINE.match(line):
+            line.encode("cp437")
+    assert "╭" not in screen  # the big digits' rounded corners are not drawn there
+    tmux("send-keys", "-t", "demo", "q")
+
+
+def test_override_draws_braille_on_the_linux_console(tmux: Tmux, tmp_path: Path) -> None:
+    start(tmux, tmp_path, demo_words(tmp_path) + " --glyphs braille", env="TERM=linux")
+    screen = tmux.wait_for("━ chamber", "step 1 of 8")
+    assert braille_in(screen)
+    tmux("send-keys", "-t", "demo", "q")
+
+
+def test_every_screen_keys_at_80x24(tmux: Tmux, tmp_path: Path) -> None:
+    from tests.test_replay_sim import SHORT_C, simulate_run
+    from tuikiln.runlog import RunLog
+    from tuikiln.ui.screens.home import HomeScreen
+    from tuikiln.ui.screens.preview import PreviewScreen
+    from tuikiln.ui.screens.replay import ReplayScreen
+
+    log = RunLog(tmp_path / "runs.sqlite")
+    simulate_run(log, SHORT_C, limit_s=1200.0)
+    log.close()
+    start(tmux, tmp_path, f"home --data {tmp_path}")
+
+    def footer_has(screen_class: type, *also: str) -> str:
+        screen = tmux.wait_for(*footer_words(screen_class), *also)
+        footer = screen.splitlines()[-1]
+        for words in footer_words(screen_class):
+            assert words in footer, (words, footer)
+        return screen
+
+    footer_has(HomeScreen, "Recent runs")
+    tmux("send-keys", "-t", "demo", "Enter")  # the first profile's plan
+    footer_has(PreviewScreen, "total at least")
+    tmux("send-keys", "-t", "demo", "s")  # the long summary scrolls; its keys stay in view
+    tmux.wait_for("[y] start it", "[n] no, go back")
+    tmux("send-keys", "-t", "demo", "n")
+    footer_has(PreviewScreen)
+    # q rather than Escape: an Escape followed at once by Tab reads as Alt+Tab.
+    tmux("send-keys", "-t", "demo", "q")
+    footer_has(HomeScreen, "Recent runs")
+    tmux("send-keys", "-t", "demo", "Tab")  # to the runs
+    tmux("send-keys", "-t", "demo", "Enter")
+    footer_has(ReplayScreen, "Replay · run 1")
+    tmux("send-keys", "-t", "demo", "q")
+    footer_has(HomeScreen, "Recent runs")
+    tmux("send-keys", "-t", "demo", "q")

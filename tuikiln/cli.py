@@ -15,6 +15,7 @@ import sys
 from collections.abc import Sequence
 from typing import NoReturn
 
+from tuikiln import logsetup
 from tuikiln.errors import FileProblems, UserError
 
 # command name -> module (one line each, so adding a command touches one line).
@@ -25,6 +26,7 @@ COMMANDS: dict[str, str] = {
     "review": "tuikiln.commands.review",
     "check": "tuikiln.commands.check",
     "plan": "tuikiln.commands.plan",
+    "learn": "tuikiln.commands.learn",
     "probe": "tuikiln.commands.probe",
     "sim": "tuikiln.commands.sim",
     "thermocouple": "tuikiln.commands.thermocouple",
@@ -45,6 +47,9 @@ COMMANDS: dict[str, str] = {
     "service": "tuikiln.commands.service",
 }
 
+# Commands that draw a screen: Textual draws on the standard error, so their log goes to a file.
+SCREEN_COMMANDS = frozenset({"demo", "home", "watch", "review"})
+
 # Shown in `tuikiln --help`; the modules' HELP lines are read lazily.
 COMMAND_HELP: dict[str, str] = {
     "demo": "watch a whole harden-and-temper cycle on the built-in simulator, sped up",
@@ -53,6 +58,7 @@ COMMAND_HELP: dict[str, str] = {
     "review": "look back at a past run on screen: chart against the plan, cursor, verdicts",
     "check": "check profile files and print a one-line summary of each",
     "plan": "show the planned curve of a profile (table, --json or --csv)",
+    "learn": "learn the oven from a logged run: heating, losses, time constant, PID by SIMC",
     "probe": "connect to the kiln's device and print readings, to check wiring and settings",
     "sim": "the built-in software oven: `sim serve` answers Modbus RTU on a pty or TCP",
     "thermocouple": "convert thermocouple millivolts to temperature and back (NIST ITS-90)",
@@ -82,7 +88,7 @@ class _Parser(argparse.ArgumentParser):
         self.exit(1, f"{self.prog}: {message}\n")
 
 
-def _global_options() -> argparse.ArgumentParser:
+def _global_options() -> _Parser:
     """Options every command takes, before or after its name."""
     common = _Parser(add_help=False)
     common.add_argument(
@@ -97,6 +103,15 @@ def _global_options() -> argparse.ArgumentParser:
         default=argparse.SUPPRESS,
         help="kiln file (default: kiln.toml in the user's config folder; none: the simulator)",
     )
+    common.add_argument(
+        "--log-level",
+        metavar="LEVEL",
+        choices=logsetup.LEVELS,
+        default=argparse.SUPPRESS,
+        help="debug, info, warning (default) or error; also $TUIKILN_LOG_LEVEL. Logs go to "
+        "the standard error (the journal under systemd); the screens' to "
+        "DATA/logs/tuikiln.log. Libraries' own lines are shown only at debug",
+    )
     return common
 
 
@@ -106,7 +121,7 @@ def _first_word(argv: Sequence[str]) -> str | None:
     for word in argv:
         if skip_next:
             skip_next = False
-        elif word in ("--data", "--kiln"):
+        elif word in ("--data", "--kiln", "--log-level"):
             skip_next = True
         elif not word.startswith("-"):
             return word
@@ -156,7 +171,7 @@ def main(argv: Sequence[str] | None = None) -> int:
     argv = list(sys.argv[1:] if argv is None else argv)
     unknown = _unknown_command(argv)
     if unknown is not None:
-        from tuikiln.limits import suggest
+        from tuikiln.drivers.checking import suggest
 
         print(f'tuikiln: unknown command "{unknown}"{suggest(unknown, list(COMMANDS))}; '
               "`tuikiln --help` lists them", file=sys.stderr)
@@ -168,6 +183,11 @@ def main(argv: Sequence[str] | None = None) -> int:
         return 0
     args.data = getattr(args, "data", None) or os.environ.get("TUIKILN_DATA") or None
     args.kiln = getattr(args, "kiln", None)
+    args.log_level = logsetup.configure(getattr(args, "log_level", None))
+    if args.command in SCREEN_COMMANDS:
+        from tuikiln.runlog import default_data_dir
+
+        logsetup.to_file(default_data_dir(args.data))
     module = importlib.import_module(args._module)
     try:
         return int(module.run(args) or 0)

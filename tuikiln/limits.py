@@ -7,11 +7,11 @@ its degrees per minute, durations as "5m"); inside they are kelvin, °C/s and se
 
 from __future__ import annotations
 
-import difflib
 from collections.abc import Callable, Mapping
 from dataclasses import dataclass, fields, replace
 from typing import Any
 
+from tuikiln.drivers.checking import unknown_key
 from tuikiln.units import Units, delta_to_c, finite, parse_duration
 
 # kind: "delta" = temperature difference, "duration", "slope" = degrees per minute, "count"
@@ -75,12 +75,6 @@ class Limits:
         return {f.name: getattr(self, f.name) for f in fields(self)}
 
 
-def suggest(word: str, choices: tuple[str, ...] | list[str]) -> str:
-    """' (did you mean "ramp"?)' or ''."""
-    close = difflib.get_close_matches(str(word), list(choices), n=1, cutoff=0.6)
-    return f' (did you mean "{close[0]}"?)' if close else ""
-
-
 def parse_limits(
     table: Any, units: Units, report: Callable[[tuple, str], None], where: tuple
 ) -> dict[str, float]:
@@ -92,7 +86,7 @@ def parse_limits(
     for name, raw in table.items():
         key = _BY_NAME.get(name)
         if key is None:
-            report(where + (name,), f'unknown key "{name}"{suggest(name, LIMIT_NAMES)}')
+            report(where + (name,), unknown_key(name, LIMIT_NAMES))
             continue
         try:
             values[name] = _parse_value(key, raw, units)

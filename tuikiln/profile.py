@@ -12,8 +12,9 @@ from dataclasses import dataclass, field
 from pathlib import Path
 from typing import Any, Literal
 
+from tuikiln.drivers.checking import suggest, unknown_key
 from tuikiln.errors import FileProblems, Problem
-from tuikiln.limits import parse_limits, suggest
+from tuikiln.limits import parse_limits
 from tuikiln.tomllines import LineMap, load_toml, read_text
 from tuikiln.units import (
     ABSOLUTE_ZERO_C,
@@ -86,6 +87,9 @@ class Load:
     thickness_m: float | None = None
     pieces: int | None = None
     thickness_text: str | None = None
+    wrap: str = "none"
+    """ "none", or "foil": the part is sealed in a stainless foil packet (the equalization
+    estimate then allows for the foil's low emissivity and the air gap inside it)."""
 
 
 @dataclass(frozen=True)
@@ -107,7 +111,8 @@ class Profile:
 
 
 TOP_KEYS = ("name", "units", "about", "load", "limits", "step")
-LOAD_KEYS = ("material", "thickness", "pieces")
+LOAD_KEYS = ("material", "thickness", "pieces", "wrap")
+WRAPS = ("none", "foil")
 STEP_KEYS = {
     "ramp": ("ramp", "to", "label"),
     "hold": ("hold", "start", "band", "label"),
@@ -156,7 +161,7 @@ class _Checker:
     def profile(self, data: dict[str, Any], text: str, start_c: float) -> Profile | None:
         for key in data:
             if key not in TOP_KEYS:
-                self.report((key,), f'unknown key "{key}"{suggest(key, TOP_KEYS)}')
+                self.report((key,), unknown_key(key, TOP_KEYS))
         units = data.get("units")
         if units is None:
             self.report((), 'the profile needs units = "C" or units = "F" '
@@ -195,7 +200,7 @@ class _Checker:
             return Load()
         for key in table:
             if key not in LOAD_KEYS:
-                self.report(("load", key), f'unknown key "{key}"{suggest(key, LOAD_KEYS)}')
+                self.report(("load", key), unknown_key(key, LOAD_KEYS))
         material = table.get("material")
         if material is not None and not isinstance(material, str):
             self.report(("load", "material"), '"material" must be text, such as "AISI O1"')
@@ -212,7 +217,13 @@ class _Checker:
                                    or pieces < 1):
             self.report(("load", "pieces"), '"pieces" must be a whole number, 1 or more')
             pieces = None
-        return Load(material, thickness_m, pieces, thickness if thickness_m else None)
+        wrap = table.get("wrap", "none")
+        if not isinstance(wrap, str) or wrap not in WRAPS:
+            shown = f'"{wrap}"' if isinstance(wrap, str) else "that"
+            self.report(("load", "wrap"), f'"wrap" must be "none" or "foil", not {shown}'
+                        f"{suggest(wrap, WRAPS) if isinstance(wrap, str) else ''}")
+            wrap = "none"
+        return Load(material, thickness_m, pieces, thickness if thickness_m else None, wrap)
 
     def steps(self, raw: Any, start_c: float, profile_band: float | None) -> list[Step]:
         if raw is None or raw == []:

@@ -28,6 +28,15 @@ When a write fails (disk full, file made read-only) nothing is lost from memory:
 recorder keeps the rows, sets `trouble` to the reason (the engine raises an alarm) and tries
 again a few seconds later. The run goes on.
 
+A run's end must survive a disk that is full at that moment: otherwise the run would look
+unfinished and a restart with `on_restart = "continue"` would heat the oven again after an
+abort. So each run keeps a small *end mark* beside the database (`EndMark`, the file
+`runs.sqlite.run-N.end`), written and synced when the run starts, while there is room. The
+end is written into that file first (in place, over the bytes already there: no new disk
+blocks are needed, so a full disk takes it), synced, then into the database; once the
+database has it the mark is removed. Recovery reads a mark that is left (`RunLog.end_mark`)
+and ends the run instead of carrying it on.
+
 Reading a week of samples (604,800 rows) row by row through sqlite3 takes over a second in
 Python, so each sample is stored twice: as a row in `samples` (for SQL, exports, other tools)
 and packed into `sample_blocks`, BLOBs of up to BLOCK_ROWS samples in columns (t as float64,
@@ -77,6 +86,7 @@ _BLOCK_TYPES: tuple[tuple[str, str], ...] = (
     ("setpoint_c", "<f4"), ("output_pct", "<f4"), ("step", "<i2"), ("state", "<i2"),
     ("flags", "<i4"),
 )
+MARK_BYTES = 512  # an end mark's fixed size: written at the start, overwritten in place
 MAX_KEPT_SAMPLES = 5_000_000  # a week at 1 s is 604,800: this is the memory cap while failing
 
 _SCHEMA = """
@@ -244,12 +254,42 @@ def _connect(path: Path, *, writer: bool = False) -> sqlite3.Connection:
     return conn
 
 
-class RunLog:
-    """Reader (and the door to the writer) for one `runs.sqlite`."""
+def _connect_reader(path: Path) -> sqlite3.Connection:
+    """A connection that can only read: SQLite refuses every write through it, so a screen
+    or a listing can never create the file, add schema or race the engine's commits."""
+    if not path.exists() or path.stat().st_size == 0:
+        # Nothing logged yet (or the engine is making the file this instant): an empty log
+        # in memory answers every question with "none".
+        conn = sqlite3.connect(":memory:", isolation_level=None, check_same_thread=False)
+        conn.executescript(_SCHEMA)
+        return conn
+    conn = sqlite3.connect(path.resolve().as_uri() + "?mode=ro", uri=True, timeout=10.0,
+                           isolation_level=None, check_same_thread=False)
+    conn.execute(f"PRAGMA busy_timeout={READER_BUSY_MS}")
+    tables = {row[0] for row in conn.execute("SELECT name FROM sqlite_master")}
+    if not {"runs", "meta"} <= tables:
+        conn.close()
+        raise sqlite3.DatabaseError("it is not a run log (it has no table of runs)")
+    # Reading a page past the first finds most damage here, where the path is known, as the
+    # writer's schema check does.
+    conn.execute("SELECT value FROM meta WHERE key = 'schema'").fetchone()
+    return conn
 
-    def __init__(self, path: str | os.PathLike[str]) -> None:
+
+class RunLog:
+    """Reader (and the door to the writer) for one `runs.sqlite`.
+
+    `RunLog(path)` is the engine's: it makes the file and its schema. Everything else reads
+    through `RunLog.reader(path)`, which opens it read-only (tests/test_layering.py checks
+    which modules may do which)."""
+
+    def __init__(self, path: str | os.PathLike[str], *, read_only: bool = False) -> None:
         self.path = Path(path)
+        self.read_only = read_only
         try:
+            if read_only:
+                self._conn = _connect_reader(self.path)
+                return
             private_folder(self.path.parent)
             if not self.path.exists():  # made 0600 here; SQLite gives its WAL the same mode
                 os.close(os.open(self.path, os.O_WRONLY | os.O_CREAT, 0o600))
@@ -261,8 +301,13 @@ class RunLog:
             raise log_trouble(self.path, exc) from exc
 
     @classmethod
-    def in_folder(cls, data_dir: str | os.PathLike[str]) -> RunLog:
-        return cls(Path(data_dir) / RUNLOG_NAME)
+    def in_folder(cls, data_dir: str | os.PathLike[str], *, read_only: bool = False) -> RunLog:
+        return cls(Path(data_dir) / RUNLOG_NAME, read_only=read_only)
+
+    @classmethod
+    def reader(cls, path: str | os.PathLike[str]) -> RunLog:
+        """The log opened read-only (a missing file reads as a log with no runs)."""
+        return cls(path, read_only=True)
 
     def close(self) -> None:
         self._conn.close()
@@ -293,7 +338,8 @@ class RunLog:
         Temperatures and output come back as float64 (stored as float32: 0.0001 °C steps at
         1000 °C, far below any thermocouple's resolution).
         """
-        where, params = "run_id = ?", [run_id]
+        where = "run_id = ?"
+        params: list[float] = [run_id]
         if since_t is not None:
             where += " AND last_t > ?"
             params.append(since_t)
@@ -342,6 +388,11 @@ class RunLog:
                                   params).fetchall()
         return [info for info in map(_run_info, rows) if info.status == "unfinished"]
 
+    def end_mark(self, run_id: int) -> dict[str, Any] | None:
+        """The end a run's engine wrote to its end mark when the database could not take it
+        ({"outcome", "ended"}), or None (no mark, or a mark with no end in it)."""
+        return EndMark(self.path, run_id).read()
+
     def events(self, run_id: int, after_id: int = 0) -> list[dict[str, Any]]:
         rows = self._conn.execute(
             "SELECT id, t, kind, severity, message, detail FROM events "
@@ -376,13 +427,19 @@ class RunLog:
              json.dumps(dict(load)) if load is not None else None, units, device, speed,
              int(watch_only), started, time.time(), os.getpid()))
         run_id = int(cursor.lastrowid or 0)
-        return RunRecorder(conn, run_id, batch=batch, path=self.path)
+        recorder = RunRecorder(conn, run_id, batch=batch, path=self.path)
+        if recorder.mark is not None:
+            recorder.mark.reserve()
+        return recorder
 
     def resume_run(self, run_id: int, *, batch: int = 250) -> RunRecorder:
         """A writer that appends to an unfinished run (after a crash or power cut)."""
         conn = _connect(self.path, writer=True)
         conn.execute("UPDATE runs SET pid = ? WHERE id = ?", (os.getpid(), run_id))
-        return RunRecorder(conn, run_id, batch=batch, path=self.path)
+        recorder = RunRecorder(conn, run_id, batch=batch, path=self.path)
+        if recorder.mark is not None:
+            recorder.mark.reserve()  # keeps an end already in it (see EndMark.reserve)
+        return recorder
 
 
 _RUN_FIELDS = ("id, kiln, profile, started, ended, outcome, units, device, speed, watch_only,"
@@ -418,6 +475,84 @@ def _unpack_block(n: int, data: bytes) -> dict[str, np.ndarray]:
         out[name] = np.frombuffer(data, dtype=dtype, count=n, offset=offset)
         offset += n * dtype.itemsize
     return out
+
+
+class EndMark:
+    """A run's end, kept outside SQLite so that a full disk cannot lose it (module docstring).
+
+    The file is MARK_BYTES long from the start: JSON, padded with spaces. `write` overwrites
+    those bytes in place and syncs, which needs no free space on the disk."""
+
+    def __init__(self, db_path: Path, run_id: int) -> None:
+        self.path = db_path.with_name(f"{db_path.name}.run-{run_id}.end")
+        self.run_id = run_id
+        self.ready = False
+        """Reserved (or found) with its full size: `write` can work on a full disk."""
+
+    def _body(self, outcome: str | None, ended: float | None) -> bytes:
+        text = json.dumps({"run": self.run_id, "outcome": outcome, "ended": ended})
+        return text.encode("ascii").ljust(MARK_BYTES, b" ")[:MARK_BYTES]
+
+    def reserve(self) -> bool:
+        """Make the file (0600, synced, its folder too) while there is room. A mark that is
+        already there is kept as it is: after a restart it may hold the end of the run."""
+        try:
+            if self.path.exists() and self.path.stat().st_size >= MARK_BYTES:
+                self.ready = True
+                return True
+            fd = os.open(self.path, os.O_WRONLY | os.O_CREAT | os.O_TRUNC, 0o600)
+            try:
+                os.write(fd, self._body(None, None))
+                os.fsync(fd)
+            finally:
+                os.close(fd)
+            _sync_folder(self.path.parent)
+            self.ready = True
+        except OSError:
+            self.ready = False  # the database alone keeps the end (as before marks)
+        return self.ready
+
+    def write(self, outcome: str, ended: float) -> bool:
+        """The run's end, synced to the disk; False when it could not be."""
+        if not self.ready:
+            return False
+        try:
+            fd = os.open(self.path, os.O_WRONLY)
+            try:
+                os.pwrite(fd, self._body(outcome, ended), 0)
+                os.fsync(fd)
+            finally:
+                os.close(fd)
+        except OSError:
+            return False
+        return True
+
+    def read(self) -> dict[str, Any] | None:
+        try:
+            data = json.loads(self.path.read_bytes())
+        except (OSError, ValueError):
+            return None
+        if not isinstance(data, dict) or not isinstance(data.get("outcome"), str):
+            return None
+        ended = data.get("ended")
+        return {"outcome": data["outcome"],
+                "ended": float(ended) if isinstance(ended, int | float) else None}
+
+    def remove(self) -> None:
+        """The database has the end: the mark is no longer needed."""
+        with contextlib.suppress(OSError):
+            self.path.unlink()
+        self.ready = False
+
+
+def _sync_folder(folder: Path) -> None:
+    """A new file's name is durable only once its folder is synced."""
+    with contextlib.suppress(OSError):
+        fd = os.open(folder, os.O_RDONLY)
+        try:
+            os.fsync(fd)
+        finally:
+            os.close(fd)
 
 
 class _WalCheckpointer:
@@ -486,8 +621,12 @@ class RunRecorder:
         self.samples_written = 0
         self.events_written = 0
         self.longest_commit_s = 0.0
+        self.end_marked = False
+        """The run's end reached the end mark (EndMark.write) when the run ended."""
         self.dropped = 0
         self._closed = False
+        self.mark = EndMark(path, run_id) if path is not None else None
+        """The run's end mark (see EndMark): reserved by RunLog when the run starts."""
 
     def sample(self, t: float, chamber_c: float | None, load_c: float | None,
                core_c: float | None, setpoint_c: float | None, output_pct: float | None,
@@ -611,6 +750,9 @@ class RunRecorder:
         return len(self._samples) + len(self._events)
 
     def end(self, outcome: str, ended: float) -> bool:
+        # The mark first: if the database cannot take the end (a full disk), a restart must
+        # still see that the run is over and must not heat again.
+        self.end_marked = self.mark is not None and self.mark.write(outcome, ended)
         with contextlib.suppress(sqlite3.Error):
             self.conn.execute(f"PRAGMA busy_timeout={READER_BUSY_MS}")
         ok = self.flush(force=True)
@@ -618,8 +760,12 @@ class RunRecorder:
             self.conn.execute("UPDATE runs SET outcome = ?, ended = ? WHERE id = ?",
                               (outcome, ended, self.run_id))
         except sqlite3.Error as exc:
-            self.trouble = str(exc)
+            kept = (f"; the end is kept in {self.mark.path}" if self.mark and self.end_marked
+                    else "; the end could not be kept anywhere else either")
+            self.trouble = f"{exc}{kept}"
             return False
+        if self.mark is not None:
+            self.mark.remove()
         return ok
 
     def close(self) -> None:

@@ -9,6 +9,13 @@ from __future__ import annotations
 
 import math
 import re
+from typing import TYPE_CHECKING, TypeVar
+
+if TYPE_CHECKING:  # the core loads numpy only where it computes with it
+    import numpy as np
+
+# One conversion serves a single reading and a whole column of a log.
+FloatOrArray = TypeVar("FloatOrArray", float, "np.ndarray")
 
 Units = str  # "C" or "F"
 UNITS = ("C", "F")
@@ -18,11 +25,11 @@ ROOM_C = 20.0  # the plan starts here unless told otherwise
 ROOM_F = 68.0
 
 
-def c_to_f(celsius: float) -> float:
+def c_to_f(celsius: FloatOrArray) -> FloatOrArray:
     return celsius * 9.0 / 5.0 + 32.0
 
 
-def f_to_c(fahrenheit: float) -> float:
+def f_to_c(fahrenheit: FloatOrArray) -> FloatOrArray:
     return (fahrenheit - 32.0) * 5.0 / 9.0
 
 

@@ -20,7 +20,7 @@ from dataclasses import dataclass
 from typing import Any
 
 from tuikiln import events as ev
-from tuikiln.limits import suggest
+from tuikiln.drivers.checking import Setting, check_table, keys_of, suggest
 from tuikiln.units import parse_duration
 
 Problems = list[tuple[tuple, str]]
@@ -30,13 +30,31 @@ DEFAULT_PREFIX = "tuikiln"
 DEFAULT_DISCOVERY_PREFIX = "homeassistant"
 DEFAULT_HOOK_TIMEOUT = 30.0
 
-MQTT_KEYS = (
-    "host", "port", "username", "password_file", "password_env", "tls", "tls_cert", "tls_key",
-    "prefix", "id", "readings", "discovery", "discovery_prefix", "commands", "keepalive",
+# The declared keys of [mqtt] (tuikiln.drivers.checking checks them); `any` keys are checked
+# by code in `_check_mqtt` (files that must exist, topics, the id).
+MQTT: tuple[Setting, ...] = (
+    Setting("host", "text", strip=True, example='"127.0.0.1"',
+            missing='"host" is missing: write host = "..."'),
+    Setting("port", "whole", None, 1, 65535),
+    Setting("username", "text", strip=True, example='"kiln"'),
+    Setting("password_file"),
+    Setting("password_env", "text", DEFAULT_PASSWORD_ENV, strip=True,
+            example=f'"{DEFAULT_PASSWORD_ENV}"'),
+    Setting("tls"), Setting("tls_cert"), Setting("tls_key"),
+    Setting("prefix", "text", DEFAULT_PREFIX, strip=True, example=f'"{DEFAULT_PREFIX}"'),
+    Setting("id", "text", strip=True, example='"bench-oven"'),
+    Setting("readings", "flag", True),
+    Setting("discovery", "flag", False),
+    Setting("discovery_prefix", "text", DEFAULT_DISCOVERY_PREFIX, strip=True,
+            example=f'"{DEFAULT_DISCOVERY_PREFIX}"'),
+    Setting("commands", "flag", False),
+    Setting("keepalive", "whole", 30, 2, 3600),
 )
+MQTT_KEYS = keys_of(MQTT)
 # Keys people reach for that would put a secret into the kiln file (and so into run logs).
 _SECRET_KEYS = ("password", "passwd", "pass", "pw", "secret", "token")
-HOOK_KEYS = ("on", "run", "timeout")
+HOOK: tuple[Setting, ...] = (Setting("on"), Setting("run"), Setting("timeout"))
+HOOK_KEYS = keys_of(HOOK)
 
 # Groups a hook's `on` may name besides single event kinds.
 ALL_KINDS: tuple[str, ...] = (
@@ -132,14 +150,6 @@ def _resolve_path(text: str, base_dir: str) -> str:
     return path if os.path.isabs(path) else os.path.normpath(os.path.join(base_dir, path))
 
 
-def _unknown_keys(table: Mapping, known: tuple[str, ...], path: tuple) -> Problems:
-    problems: Problems = []
-    for key in table:
-        if key not in known:
-            problems.append(((*path, key), f'unknown key "{key}"{suggest(key, known)}'))
-    return problems
-
-
 def _readable_file(
     value: Any, key: str, base_dir: str, path: tuple, problems: Problems
 ) -> str | None:
@@ -181,39 +191,11 @@ def _check_mqtt(
                 f'password_file = "~/.config/tuikiln/mqtt.pass", or set the environment '
                 f"variable {DEFAULT_PASSWORD_ENV}"
             )))
-    problems += _unknown_keys(
-        {k: v for k, v in table.items() if str(k).lower() not in _SECRET_KEYS}, MQTT_KEYS, root
-    )
-    values: dict[str, Any] = {}
-
-    def text(key: str, required: bool = False) -> str | None:
-        value = table.get(key)
-        if value is None:
-            if required:
-                problems.append(((*root, key), f'"{key}" is missing: write {key} = "..."'))
-            return None
-        if not isinstance(value, str) or not value.strip():
-            problems.append(((*root, key), f'"{key}" must be text in quotes, such as "{key}"'))
-            return None
-        return value.strip()
-
-    def flag(key: str, default: bool) -> bool:
-        value = table.get(key, default)
-        if not isinstance(value, bool):
-            problems.append(((*root, key), f'"{key}" must be true or false (no quotes)'))
-            return default
-        return value
-
-    def integer(key: str, default: int, low: int, high: int) -> int:
-        value = table.get(key, default)
-        if isinstance(value, bool) or not isinstance(value, int) or not low <= value <= high:
-            problems.append(((*root, key), f'"{key}" must be a whole number from {low} to {high}'))
-            return default
-        return value
-
-    values["host"] = text("host", required=True) or ""
-    values["username"] = text("username")
-    values["password_env"] = text("password_env") or DEFAULT_PASSWORD_ENV
+    values = check_table({k: v for k, v in table.items() if str(k).lower() not in _SECRET_KEYS},
+                         MQTT, root, problems)
+    for key in ("password_file", "tls", "tls_cert", "tls_key"):
+        values.pop(key)  # set below, by the checks that need code
+    values["host"] = values["host"] or ""
     if "password_env" in table and values["password_env"] != DEFAULT_PASSWORD_ENV:
         if not re.match(r"^[A-Za-z_][A-Za-z0-9_]*$", values["password_env"]):
             problems.append(((*root, "password_env"), '"password_env" must be the name of an '
@@ -247,19 +229,18 @@ def _check_mqtt(
     if ("tls_cert" in table or "tls_key" in table) and table.get("tls", False) is False:
         problems.append(((*root, "tls"), 'a client certificate needs TLS: set tls = true '
                          '(the system\'s trusted CAs) or tls = "path/to/ca.crt"'))
-    values["port"] = integer("port", 8883 if values["tls"] else 1883, 1, 65535)
-    values["keepalive"] = integer("keepalive", 30, 2, 3600)
+    if values["port"] is None:
+        values["port"] = 8883 if values["tls"] else 1883
 
-    topic_keys = (("prefix", DEFAULT_PREFIX), ("discovery_prefix", DEFAULT_DISCOVERY_PREFIX))
-    for key, default in topic_keys:
-        value = text(key) if key in table else default
+    for key, default in (("prefix", DEFAULT_PREFIX),
+                         ("discovery_prefix", DEFAULT_DISCOVERY_PREFIX)):
+        value = values[key]
         if value is not None:
             if any(c in value for c in "+#\0") or value.startswith("/") or value.endswith("/"):
                 problems.append(((*root, key), f'"{key}" must be a topic without "+", "#" or a '
                                  f'leading or trailing "/", such as "{default}"'))
-            values[key] = value
     if "id" in table:
-        value = text("id")
+        value = values["id"]
         if value is not None and not _ID_RE.match(value):
             problems.append(((*root, "id"),
                              f'"id" may hold only a-z, 0-9 and "-": try "{kiln_id(value)}"'))
@@ -267,9 +248,6 @@ def _check_mqtt(
     else:
         values["id"] = kiln_id(kiln_name)
 
-    values["readings"] = flag("readings", True)
-    values["discovery"] = flag("discovery", False)
-    values["commands"] = flag("commands", False)
     if values["commands"] and not values["username"]:
         problems.append(((*root, "commands"), (
             'commands = true needs a login: remote commands are accepted only over an '
@@ -353,7 +331,7 @@ def _check_hooks(entries: Any, base_dir: str) -> tuple[list[HookSpec], Problems]
             problems.append((root, "each [[hook]] must be a table with on = [...] and run = [...]"))
             continue
         before = len(problems)
-        problems += _unknown_keys(entry, HOOK_KEYS, root)
+        check_table(entry, HOOK, root, problems)
 
         kinds: set[str] = set()
         on = entry.get("on")

@@ -91,7 +91,7 @@ def from_csv(path: str | Path, layout: Any, profile: Profile, kiln: Any = None) 
         samples["load_c"] = log.load_c
     alarms = kiln.alarms if kiln is not None else {}
     limits = Limits().merged(alarms).merged(profile.limits)
-    run = {"csv": str(path), "profile": profile.name}
+    run: dict[str, Any] = {"csv": str(path), "profile": profile.name}
     if log.start_epoch is not None:
         run["started_epoch"] = log.start_epoch
     return Loaded(Trace.from_samples(samples, float(log.time_s[0])), profile, limits, [],

@@ -370,7 +370,7 @@ class _Analysis:
             float(self.t[lo]) if lo < n else None)
         finished = end_event is not None or hi < n
         end_t = float(end_event["time"]) if end_event else (float(self.t[hi]) if hi < n else None)
-        if start_event is not None:
+        if start_event is not None and start_t is not None:
             lo = int(np.searchsorted(self.t, start_t, "left"))
         if end_event is not None and end_t is not None:
             hi = int(np.searchsorted(self.t, end_t, "right"))

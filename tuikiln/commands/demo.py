@@ -22,6 +22,7 @@ from pathlib import Path
 from tuikiln.errors import UserError
 from tuikiln.kiln import Kiln, load_kiln
 from tuikiln.profile import load_profile
+from tuikiln.ui.glyphs import add_glyphs_option, glyphs_from_args
 
 HELP = "watch a whole harden-and-temper cycle on the built-in simulator, sped up"
 # Inside the package (tuikiln.profiles), so the demo finds it after any install.
@@ -40,9 +41,11 @@ def add_arguments(parser: argparse.ArgumentParser) -> None:
     parser.add_argument("--units", type=str.upper, choices=("C", "F"),
                         help="show temperatures in C or F (default: the profile's)")
     parser.add_argument("--no-bell", action="store_true", help="do not ring the bell")
+    add_glyphs_option(parser)
 
 
 def run(args: argparse.Namespace) -> int:
+    args.glyph_set = glyphs_from_args(args)  # a bad $TUIKILN_GLYPHS stops here
     if not args.speed > 0:
         raise UserError(f"--speed must be more than 0, not {args.speed:g}")
     profile = load_profile(args.profile)
@@ -99,7 +102,7 @@ async def demo(kiln: Kiln, profile, data_dir: Path, args: argparse.Namespace
                 title=f"tuikiln demo · simulated oven at {args.speed:g}× speed",
                 leave_words="The demo's simulated run has ended. Start your own with "
                 "`tuikiln home`, or run the demo again with `tuikiln demo`."),
-            units=args.units or profile.units, bell=not args.no_bell)
+            units=args.units or profile.units, bell=not args.no_bell, glyphs=args.glyph_set)
         # A closed terminal (SIGHUP) or a kill (SIGTERM) ends the demo's run cleanly, logged.
         loop = asyncio.get_running_loop()
         for signum in (signal.SIGHUP, signal.SIGTERM):

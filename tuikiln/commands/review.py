@@ -5,8 +5,13 @@ from __future__ import annotations
 
 import argparse
 import sys
+from typing import TYPE_CHECKING
 
 from tuikiln.errors import UserError
+from tuikiln.ui.glyphs import add_glyphs_option, glyphs_from_args
+
+if TYPE_CHECKING:
+    from tuikiln.runlog import RunInfo
 
 HELP = "look back at a past run on screen: chart against the plan, cursor, verdicts, notes"
 
@@ -16,9 +21,11 @@ def add_arguments(parser: argparse.ArgumentParser) -> None:
                         help='a run id from `tuikiln runs`, or "last" (default)')
     parser.add_argument("--units", type=str.upper, choices=("C", "F"),
                         help="show temperatures in C or F (default: the run's)")
+    add_glyphs_option(parser)
 
 
 def run(args: argparse.Namespace) -> int:
+    args.glyph_set = glyphs_from_args(args)  # a bad $TUIKILN_GLYPHS stops here
     from tuikiln.ui.app import TuikilnApp
     from tuikiln.ui.launcher import Launcher
     from tuikiln.ui.screens.replay import ReplayScreen
@@ -27,6 +34,7 @@ def run(args: argparse.Namespace) -> int:
     runs = launcher.runs(100000)
     if not runs:
         raise UserError(f"there are no runs in {launcher.data_dir} yet")
+    chosen: RunInfo | None
     if args.run_id == "last":
         chosen = runs[0]
     else:
@@ -38,7 +46,8 @@ def run(args: argparse.Namespace) -> int:
         if chosen is None:
             raise UserError(f"there is no run {wanted} in {launcher.data_dir}: see `tuikiln runs`")
     link = launcher.link(chosen.id, live=False)
-    app = TuikilnApp(lambda: ReplayScreen(link), units=args.units or chosen.units or "C")
+    app = TuikilnApp(lambda: ReplayScreen(link), units=args.units or chosen.units or "C",
+                     glyphs=args.glyph_set)
     app.run()
     link.close()
     if app.return_code:  # the screen stopped on an error; Textual has printed it above

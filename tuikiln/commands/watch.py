@@ -9,6 +9,7 @@ import argparse
 import sys
 
 from tuikiln.errors import UserError
+from tuikiln.ui.glyphs import add_glyphs_option, glyphs_from_args
 
 HELP = "watch the run going on in the live screen (leaving it leaves the run going)"
 
@@ -17,9 +18,11 @@ def add_arguments(parser: argparse.ArgumentParser) -> None:
     parser.add_argument("--units", type=str.upper, choices=("C", "F"),
                         help="show temperatures in C or F (default: the kiln's)")
     parser.add_argument("--no-bell", action="store_true", help="do not ring the bell")
+    add_glyphs_option(parser)
 
 
 def run(args: argparse.Namespace) -> int:
+    args.glyph_set = glyphs_from_args(args)  # a bad $TUIKILN_GLYPHS stops here
     from tuikiln import control
     from tuikiln.ui.app import TuikilnApp
     from tuikiln.ui.launcher import Launcher
@@ -33,7 +36,8 @@ def run(args: argparse.Namespace) -> int:
     if link.control is None:
         raise UserError("the run's control socket is not there: see `tuikiln status`")
     app = TuikilnApp(lambda: LiveScreen(link), units=args.units or launcher.kiln.units,
-                     bell=launcher.kiln.bell and not args.no_bell)
+                     bell=launcher.kiln.bell and not args.no_bell,
+                     glyphs=args.glyph_set)
     words = app.run()
     link.close()
     if app.return_code:  # the screen stopped on an error; Textual has printed it above

@@ -26,6 +26,10 @@ The kiln file's `on_restart` says what happens when the engine comes back:
   after a crash nobody has looked at; heat off is the state that cannot hurt.
 - "end": drive safe and end the run, outcome "ended-after-restart".
 
+A run whose end is in its end mark (tuikiln/runlog.py, EndMark: the engine ended it, an
+abort say, but a full disk kept the end out of the database) is over whatever `on_restart`
+says: the restarted engine drives the device safe and logs that end; it never heats.
+
 Two guards over the policy: a "continue" after more than CONTINUE_WITHIN_S away becomes
 "hold" (after half a day the load may have been taken out, the oven may be cold: a person
 decides), and any run away longer than END_AFTER_S is ended (nobody resumes last week's
@@ -69,6 +73,8 @@ class ResumePlan:
     away_s: float
     why: str = ""
     """Why the policy differs from the one asked, in plain words ("" when it does not)."""
+    end_outcome: str | None = None
+    """The outcome to log when the policy is "end" (None: ENDED_AFTER_RESTART)."""
 
     @property
     def away_since(self) -> float:
@@ -122,6 +128,12 @@ def plan_resume(runlog: RunLog, run: RunInfo, asked: str, *, now: float) -> Resu
              float(point["t"]) if point is not None else float(run.started))
     away = max(0.0, now - since)
     policy, why = asked if asked in POLICIES else "hold", ""
+    mark = runlog.end_mark(run.id)
+    if mark is not None:
+        outcome = mark["outcome"]
+        return ResumePlan(run, "end", asked, point, last, away,
+                          f"the run had already ended ({outcome.replace('-', ' ')}) before "
+                          "the restart; the run log could not take it then", outcome)
     if away > END_AFTER_S:
         policy, why = "end", (f"the engine was away more than {END_AFTER_S / 86400:.0f} days")
     elif policy == "continue" and away > CONTINUE_WITHIN_S:

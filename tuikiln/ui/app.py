@@ -8,8 +8,17 @@ from collections.abc import Callable
 from textual.app import App
 from textual.reactive import reactive
 from textual.screen import Screen
+from textual.scrollbar import ScrollBar, ScrollBarRender
 
+from tuikiln.ui.glyphs import Glyphs, choose_glyphs
 from tuikiln.units import Units
+
+
+class CellScrollBar(ScrollBarRender):
+    """A scroll bar of whole cells, for a console font without the eighth blocks."""
+
+    VERTICAL_BARS = [" "] * 8
+    HORIZONTAL_BARS = [" "] * 8
 
 
 class TuikilnApp(App[str]):
@@ -23,14 +32,23 @@ class TuikilnApp(App[str]):
     """Units every screen shows temperatures in (u switches °C/°F)."""
 
     def __init__(self, first_screen: Callable[[], Screen], *, units: Units = "C",
-                 bell: bool = True) -> None:
+                 bell: bool = True, glyphs: Glyphs | None = None) -> None:
         super().__init__()
         self.first_screen = first_screen
         self.bell_on = bell
+        self.glyphs = glyphs or choose_glyphs()
+        """Braille, block or ASCII characters (tuikiln.ui.glyphs); from --glyphs, else
+        $TUIKILN_GLYPHS, else $TERM."""
+        self._scrollbar_before = ScrollBar.renderer
         self.set_reactive(TuikilnApp.units, units)
 
     def on_mount(self) -> None:
+        if not self.glyphs.braille:
+            ScrollBar.renderer = CellScrollBar
         self.push_screen(self.first_screen())
+
+    def on_unmount(self) -> None:
+        ScrollBar.renderer = self._scrollbar_before
 
     def leave(self, words: str) -> None:
         """Leave the current screen: back to the one below, or out of the app."""

@@ -1,9 +1,13 @@
 """Draw temperature traces as braille dots: a pure function from series to styled lines.
 
 Every terminal cell holds a 2 x 4 grid of braille dots, so a 100-column chart has 200 dot
-columns. Each trace is thinned to one min/max bucket per dot column (tuikiln.ui.thinning),
+columns. Each trace is thinned to one min/max bucket per dot column (tuikiln.thinning),
 so a one-sample overshoot still lights the top dot of its column. Where traces share a cell
 the first trace in the list gives the cell its colour; the dots of all traces are kept.
+
+Without braille (the Linux console) or without colour (NO_COLOR), each trace is drawn with
+its own mark, one a cell (tuikiln.ui.glyphs): a cell any of whose dots a trace lights shows
+that trace's mark, the first trace in the list winning, so lines differ by shape.
 
 No Textual here beyond `Strip` (a list of Rich segments), so the drawing is testable alone.
 """
@@ -19,7 +23,8 @@ from rich.segment import Segment
 from rich.style import Style
 from textual.strip import Strip
 
-from tuikiln.ui.thinning import min_max_buckets
+from tuikiln.thinning import min_max_buckets
+from tuikiln.ui.glyphs import BRAILLE_GLYPHS, Glyphs
 
 BRAILLE = np.array([chr(0x2800 + bits) for bits in range(256)] + [" "])
 EMPTY = 256
@@ -214,7 +219,8 @@ def y_axis_labels(y_low: float, y_high: float, rows: int) -> dict[int, str]:
     return labels
 
 
-def time_axis(spec: ChartSpec, cells: int, label: Callable[[float], str]) -> str:
+def time_axis(spec: ChartSpec, cells: int, label: Callable[[float], str],
+              tick_mark: str = "╵") -> str:
     """The bottom line: round elapsed times under their columns."""
     span = spec.t_end - spec.t_start
     line = [" "] * cells
@@ -228,7 +234,7 @@ def time_axis(spec: ChartSpec, cells: int, label: Callable[[float], str]) -> str
         if column is not None and column + 1 + len(text) <= cells and all(
             c == " " for c in line[max(0, column - 1) : column + len(text) + 1]
         ):
-            line[column] = "╵"
+            line[column] = tick_mark
             for offset, char in enumerate(text):
                 if column + 1 + offset < cells:
                     line[column + 1 + offset] = char
@@ -243,12 +249,14 @@ def render_chart(
     palette: Mapping[str, Style] | None = None,
     styles: ChartStyles = ChartStyles(),
     label: Callable[[float], str] = elapsed_label,
+    glyphs: Glyphs = BRAILLE_GLYPHS,
+    shapes: bool = False,
 ) -> list[Strip]:
     """`height` lines of `width` cells: y labels, the plot, and a time axis at the bottom."""
     if width < 8 or height < 3:
         return [Strip([Segment(" " * max(0, width))]) for _ in range(max(0, height))]
     plot = plot_layout(spec, width, height, label)
-    return draw_plot(plot, spec, palette, styles, label)
+    return draw_plot(plot, spec, palette, styles, label, glyphs, shapes)
 
 
 @dataclass(frozen=True)
@@ -289,8 +297,11 @@ def draw_plot(
     palette: Mapping[str, Style] | None = None,
     styles: ChartStyles = ChartStyles(),
     label: Callable[[float], str] = elapsed_label,
+    glyphs: Glyphs = BRAILLE_GLYPHS,
+    shapes: bool = False,
 ) -> list[Strip]:
-    """The lines of a chart laid out by `plot_layout`."""
+    """The lines of a chart laid out by `plot_layout`: braille dots, or each trace's mark
+    when the glyphs have no braille or `shapes` is asked for (no colour to tell them by)."""
     rows = plot.height - 1
     axis_width = AXIS_WIDTH
     cells = plot.width - axis_width
@@ -300,18 +311,26 @@ def draw_plot(
     labels = y_axis_labels(y_low, y_high, rows)
     owners = np.full((rows, cells), -1, dtype=np.int32)
     bits = np.zeros((rows, cells), dtype=np.int32)
-    # Lowest priority first, so the first trace's colour wins where traces share a cell.
+    by_mark = shapes or not glyphs.braille
+    chars = np.full((rows, cells), " ", dtype="<U1")
+    # Lowest priority first, so the first trace's colour (or mark) wins in a shared cell.
     for index in range(len(traces) - 1, -1, -1):
-        mask = columns_mask(columns[index], traces[index].dashed, y_low, y_high, dot_row_count)
+        # A mark is a whole cell: dashing it too would leave gaps a cell wide.
+        dashed = traces[index].dashed and not by_mark
+        mask = columns_mask(columns[index], dashed, y_low, y_high, dot_row_count)
         cell_bits = braille_bits(mask, rows, cells)
         owners = np.where(cell_bits > 0, index, owners)
         bits |= cell_bits
-    chars = np.where(bits > 0, BRAILLE[np.minimum(bits, 255)], " ").astype("<U1")
+        if by_mark:
+            chars[cell_bits > 0] = glyphs.mark(traces[index].role)
+    if not by_mark:
+        chars = np.where(bits > 0, BRAILLE[np.minimum(bits, 255)], " ").astype("<U1")
     palette = palette or {}
     trace_styles = [palette.get(trace.role, Style()) for trace in traces]
     marker_owner = len(traces)
     cursor_owner = len(traces) + 1
-    for t, glyph, owner in ((spec.now, "│", marker_owner), (spec.cursor, "┃", cursor_owner)):
+    for t, glyph, owner in ((spec.now, glyphs.now, marker_owner),
+                            (spec.cursor, glyphs.cursor, cursor_owner)):
         column = cell_column(t, spec, cells)
         if column is None:
             continue
@@ -324,8 +343,8 @@ def draw_plot(
     lines: list[Strip] = []
     for row in range(rows):
         text = labels.get(row)
-        axis = (text[-(axis_width - 1):].rjust(axis_width - 1) + "┤") if text else (
-            " " * (axis_width - 1) + "│")
+        axis = (text[-(axis_width - 1):].rjust(axis_width - 1) + glyphs.axis_label) if text \
+            else (" " * (axis_width - 1) + glyphs.axis_line)
         segments = [Segment(axis, styles.axis)]
         row_owners = owners[row]
         row_chars = chars[row]
@@ -338,7 +357,8 @@ def draw_plot(
             # A contiguous <U1 slice is UTF-32 text already: decode it in one go.
             segments.append(Segment(row_chars[start:stop].tobytes().decode("utf-32-le"), style))
         lines.append(Strip(segments, plot.width))
-    bottom = " " * (axis_width - 1) + "└" + time_axis(spec, cells, label)
+    bottom = (" " * (axis_width - 1) + glyphs.corner
+              + time_axis(spec, cells, label, glyphs.time_tick))
     lines.append(Strip([Segment(bottom, styles.axis)], plot.width))
     return lines
 

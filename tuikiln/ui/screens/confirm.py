@@ -4,7 +4,7 @@ from __future__ import annotations
 
 from textual.app import ComposeResult
 from textual.binding import Binding
-from textual.containers import Vertical
+from textual.containers import Vertical, VerticalScroll
 from textual.screen import ModalScreen
 from textual.widgets import Static
 
@@ -18,6 +18,8 @@ class ConfirmScreen(ModalScreen[bool]):
         width: 70; max-width: 95%; height: auto; max-height: 90%;
         border: thick $warning; background: $surface; padding: 1 2;
     }
+    /* Long details scroll, so the y/n line stays on screen even at 80x24. */
+    ConfirmScreen #confirm-scroll { height: auto; max-height: 55vh; }
     ConfirmScreen #confirm-keys { margin-top: 1; text-style: bold; }
     """
 
@@ -36,7 +38,8 @@ class ConfirmScreen(ModalScreen[bool]):
         with Vertical():
             yield Static(self.question, id="confirm-question")
             if self.details:
-                yield Static(self.details, id="confirm-details", markup=False)
+                with VerticalScroll(id="confirm-scroll"):
+                    yield Static(self.details, id="confirm-details", markup=False)
             yield Static(f"[y] {self.yes}    [n] no, go back", id="confirm-keys", markup=False)
 
     def action_answer(self, answer: bool) -> None:

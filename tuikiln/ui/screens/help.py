@@ -23,7 +23,8 @@ def key_table(screen: Screen) -> Text:
         seen.add(binding.action)
         keys = ", ".join(screen.app.get_key_display(Binding(k.strip(), "")) for k in
                          binding.key.split(","))
-        rows.append((keys, binding.description or binding.action))
+        # The footer has room for a word; the tooltip, where there is one, says it whole.
+        rows.append((keys, binding.tooltip or binding.description or binding.action))
     width = max((len(keys) for keys, _ in rows), default=4) + 3
     text = Text("\n")
     for keys, words in rows:

@@ -5,6 +5,7 @@ from __future__ import annotations
 import asyncio
 import time
 from pathlib import Path
+from typing import TYPE_CHECKING
 
 from rich.text import Text
 from textual import events, work
@@ -12,10 +13,13 @@ from textual.app import ComposeResult
 from textual.binding import Binding
 from textual.containers import Horizontal, Vertical
 from textual.screen import Screen
-from textual.widgets import DataTable, Footer, Static
+from textual.widgets import DataTable, Static
 
 from tuikiln.control import ActiveRun
 from tuikiln.errors import UserError
+from tuikiln.limits import Limits
+from tuikiln.ovenmodel_plan import predict
+from tuikiln.ovenmodel_store import quiet_saved_model
 from tuikiln.plan import plan_profile
 from tuikiln.profile import load_profile
 from tuikiln.runlog import RunInfo
@@ -24,7 +28,13 @@ from tuikiln.ui.screens.help import SAFETY, HelpScreen
 from tuikiln.ui.screens.live import LiveScreen
 from tuikiln.ui.screens.preview import PreviewScreen
 from tuikiln.ui.screens.replay import ReplayScreen
+from tuikiln.ui.widgets.key_footer import KeyFooter
 from tuikiln.units import format_duration, format_temp
+
+if TYPE_CHECKING:
+    from textual import getters
+
+    from tuikiln.ui.app import TuikilnApp
 
 ABOUT = ("Home. Pick a profile and press Enter to see its plan (s there starts it), or pick a "
          "past run and press Enter to replay it. Tab moves between the lists.")
@@ -48,8 +58,12 @@ def device_words(launcher: Launcher) -> str:
 
 
 class HomeScreen(Screen[None]):
+    if TYPE_CHECKING:  # the app every screen runs in, for the checker (no runtime check)
+        app = getters.app(TuikilnApp)
+
     BINDINGS = [
-        Binding("enter", "open", "Open"),
+        # Priority: the lists would take Enter for themselves and the footer hide it.
+        Binding("enter", "open", "Open", priority=True),
         Binding("w", "watch", "Watch the going run"),
         Binding("tab", "app.focus_next", "Next list", show=False),
         Binding("g", "refresh", "Refresh"),
@@ -72,7 +86,7 @@ class HomeScreen(Screen[None]):
                 yield DataTable(id="home-profiles", cursor_type="row", zebra_stripes=True)
             yield DataTable(id="home-runs", cursor_type="row", zebra_stripes=True)
         yield Static(SAFETY, id="home-help")
-        yield Footer()
+        yield KeyFooter()
 
     def on_resize(self, event: events.Resize) -> None:
         # Below 120 columns the two tables cut their columns off: stack them (app.tcss).
@@ -83,7 +97,7 @@ class HomeScreen(Screen[None]):
         profiles.border_title = "Profiles (Enter: plan and start)"
         runs = self.query_one("#home-runs", DataTable)
         runs.border_title = "Recent runs (Enter: replay or watch)"
-        self.watch(self.app, "units", lambda _u: self.action_refresh(), init=False)
+        self.watch(self.app, "units", self.units_changed, init=False)
         self.action_refresh()
         # A run started or ended elsewhere (another terminal) shows in the kiln line.
         self.set_interval(GOING_REFRESH_S, self.refresh_going)
@@ -110,6 +124,9 @@ class HomeScreen(Screen[None]):
     @work(exclusive=True, group="home-going")
     async def refresh_going(self) -> None:
         self.show_kiln(await asyncio.to_thread(self.launcher.going_run))
+
+    def units_changed(self, _units: str) -> None:
+        self.action_refresh()
 
     @work(exclusive=True, group="home-refresh")
     async def action_refresh(self) -> None:
@@ -140,13 +157,20 @@ class HomeScreen(Screen[None]):
     def profile_rows(self, paths: list[Path]) -> list[tuple[str, str, str, str]]:
         rows = []
         units = self.app.units
+        kiln = self.launcher.kiln
+        # With a learned oven the total is what this oven takes ("~"), as `plan` predicts.
+        model = quiet_saved_model(self.launcher.data_dir, kiln.name)
         for path in paths:
             try:
-                plan = plan_profile(load_profile(path, max_c=self.launcher.kiln.max_c))
+                plan = plan_profile(load_profile(path, max_c=kiln.max_c))
             except UserError:
                 rows.append((f"✖ {path.stem} (has mistakes)", "", "", path.name))
                 continue
             total = format_duration(plan.total_s) + ("+" if plan.open_ended else "")
+            if model is not None:
+                band = Limits().merged(kiln.alarms).merged(plan.profile.limits).band
+                predicted = predict(plan, model, band).total_s
+                total = "never" if predicted is None else "~" + format_duration(predicted)
             rows.append((plan.profile.name[:40], format_temp(plan.peak_c, units), total,
                          path.name))
         return rows

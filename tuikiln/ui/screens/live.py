@@ -10,7 +10,7 @@ from __future__ import annotations
 import asyncio
 import time
 from collections.abc import Callable, Mapping
-from typing import Any
+from typing import TYPE_CHECKING, Any
 
 from textual import events, work
 from textual.app import ComposeResult
@@ -18,7 +18,7 @@ from textual.binding import Binding
 from textual.containers import Horizontal, Vertical
 from textual.css.query import NoMatches
 from textual.screen import Screen
-from textual.widgets import Footer, Static
+from textual.widgets import Static
 
 from tuikiln.profile import Pause
 from tuikiln.ui.chartdata import LAST_HOUR, WHOLE_RUN, live_chart
@@ -29,10 +29,16 @@ from tuikiln.ui.screens.note import NoteScreen
 from tuikiln.ui.widgets.alarm_banner import AlarmBanner
 from tuikiln.ui.widgets.chart import TemperatureChart
 from tuikiln.ui.widgets.event_log import EventLog
+from tuikiln.ui.widgets.key_footer import KeyFooter
 from tuikiln.ui.widgets.readout import Readout
 from tuikiln.ui.widgets.textupdate import update_in_place
 from tuikiln.ui.words import ACK_KEY, unacknowledged
 from tuikiln.units import format_duration
+
+if TYPE_CHECKING:
+    from textual import getters
+
+    from tuikiln.ui.app import TuikilnApp
 
 ABOUT = ("The live run. The chart shows the chamber, the load (or its estimated core), the "
          "setpoint so far and the plan ahead of now (dashed). Leaving with q leaves the run "
@@ -43,19 +49,22 @@ BELL_KINDS = ("alarm-raised", "operator-needed")
 class LiveScreen(Screen[None]):
     """Follows one run through a RunLink."""
 
-    # Footer order is what a narrow terminal keeps: the keys of the run first, then the
-    # way out and help, then the view (at 80 columns the last ones are cut off).
+    if TYPE_CHECKING:  # the app every screen runs in, for the checker (no runtime check)
+        app = getters.app(TuikilnApp)
+
+    # Every key but the bell's fits the footer at 80 columns (short words, compact footer);
+    # the help (?) gives each its long words. Order: the run's keys first, then the way out.
     BINDINGS = [
-        Binding("a", "acknowledge", "Acknowledge"),
-        Binding("p", "pause", "Pause"),
-        Binding("r", "resume", "Resume"),
-        Binding("s", "skip", "Skip"),
-        Binding("x", "abort", "Abort"),
-        Binding("n", "note", "Note"),
-        Binding("q", "leave", "Leave"),
-        Binding("question_mark,f1", "help", "Help"),
-        Binding("u", "switch_units", "°C/°F"),
-        Binding("z", "zoom", "Zoom"),
+        Binding("a", "acknowledge", "Ack", tooltip="Acknowledge the alarms or the pause"),
+        Binding("p", "pause", "Pause", tooltip="Pause: hold the setpoint, stop the clocks"),
+        Binding("r", "resume", "Resume", tooltip="Resume a paused run"),
+        Binding("s", "skip", "Skip", tooltip="Skip to the next step (asks first)"),
+        Binding("x", "abort", "Abort", tooltip="Abort: heat off, setpoint down (asks first)"),
+        Binding("n", "note", "Note", tooltip="Add a note to the run's log"),
+        Binding("q", "leave", "Leave", tooltip="Leave the screen; the run goes on"),
+        Binding("question_mark,f1", "help", "Help", tooltip="Every key, with what it does"),
+        Binding("u", "switch_units", "°C/°F", tooltip="Show °C or °F"),
+        Binding("z", "zoom", "Zoom", tooltip="Chart: the whole run or the last hour"),
         Binding("b", "toggle_bell", "Bell on/off", show=False),
     ]
 
@@ -96,7 +105,7 @@ class LiveScreen(Screen[None]):
                 yield Readout(id="live-readout")
         yield AlarmBanner(id="live-alarms")
         yield EventLog(id="live-events")
-        yield Footer()
+        yield KeyFooter()
 
     def on_mount(self) -> None:
         self.bell_on = bool(getattr(self.app, "bell_on", True))
@@ -200,7 +209,7 @@ class LiveScreen(Screen[None]):
             self.app.bell()
 
     def maybe_auto_acknowledge(self) -> None:
-        waiting = bool(self.status) and self.status.get("step_state") == "waiting-you"
+        waiting = self.status is not None and self.status.get("step_state") == "waiting-you"
         if not waiting:
             self.waiting_since = None
             self.show_notice("")
@@ -237,6 +246,13 @@ class LiveScreen(Screen[None]):
 
     # ----- commands -----
 
+    def send_if_yes(self, name: str) -> Callable[[bool | None], None]:
+        """The answer to a confirmation: send the command `name` on a yes."""
+        def answer(yes: bool | None) -> None:
+            if yes:
+                self.send(name)
+        return answer
+
     @work(group="live-commands")
     async def send(self, name: str, arg: str | None = None) -> None:
         try:
@@ -266,17 +282,20 @@ class LiveScreen(Screen[None]):
                 words = f"step {index + 1} ({describe_step(step, self.app.units)})"
         self.app.push_screen(
             ConfirmScreen(f"Skip {words} and go on to the next one?", yes="skip it"),
-            lambda yes: self.send("skip") if yes else None)
+            self.send_if_yes("skip"))
 
     def action_abort(self) -> None:
         self.app.push_screen(
             ConfirmScreen("Abort the run? The heating stops and the setpoint goes down; "
                           "the run cannot be resumed.", yes="abort the run"),
-            lambda yes: self.send("abort") if yes else None)
+            self.send_if_yes("abort"))
 
     def action_note(self) -> None:
-        self.app.push_screen(NoteScreen(),
-                             lambda text: self.send("note", text) if text else None)
+        def take_note(text: str | None) -> None:
+            if text:
+                self.send("note", text)
+
+        self.app.push_screen(NoteScreen(), take_note)
 
     def action_switch_units(self) -> None:
         self.app.units = "F" if self.app.units == "C" else "C"

@@ -6,13 +6,14 @@ from __future__ import annotations
 import time
 from collections.abc import Callable
 from pathlib import Path
+from typing import TYPE_CHECKING
 
 from rich.text import Text
 from textual.app import ComposeResult
 from textual.binding import Binding
 from textual.containers import Vertical
 from textual.screen import Screen
-from textual.widgets import DataTable, Footer, Static
+from textual.widgets import DataTable, Static
 
 from tuikiln.errors import FileProblems, UserError
 from tuikiln.plan import Plan, plan_profile
@@ -21,7 +22,13 @@ from tuikiln.ui.chartdata import preview_chart
 from tuikiln.ui.screens.confirm import ConfirmScreen
 from tuikiln.ui.screens.help import SAFETY, HelpScreen
 from tuikiln.ui.widgets.chart import TemperatureChart
+from tuikiln.ui.widgets.key_footer import KeyFooter
 from tuikiln.units import format_duration, format_temp
+
+if TYPE_CHECKING:
+    from textual import getters
+
+    from tuikiln.ui.app import TuikilnApp
 
 ABOUT = ("A profile before it runs. Steps marked … are open-ended: their length is known "
          "only at run time (a 'max' ramp, waiting for the load to even out, a free cool, a "
@@ -48,6 +55,9 @@ def summary_text(plan: Plan, units: str, now: float) -> Text:
 
 class PreviewScreen(Screen[None]):
     """Opened from home on a profile; s starts it (after a summary and a yes)."""
+
+    if TYPE_CHECKING:  # the app every screen runs in, for the checker (no runtime check)
+        app = getters.app(TuikilnApp)
 
     BINDINGS = [
         Binding("s", "start", "Start this run"),
@@ -80,7 +90,7 @@ class PreviewScreen(Screen[None]):
                 yield TemperatureChart(id="preview-chart")
                 yield Static("", id="preview-summary")
                 yield DataTable(id="preview-steps", cursor_type="row", zebra_stripes=True)
-        yield Footer()
+        yield KeyFooter()
 
     def on_mount(self) -> None:
         self.watch(self.app, "units", self.show, init=True)

@@ -6,7 +6,7 @@ from __future__ import annotations
 import asyncio
 import contextlib
 from collections.abc import Mapping, Sequence
-from typing import Any
+from typing import TYPE_CHECKING, Any
 
 import numpy as np
 from rich.text import Text
@@ -16,7 +16,7 @@ from textual.binding import Binding
 from textual.containers import Horizontal, VerticalScroll
 from textual.css.query import NoMatches
 from textual.screen import Screen
-from textual.widgets import Footer, Static
+from textual.widgets import Static
 
 from tuikiln.profile import describe_step
 from tuikiln.ui.chartdata import replay_chart
@@ -24,7 +24,13 @@ from tuikiln.ui.runfeed import RunHeader, RunLink, SampleBuffer
 from tuikiln.ui.screens.help import HelpScreen
 from tuikiln.ui.widgets.chart import TemperatureChart
 from tuikiln.ui.widgets.event_log import EventLog
+from tuikiln.ui.widgets.key_footer import KeyFooter
 from tuikiln.units import format_duration, format_temp
+
+if TYPE_CHECKING:
+    from textual import getters
+
+    from tuikiln.ui.app import TuikilnApp
 
 ABOUT = ("Replay of a past run. The dashed line is the plan, each step drawn from the "
          "moment it really began. Move the cursor with ← → (Shift: ten times further), "
@@ -75,6 +81,9 @@ def verdict_lines(header: RunHeader, samples: SampleBuffer,
 
 
 class ReplayScreen(Screen[None]):
+    if TYPE_CHECKING:  # the app every screen runs in, for the checker (no runtime check)
+        app = getters.app(TuikilnApp)
+
     BINDINGS = [
         # Priority: the event log below would take these keys for scrolling.
         Binding("left", "move(-1)", "earlier", priority=True),
@@ -108,7 +117,7 @@ class ReplayScreen(Screen[None]):
                 yield Static("", id="replay-cursor")
                 yield Static("", id="replay-verdicts")
         yield EventLog(id="replay-events")
-        yield Footer()
+        yield KeyFooter()
 
     def on_mount(self) -> None:
         self.watch(self.app, "units", self.units_changed, init=False)

@@ -9,6 +9,7 @@ from textual.strip import Strip
 from textual.widget import Widget
 
 from tuikiln.ui.chartdraw import ChartSpec, ChartStyles, draw_plot, plot_layout, render_chart
+from tuikiln.ui.glyphs import BRAILLE_GLYPHS, Glyphs
 
 # Colours chosen to read on dark and on light backgrounds alike (our own choice).
 DARK_PALETTE = {
@@ -36,7 +37,10 @@ SHORT_LEGEND_NAMES = {**LEGEND_NAMES, "core": "core est.", "setpoint": "set"}
 
 
 class TemperatureChart(Widget):
-    """Braille line chart of a run; draws whatever ChartSpec it is given."""
+    """Braille line chart of a run; draws whatever ChartSpec it is given.
+
+    The app's `glyphs` (tuikiln.ui.glyphs) say whether the terminal has braille; with
+    NO_COLOR (Textual's `app.no_color`) every line is drawn with its own mark instead."""
 
     DEFAULT_CSS = """
     TemperatureChart {
@@ -66,6 +70,15 @@ class TemperatureChart(Widget):
     def palette(self) -> dict[str, Style]:
         return DARK_PALETTE if self.app.current_theme.dark else LIGHT_PALETTE
 
+    @property
+    def glyphs(self) -> Glyphs:
+        return getattr(self.app, "glyphs", BRAILLE_GLYPHS)
+
+    @property
+    def shapes(self) -> bool:
+        """Lines told apart by their marks: no braille, or no colour to tell them by."""
+        return bool(self.app.no_color) or not self.glyphs.braille
+
     def draw(self) -> bool:
         """Lay the chart out again; draw its lines only if they would differ. Whether they did."""
         width, height = self.size
@@ -80,15 +93,18 @@ class TemperatureChart(Widget):
             key: tuple = (width, height, dark, lines[0].text, "small")
             if key == self._cache_key:
                 return False
-            lines += render_chart(self.spec, width, plot_height)
+            lines += render_chart(self.spec, width, plot_height, glyphs=self.glyphs,
+                                  shapes=self.shapes)
         else:
             plot = plot_layout(self.spec, width, plot_height)
-            key = (width, height, dark, lines[0].text, plot.key)
+            key = (width, height, dark, lines[0].text, self.glyphs.name, self.shapes,
+                   plot.key)
             if key == self._cache_key:
                 return False
             styles = ChartStyles(axis=Style(dim=True), now=Style(bold=True),
                                  cursor=Style(reverse=True, bold=True))
-            lines += draw_plot(plot, self.spec, self.palette(), styles)
+            lines += draw_plot(plot, self.spec, self.palette(), styles,
+                               glyphs=self.glyphs, shapes=self.shapes)
         base = self.rich_style
         self._cache_key = key
         self._strips = [strip.apply_style(base) for strip in lines]
@@ -102,22 +118,26 @@ class TemperatureChart(Widget):
         return self._strips
 
     def legend(self, palette: dict[str, Style], width: int) -> Strip:
-        """One line naming each trace drawn: solid lines are readings, dashed are plans.
+        """One line naming each trace drawn: solid lines are readings, dashed are plans (or,
+        drawn by shape, each trace's own mark).
 
         The longest wording that fits the width: a legend cut off mid-word names nothing."""
         assert self.spec is not None
+        glyphs, shapes = self.glyphs, self.shapes
         roles: list[tuple[str, bool]] = []
         for trace in self.spec.traces:
             if trace.role not in [role for role, _ in roles]:
                 roles.append((trace.role, trace.dashed))
-        markers = [m for m, shown in (("│ now", self.spec.now is not None),
-                                      ("┃ cursor", self.spec.cursor is not None)) if shown]
+        markers = [m for m, shown in ((f"{glyphs.now} now", self.spec.now is not None),
+                                      (f"{glyphs.cursor} cursor", self.spec.cursor is not None))
+                   if shown]
         wordings = [(LEGEND_NAMES, 2, "  ", markers), (SHORT_LEGEND_NAMES, 1, " ", markers),
                     (SHORT_LEGEND_NAMES, 1, " ", [])]
         for names, mark_width, gap, shown in wordings:
             segments = [Segment(" ")]
             for role, dashed in roles:
-                mark = ("┄" if dashed else "━") * mark_width
+                mark = (glyphs.mark(role) if shapes else
+                        glyphs.dashed if dashed else glyphs.solid) * mark_width
                 segments += [Segment(mark, palette.get(role)),
                              Segment(f" {names.get(role, role)}{gap}")]
             segments += [Segment(f"{m}{gap}", Style(bold=True)) for m in shown]

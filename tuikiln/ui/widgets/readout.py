@@ -12,6 +12,7 @@ from textual.reactive import reactive
 from textual.widgets import Digits, Static
 
 from tuikiln.plan import Plan
+from tuikiln.ui.glyphs import BRAILLE_GLYPHS
 from tuikiln.ui.runfeed import finite
 from tuikiln.ui.widgets.textupdate import update_in_place
 from tuikiln.ui.words import RUN_STATE_WORDS, step_title, step_words, times_ahead
@@ -31,6 +32,8 @@ class Readout(Vertical):
     Readout #big-unit { width: 3; padding: 0 0 0 1; }
     Readout .line { height: auto; }
     Readout #run-state { text-style: bold; }
+    /* Big digits are drawn with box corners a console font lacks: "chamber" below says it. */
+    Readout.-plain #big-row, Readout.-plain #big-label { display: none; }
     """
 
     status: reactive[Mapping[str, Any] | None] = reactive(None, always_update=True)
@@ -64,6 +67,9 @@ class Readout(Vertical):
             return
         self._shown[selector] = plain
         update_in_place(self.query_one(selector, Static), content)
+
+    def on_mount(self) -> None:
+        self.set_class(not getattr(self.app, "glyphs", BRAILLE_GLYPHS).braille, "-plain")
 
     def watch_status(self) -> None:
         self.show()
