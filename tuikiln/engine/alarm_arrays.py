@@ -236,6 +236,10 @@ def _sliding_max(values: np.ndarray, lo: np.ndarray) -> np.ndarray:
     return out
 
 
+def _said_at(say: Callable[[float], str], values: np.ndarray) -> Callable[[int], str]:
+    return lambda k: say(float(values[k]))
+
+
 class _Checks:
     def __init__(self, rules: AlarmRules, seen: Seen) -> None:
         self.rules = rules
@@ -273,7 +277,7 @@ class _Checks:
                 ("no-link", lim.link_lost, self.rules.no_link_words),
                 ("no-link-too-long", lim.link_lost_safe, self.rules.no_link_too_long_words)):
             on = np.flatnonzero(~s.link_ok & (silent >= limit))
-            self._alarm(code, on, ok, lambda k, say=say: say(float(silent[k])))
+            self._alarm(code, on, ok, _said_at(say, silent))
 
     def sensor(self) -> None:
         s, rules = self.s, self.rules
