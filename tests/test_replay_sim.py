@@ -4,6 +4,7 @@ engine writes it (tuikiln.runlog.RunRecorder). Also the checks of those logs."""
 
 from __future__ import annotations
 
+from collections.abc import Callable
 from pathlib import Path
 
 import pytest
@@ -285,16 +286,16 @@ for = "5m"
 """
 
 
-def test_engine_run_with_door_fault(tmp_path: Path, capsys: pytest.CaptureFixture[str]) -> None:
+def test_engine_run_with_door_fault(tmp_path: Path, kiln_file: Callable[..., Path],
+                                    capsys: pytest.CaptureFixture[str]) -> None:
     """The real engine (`tuikiln run --headless --speed max`) on the simulator, door open 5 min
     ten minutes into the soak: the replay says the soak was missed, and why and when."""
     import json
 
-    (tmp_path / "kiln.toml").write_text(KILN_DOOR)
-    (tmp_path / "short.toml").write_text(SHORT_C)
+    kiln, profile = kiln_file(KILN_DOOR), kiln_file(SHORT_C, "short.toml")
     data = str(tmp_path / "data")
-    code, _, err = _cli(capsys, "--data", data, "--kiln", str(tmp_path / "kiln.toml"), "run",
-                        str(tmp_path / "short.toml"), "--headless", "--speed", "max")
+    code, _, err = _cli(capsys, "--data", data, "--kiln", str(kiln), "run",
+                        str(profile), "--headless", "--speed", "max")
     assert code == 0, err
     code, out, err = _cli(capsys, "--data", data, "replay", "last", "--json")
     assert code == 0, err

@@ -2,7 +2,7 @@
 
 Plain SVG 1.1 (no script, no external font or stylesheet), so it opens in any browser and
 parses as XML. Long traces are thinned first, keeping each column's minimum and maximum so
-an overshoot never vanishes from the chart (tuikiln.ui.thinning, pure numpy).
+an overshoot never vanishes from the chart (tuikiln.thinning, pure numpy).
 
 The chart has a viewBox and no fixed size: it takes the width of the page (a phone, a wide
 screen, a printed sheet) and keeps its proportions. Every series has its own dash as well as
@@ -19,7 +19,7 @@ import numpy as np
 
 from tuikiln.analysis.replay import Replay, clock
 from tuikiln.plan import plan_profile
-from tuikiln.ui.thinning import thin
+from tuikiln.thinning import thin
 from tuikiln.units import symbol
 
 WIDTH, HEIGHT = 1000, 470

@@ -158,7 +158,7 @@ def _samples(args: argparse.Namespace) -> tuple[str, dict[str, Any], str]:
     if not path.exists():
         raise UserError(f"no run log in {folder}: no run has been recorded there yet "
                         "(or give --data DIR, or a CSV log)")
-    log = RunLog(path)
+    log = RunLog.reader(path)
     try:
         info = _find_run(log, which)
         samples = log.samples(info.id)

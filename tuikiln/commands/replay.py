@@ -241,7 +241,7 @@ def _load_run(args: argparse.Namespace) -> Any:
     if not path.exists():
         raise UserError(f"no run log in {folder}: no run has been recorded there yet "
                         "(or give --data DIR)")
-    log = RunLog(path)
+    log = RunLog.reader(path)
     try:
         info = _find_run(log, args.run)
         against = _against(args) if args.against else None
