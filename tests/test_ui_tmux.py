@@ -115,7 +115,7 @@ def test_no_color_tells_lines_apart_by_shape_at_80x24(tmux: Tmux, tmp_path: Path
     start(tmux, tmp_path, demo_words(tmp_path), env="NO_COLOR=1")
     # The legend shows each line's mark; the load and the plan ahead appear within seconds.
     screen = tmux.wait_for(f"{BLOCK_MARKS['chamber']} chamber", f"{BLOCK_MARKS['load']} load",
-                           f"{BLOCK_MARKS['plan']} plan", "step 1 of 8")
+                           f"{BLOCK_MARKS['plan']} plan", "step 1 of 8", timeout=40.0)
     lines = screen.splitlines()
     chart = "\n".join(line[:48] for line in lines[2:18])
     assert BLOCK_MARKS["chamber"] in chart and BLOCK_MARKS["plan"] in chart
@@ -134,7 +134,8 @@ def test_linux_console_draws_without_braille(tmux: Tmux, tmp_path: Path) -> None
     from tuikiln.ui.glyphs import BLOCK_MARKS
 
     start(tmux, tmp_path, demo_words(tmp_path), env="TERM=linux")
-    screen = tmux.wait_for(f"{BLOCK_MARKS['chamber']} chamber", "step 1 of 8", "chamber ")
+    screen = tmux.wait_for(f"{BLOCK_MARKS['chamber']} chamber", "step 1 of 8", "chamber ",
+                           timeout=40.0)
     assert not braille_in(screen)
     console_font_has(screen)
     assert "╭" not in screen  # the big digits' rounded corners are not drawn there
@@ -143,7 +144,7 @@ def test_linux_console_draws_without_braille(tmux: Tmux, tmp_path: Path) -> None
 
 def test_override_draws_braille_on_the_linux_console(tmux: Tmux, tmp_path: Path) -> None:
     start(tmux, tmp_path, demo_words(tmp_path) + " --glyphs braille", env="TERM=linux")
-    screen = tmux.wait_for("━ chamber", "step 1 of 8")
+    screen = tmux.wait_for("━ chamber", "step 1 of 8", timeout=40.0)
     assert braille_in(screen)
     tmux("send-keys", "-t", "demo", "q")
 
@@ -174,7 +175,7 @@ def test_every_screen_keys_at_80x24(tmux: Tmux, tmp_path: Path, term: str) -> No
     start(tmux, tmp_path, f"home --data {tmp_path}", env=term)
 
     def footer_has(screen_class: type, *also: str) -> str:
-        screen = tmux.wait_for(*footer_words(screen_class), *also)
+        screen = tmux.wait_for(*footer_words(screen_class), *also, timeout=40.0)
         footer = screen.splitlines()[-1]
         for words in footer_words(screen_class):
             assert words in footer, (words, footer)
