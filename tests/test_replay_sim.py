@@ -41,9 +41,11 @@ to = 420
 def simulate_run(log: RunLog, profile_text: str, *, faults: tuple[Fault, ...] = (),
                  seed: int = 1, load_tc: bool = True, limit_s: float = 30_000.0,
                  every_s: float = 1.0, oven: OvenConfig | None = None,
-                 load: LoadConfig | None = None) -> int:
+                 load: LoadConfig | None = None,
+                 on_tick: Callable[[float, RunRules], None] | None = None) -> int:
     """Run the profile on the simulator with the engine's rules; the run id in `log`
-    (`oven`, `load`: another oven than the default one, with another load)."""
+    (`oven`, `load`: another oven than the default one, with another load; `on_tick` is
+    called with the time from the start and the rules after every tick)."""
     profile = parse_profile(profile_text, "test.toml")
     limits = Limits().merged(profile.limits)
     rules = RunRules(profile, limits, max_c=1200.0)
@@ -71,6 +73,8 @@ def simulate_run(log: RunLog, profile_text: str, *, faults: tuple[Fault, ...] = 
                         st.STATE_CODE.get(stepper.state, 0), 0)
         if decision.setpoint_c is not None:
             kiln.set_setpoint(decision.setpoint_c)
+        if on_tick is not None:
+            on_tick(now - START_T, rules)
         kiln.advance(every_s)
         now += every_s
     recorder.end(rules.outcome or st.UNFINISHED, now)
