@@ -12,6 +12,7 @@ the tests (not heat treatments).
 
 from __future__ import annotations
 
+from collections.abc import Iterator
 from pathlib import Path
 
 import numpy as np
@@ -20,6 +21,7 @@ import pytest
 from tuikiln import events as ev
 from tuikiln.analysis.replay import Trace
 from tuikiln.analysis.whatif import rerun_rules
+from tuikiln.engine import checks
 from tuikiln.engine import states as st
 from tuikiln.engine.rules import RunRules, TickInput
 from tuikiln.limits import Limits
@@ -206,3 +208,26 @@ def test_arrays_agree_with_other_thresholds(logged, overrides: dict) -> None:  #
         assert info is not None
         limits = Limits().merged(parse_profile(info.profile_text, "x").limits).merged(overrides)
         _assert_same(*_both(log, run_id, limits))
+
+
+@pytest.fixture
+def straining() -> Iterator[None]:
+    from tests.examples import straining_check  # the toy check of docs/CONTRIBUTING.md
+
+    checks.alarm_check(straining_check.Straining)
+    yield
+    checks.forget("straining")
+
+
+def test_registered_checks_are_judged_alike(logged, straining, monkeypatch) -> None:  # noqa: ANN001
+    """A check registered in engine/checks has no array form: its own object judges the
+    ticks the arrays describe, and says what it says per sample."""
+    from tests.examples import straining_check
+
+    monkeypatch.setattr(straining_check, "STRAINING_FOR_S", 60.0)  # the door is open 400 s
+    raised = set()
+    for name, _, _ in RUNS:
+        one, many = _both(*logged[name])
+        _assert_same(one, many)
+        raised |= {a[2] for a in _alarms(many.events) if a[1] == ev.ALARM_RAISED}
+    assert "straining" in raised

@@ -25,8 +25,9 @@ import numpy as np
 
 from tuikiln.engine import states as st
 from tuikiln.engine.alarms import (
+    ALARMS,
     BAD_READINGS_TO_ALARM,
-    CRITICAL_CODES,
+    CRITICAL,
     FROZEN_S,
     FULL_OUTPUT_PCT,
     GOOD_READINGS_TO_CLEAR,
@@ -45,6 +46,7 @@ from tuikiln.engine.alarms import (
     STUCK_RISE_C,
     STUCK_RISE_WINDOW_S,
     AlarmRules,
+    Observation,
     cleared_event,
     raised_event,
 )
@@ -428,6 +430,47 @@ class _Checks:
                                                         float(s.target_c[k])))
 
 
+    def registered(self) -> None:
+        """The checks registered in engine/checks have no array form: each check object
+        itself judges, one tick at a time, the Observation the arrays make for that tick,
+        on the ticks `judge_all` gives it (slow or every tick; with a usable temperature)."""
+        checks = self.rules.checks
+        if not checks:
+            return
+        s = self.s
+        slow = np.zeros(self.n, dtype=bool)
+        slow[self.slow] = True
+        names = st.STEP_STATES
+        for check in checks:
+            ticks = slow | bool(check.every_tick)
+            if check.needs_temperature:
+                ticks = ticks & self.usable
+            on: list[int] = []
+            off: list[int] = []
+            said: dict[int, str] = {}
+            for k in np.flatnonzero(ticks).tolist():
+                obs = Observation(
+                    float(s.t[k]), bool(s.link_ok[k]), _none(s.chamber_c[k]),
+                    bool(s.sensor_fault[k]), _none(s.output_pct[k]), _none(s.setpoint_c[k]),
+                    _none(s.target_c[k]), KINDS[s.kind[k]] if s.kind[k] >= 0 else None,
+                    names[s.state[k]], _none(s.state_since[k]), _none(s.step_started_at[k]),
+                    bool(s.rated_ramp[k]), bool(s.heat_off[k]), None)
+                verdict = check.judge(obs, _none(self.temp[k]))
+                if verdict is None:
+                    continue
+                if verdict:
+                    on.append(k)
+                    said[k] = verdict if isinstance(verdict, str) else check.name
+                else:
+                    off.append(k)
+            self._alarm(check.code, np.asarray(on, dtype=np.int64),
+                        np.asarray(off, dtype=np.int64), said.__getitem__)
+
+
+def _none(value: float) -> float | None:
+    return None if value != value else float(value)  # NaN: None
+
+
 def alarm_events(rules: AlarmRules, seen: Seen) -> Found:
     """Every alarm raised and cleared over the samples, as the per-sample rules would, up to
     and including the first critical one (where the run would have ended)."""
@@ -440,15 +483,19 @@ def alarm_events(rules: AlarmRules, seen: Seen) -> Found:
     checks.too_hot()
     checks.slow_checks()
     checks.hold_checks()
+    checks.registered()
+    rank_of = dict(_RANK)
+    for k, check in enumerate(rules.checks):  # judged after the built-in ones, in order
+        rank_of.setdefault(check.code, len(ORDER) + k)
     t = seen.t
     first: tuple[int, int] | None = None
     for code, pairs in checks.found.items():
-        if code in CRITICAL_CODES and pairs:  # the run ends at the first critical alarm
+        if ALARMS[code][0] == CRITICAL and pairs:  # the run ends at the first critical one
             raised = pairs[0][0]
-            if first is None or (raised, _RANK[code]) < first:
-                first = (raised, _RANK[code])
+            if first is None or (raised, rank_of[code]) < first:
+                first = (raised, rank_of[code])
     for code, pairs in checks.found.items():
-        rank = _RANK[code]
+        rank = rank_of[code]
         say = checks.words[code]
         for raised, cleared in pairs:
             if first is not None and raised > first[0]:
