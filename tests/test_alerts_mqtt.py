@@ -27,7 +27,6 @@ from tuikiln.events import Event
 if TYPE_CHECKING:  # imported by pytest as a plugin, below, so not here
     from tests.mqtt_broker import Broker
 
-pytest_plugins = ["tests.mqtt_broker"]  # the `mosquitto` and `mosquitto_factory` fixtures
 MOSQUITTO_SUB = shutil.which("mosquitto_sub")
 
 KILN = "Bench Oven"  # -> id "bench-oven"

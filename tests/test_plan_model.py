@@ -215,3 +215,33 @@ def test_a_damaged_model_file_is_one_line(tmp_path: Path,
     assert main(["--data", str(tmp_path), "plan", str(path), "--model", str(broken)]) == 1
     err = capsys.readouterr().err.strip()
     assert "model.json: not JSON" in err and "\n" not in err
+
+
+def test_the_live_eta_uses_the_model(big: Oven) -> None:
+    # The status's time to the end, taken as the engine would give it, against the time
+    # the run really took from there on. The plain plan counts "max" ramps and the free
+    # cool as nothing; the model counts what this oven does.
+    from tuikiln.engine.status import remaining_plan_s
+    from tuikiln.limits import Limits
+    from tuikiln.ovenmodel_store import live_forecast
+    from tuikiln.profile import parse_profile
+
+    profile = parse_profile(HARDEN)
+    forecast = live_forecast(big.folder, "Big oven", profile, Limits())
+    assert forecast is not None
+    seen: dict[int, tuple[float, float | None, float | None]] = {}
+
+    def note(t: float, rules) -> None:  # noqa: ANN001
+        index = rules.stepper.index
+        if index not in seen and index < len(profile.steps):
+            seen[index] = (t, remaining_plan_s(rules, forecast)[2], remaining_plan_s(rules)[2])
+
+    run_id = simulate_run(big.log, HARDEN, oven=big.config, limit_s=100_000, on_tick=note)
+    samples = big.log.samples(run_id)
+    end = float(samples["t"][-1] - START_T)
+    for index in (2, 5):  # the ramp the oven cannot follow, the free cool after the quench
+        t, with_model, plain = seen[index]
+        actual = end - t
+        print(index, f"actual {actual:.0f} s, model {with_model} s, plain {plain} s")
+        assert with_model == pytest.approx(actual, rel=0.10)
+        assert plain is None or plain < 0.8 * actual  # None: "cannot be told"

@@ -33,6 +33,7 @@ MODULES = [
     "watch_cost",
     "equalize",
     "load_equalize",
+    "ovenmodel_fit",
     "fuzz_hostile",
     "trials",
 ]

@@ -64,6 +64,9 @@ def run(args: argparse.Namespace) -> int:
         earlier = saved_model(data_dir, kiln_name)
         if earlier is not None:
             model = refine(earlier, model)
+        if model is earlier:
+            print(f'{source} is in the saved model of "{kiln_name}" already: not added again',
+                  file=sys.stderr)
         saved_at = save_model(data_dir, kiln_name, model)
     pid = _pid(model, args.tau_c, _sample_s(samples))
     if args.json_output:
@@ -150,15 +153,9 @@ def _samples(args: argparse.Namespace) -> tuple[str, dict[str, Any], str]:
     which = str(args.run)
     if which.lower().endswith((".csv", ".txt", ".tsv")) or Path(which).is_file():
         return _csv_samples(args, Path(which))
-    from tuikiln.commands.replay import _find_run
-    from tuikiln.runlog import RUNLOG_NAME, RunLog, default_data_dir
+    from tuikiln.commands.replay import _find_run, open_run_log
 
-    folder = default_data_dir(args.data)
-    path = folder / RUNLOG_NAME
-    if not path.exists():
-        raise UserError(f"no run log in {folder}: no run has been recorded there yet "
-                        "(or give --data DIR, or a CSV log)")
-    log = RunLog.reader(path)
+    log = open_run_log(args.data, ", or a CSV log")
     try:
         info = _find_run(log, which)
         samples = log.samples(info.id)

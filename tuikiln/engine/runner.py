@@ -48,6 +48,7 @@ from tuikiln.engine.safety import SafeResult, drive_safe
 from tuikiln.engine.status import LastReading, build_status
 from tuikiln.events import Event
 from tuikiln.limits import Limits
+from tuikiln.ovenmodel_plan import LiveForecast
 from tuikiln.profile import Profile
 from tuikiln.runlog import RunLog, RunRecorder
 from tuikiln.units import format_duration, format_temp
@@ -131,6 +132,8 @@ class RunEngine:
         self._status_at = 0.0
         self._log_trouble = False
         self.ticks = 0
+        self.forecast: LiveForecast | None = None
+        """The learned oven's times for the status (tuikiln.ovenmodel_store.live_forecast)."""
         self.resume = resume
         self._resume_pending = resume is not None
         self.held_for_restart = False
@@ -182,7 +185,7 @@ class RunEngine:
     def status(self) -> dict[str, Any]:
         return build_status(self.rules, run_id=self.run_id, kiln=self.kiln.name,
                             now=self.clock.now(), started=self.started, last=self.last,
-                            watch_only=self.watch_only)
+                            watch_only=self.watch_only, forecast=self.forecast)
 
     # ----- the run -----
 
