@@ -58,7 +58,7 @@ LAYERS: dict[str, tuple[str, ...]] = {
     "setup": (
         "tuikiln.kiln", "tuikiln.alerts", "tuikiln.alerts.settings", "tuikiln.alerts.discovery",
         "tuikiln.alerts.fanout", "tuikiln.alerts.hooks", "tuikiln.alerts.mqtt",
-        "tuikiln.alerts.remote",
+        "tuikiln.alerts.payloads", "tuikiln.alerts.remote",
     ),
     # The files the program keeps: the run log, the control socket, the one loader from a
     # log to a replay, learned oven models, its own log of messages.

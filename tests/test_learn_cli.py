@@ -100,6 +100,8 @@ def test_save_is_private_and_a_second_run_refines(data: Path, tmp_path: Path,
         assert stat.S_IMODE(saved.stat().st_mode) == 0o600
         assert stat.S_IMODE(saved.parent.stat().st_mode) == 0o700
         assert first["model"]["runs"] == 1
+        again = _json(data, capsys, "learn", "1", "--json", "--save")
+        assert again["model"]["runs"] == 1  # the same run is not counted twice
         second = _json(data, capsys, "learn", "3", "--json", "--save")
         assert second["model"]["runs"] == 2
         assert second["this_run"]["valid_to_c"] > first["model"]["valid_to_c"]

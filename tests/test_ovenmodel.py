@@ -13,6 +13,7 @@ leak gaps (radiation), per Incropera, Fundamentals of Heat and Mass Transfer, ch
 from __future__ import annotations
 
 import math
+from dataclasses import replace
 from pathlib import Path
 
 import numpy as np
@@ -183,9 +184,16 @@ def test_fopdt_is_the_linearised_model(big: tuple[OvenModel, dict]) -> None:
     assert f.output_pct == pytest.approx(model.holding_output_pct(800.0))
 
 
-def test_refining_with_the_same_run_keeps_the_fit_and_adds_weight(big) -> None:  # noqa: ANN001
+def test_the_same_run_is_not_learned_twice(big) -> None:  # noqa: ANN001
     model, _ = big
-    twice = refine(model, model)
+    assert refine(model, model) is model
+
+
+def test_refining_with_a_copy_keeps_the_fit_and_adds_weight(big) -> None:  # noqa: ANN001
+    # The same numbers as if from another run (another fingerprint): the normal equations
+    # doubled give the same solution, with twice the weight.
+    model, _ = big
+    twice = refine(model, replace(model, sources=("another run",)))
     assert twice.runs == 2 and twice.seconds == pytest.approx(2 * model.seconds)
     assert twice.heat_c_per_s == pytest.approx(model.heat_c_per_s, rel=1e-9)
     assert twice.loss_per_s == pytest.approx(model.loss_per_s, rel=1e-6, abs=1e-12)

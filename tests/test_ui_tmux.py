@@ -8,11 +8,12 @@ import re
 import shutil
 import subprocess
 import sys
-import time
 import uuid
 from pathlib import Path
 
 import pytest
+
+from tests.waiting import alive, wait_until
 
 ROOT = Path(__file__).resolve().parents[1]
 pytestmark = pytest.mark.skipif(shutil.which("tmux") is None, reason="tmux is not installed")
@@ -30,14 +31,14 @@ class Tmux:
         return self("capture-pane", "-p", "-t", "demo")
 
     def wait_for(self, *words: str, timeout: float = 15.0) -> str:
-        deadline = time.monotonic() + timeout
-        text = ""
-        while time.monotonic() < deadline:
+        def shown() -> str | None:
             text = self.screen()
-            if all(word in text for word in words):
-                return text
-            time.sleep(0.2)
-        raise AssertionError(f"{words} not on screen:\n{text}")
+            return text if all(word in text for word in words) else None
+
+        try:
+            return wait_until(shown, timeout, f"{words} on screen")
+        except AssertionError as exc:
+            raise AssertionError(f"{exc}:\n{self.screen()}") from None
 
 
 @pytest.fixture
@@ -70,15 +71,7 @@ def test_demo_in_a_real_terminal(tmux: Tmux, tmp_path: Path) -> None:
     tmux.wait_for("Abort the run?", "[y] abort the run")
     tmux("send-keys", "-t", "demo", "n")
     tmux("send-keys", "-t", "demo", "q")
-    deadline = time.monotonic() + 10
-    while time.monotonic() < deadline:
-        try:
-            os.kill(pid, 0)
-        except ProcessLookupError:
-            break
-        time.sleep(0.1)
-    else:
-        raise AssertionError("the demo process is still there after q")
+    wait_until(lambda: not alive(pid), 10, "the demo process to end after q")
     leftover = subprocess.run(["pgrep", "-f", f"--data {tmp_path}"], capture_output=True,
                               text=True).stdout.split()
     assert leftover == []

@@ -31,8 +31,8 @@ import math
 from dataclasses import dataclass
 
 from tuikiln.ovenmodel import OvenModel
-from tuikiln.plan import Plan
-from tuikiln.profile import Cool, Hold, Pause, Ramp, Step
+from tuikiln.plan import Plan, plan_profile
+from tuikiln.profile import Cool, Hold, Pause, Profile, Ramp, Step
 from tuikiln.units import Units, format_duration, format_rate, format_temp
 
 HARDEN_FROM_C = 727.0
@@ -241,3 +241,44 @@ def temper_warnings(plan: Plan, model: OvenModel | None,
                                              + advice))
             break
     return found
+
+
+class LiveForecast:
+    """The model's times for a run going on (the live ETA, `status`): the steps after the
+    current one from one prediction made at the start, the current ramp or cool from where
+    the chamber is now (the lining taken where the prediction had it at the step's start).
+    """
+
+    def __init__(self, profile: Profile, model: OvenModel, band_c: float) -> None:
+        self.model = model
+        self.band_c = band_c
+        self.profile = profile
+        self.prediction = predict(plan_profile(profile), model, band_c, profile.units)
+        self._cache: tuple[int, int, float] | None = None
+
+    def duration_s(self, index: int) -> float | None:
+        """The predicted length of step `index` (None: it never ends)."""
+        p = self.prediction.steps[index]
+        if p.start_s is None or p.end_s is None:
+            return None
+        return p.end_s - p.start_s
+
+    def step_left_s(self, index: int, temp_c: float) -> float | None:
+        """Seconds until the ramp or cool `index` is done, from the chamber at temp_c."""
+        steps = self.profile.steps
+        step = steps[index]
+        if not isinstance(step, Ramp | Cool):
+            return None
+        key = (index, int(round(temp_c)))
+        if self._cache is not None and self._cache[:2] == key:
+            return self._cache[2]
+        following = steps[index + 1] if index + 1 < len(steps) else None
+        band = following.band_c if isinstance(following, Hold) and following.band_c \
+            else self.band_c
+        run = _Run(self.model, temp_c, self.prediction.steps[index].lining_c)
+        if isinstance(step, Ramp):
+            left = _ramp(run, step.to_c, step.rate_c_per_s, band)
+        else:
+            left = _cool(run, step.to_c, step.rate_c_per_s, band, isinstance(following, Hold))
+        self._cache = (*key, left)
+        return left if math.isfinite(left) else None

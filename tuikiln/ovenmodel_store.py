@@ -16,7 +16,10 @@ import tempfile
 from pathlib import Path
 
 from tuikiln.errors import UserError
+from tuikiln.limits import Limits
 from tuikiln.ovenmodel import OvenModel
+from tuikiln.ovenmodel_plan import LiveForecast
+from tuikiln.profile import Profile
 from tuikiln.runlog import private_folder
 
 FOLDER = "ovens"
@@ -78,3 +81,16 @@ def save_model(data_dir: Path, kiln_name: str, model: OvenModel) -> Path:
         Path(temp).unlink(missing_ok=True)
         raise UserError(f"cannot save the model to {path}: {exc.strerror or exc}") from None
     return path
+
+
+def live_forecast(data_dir: Path, kiln_name: str, profile: Profile, limits: Limits
+                  ) -> LiveForecast | None:
+    """The run's times on the kiln's learned oven, None when no model is saved. Never
+    raises: a run must start whatever is wrong with a model file."""
+    model = quiet_saved_model(data_dir, kiln_name)
+    if model is None:
+        return None
+    try:
+        return LiveForecast(profile, model, limits.band)
+    except (ValueError, ArithmeticError):
+        return None

@@ -32,6 +32,7 @@ MODULES = [
     "modbus_rate",
     "watch_cost",
     "equalize",
+    "ovenmodel_fit",
     "fuzz_hostile",
     "trials",
 ]

@@ -64,6 +64,9 @@ def run(args: argparse.Namespace) -> int:
         earlier = saved_model(data_dir, kiln_name)
         if earlier is not None:
             model = refine(earlier, model)
+        if model is earlier:
+            print(f'{source} is in the saved model of "{kiln_name}" already: not added again',
+                  file=sys.stderr)
         saved_at = save_model(data_dir, kiln_name, model)
     pid = _pid(model, args.tau_c, _sample_s(samples))
     if args.json_output:

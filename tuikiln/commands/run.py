@@ -352,6 +352,9 @@ async def run_headless(kiln: Any, profile: Any, data_dir: Path, *, speed: float 
                                auto_continue=auto_continue, resume=resume,
                                safe_device=None if kiln.is_simulator else spare_device,
                                **extra)
+            from tuikiln.ovenmodel_store import live_forecast
+
+            engine.forecast = live_forecast(data_dir, kiln.name, profile, limits)
             engine_box.append(engine)
             return await _serve_run(engine, kiln, data_dir, sinks, out, st)
         finally:

@@ -18,6 +18,9 @@ from textual.widgets import DataTable, Static
 from tuikiln.control import ActiveRun
 from tuikiln.engine.states import Outcome, RunState
 from tuikiln.errors import UserError
+from tuikiln.limits import Limits
+from tuikiln.ovenmodel_plan import predict
+from tuikiln.ovenmodel_store import quiet_saved_model
 from tuikiln.plan import plan_profile
 from tuikiln.profile import load_profile
 from tuikiln.runlog import RunInfo
@@ -157,13 +160,20 @@ class HomeScreen(Screen[None]):
     def profile_rows(self, paths: list[Path]) -> list[tuple[str, str, str, str]]:
         rows = []
         units = self.app.units
+        kiln = self.launcher.kiln
+        # With a learned oven the total is what this oven takes ("~"), as `plan` predicts.
+        model = quiet_saved_model(self.launcher.data_dir, kiln.name)
         for path in paths:
             try:
-                plan = plan_profile(load_profile(path, max_c=self.launcher.kiln.max_c))
+                plan = plan_profile(load_profile(path, max_c=kiln.max_c))
             except UserError:
                 rows.append((f"✖ {path.stem} (has mistakes)", "", "", path.name))
                 continue
             total = format_duration(plan.total_s) + ("+" if plan.open_ended else "")
+            if model is not None:
+                band = Limits().merged(kiln.alarms).merged(plan.profile.limits).band
+                predicted = predict(plan, model, band).total_s
+                total = "never" if predicted is None else "~" + format_duration(predicted)
             rows.append((plan.profile.name[:40], format_temp(plan.peak_c, units), total,
                          path.name))
         return rows
