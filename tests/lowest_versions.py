@@ -6,6 +6,7 @@ A requirement without a `>=` bound is printed as it stands. Where one name is bo
 (the runtime list and an extra), the higher bound is the lowest that satisfies both.
 
     python tests/lowest_versions.py [EXTRA ...]      # default extra: test
+    python tests/lowest_versions.py --runtime        # the runtime dependencies alone
 """
 
 from __future__ import annotations
@@ -58,7 +59,7 @@ def pins(pyproject: dict, extras: list[str]) -> list[str]:
 
 
 def main(argv: list[str]) -> int:
-    extras = argv or ["test"]
+    extras = [] if argv == ["--runtime"] else (argv or ["test"])
     with PYPROJECT.open("rb") as handle:
         print("\n".join(pins(tomllib.load(handle), extras)))
     return 0

@@ -45,6 +45,7 @@ COMMANDS: dict[str, str] = {
     "report": "tuikiln.commands.replay",
     "import": "tuikiln.commands.replay",
     "service": "tuikiln.commands.service",
+    "completion": "tuikiln.commands.completion",
 }
 
 # Commands that draw a screen: Textual draws on the standard error, so their log goes to a file.
@@ -77,6 +78,7 @@ COMMAND_HELP: dict[str, str] = {
     "report": "write a run's report as HTML (with its chart) or Markdown (.md)",
     "import": "replay another tool's CSV temperature log against a profile",
     "service": "print a systemd unit that resumes unfinished runs at boot and after a crash",
+    "completion": "print a shell completion script (bash or zsh) for tuikiln's commands",
 }
 
 

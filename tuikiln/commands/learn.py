@@ -153,15 +153,9 @@ def _samples(args: argparse.Namespace) -> tuple[str, dict[str, Any], str]:
     which = str(args.run)
     if which.lower().endswith((".csv", ".txt", ".tsv")) or Path(which).is_file():
         return _csv_samples(args, Path(which))
-    from tuikiln.commands.replay import _find_run
-    from tuikiln.runlog import RUNLOG_NAME, RunLog, default_data_dir
+    from tuikiln.commands.replay import _find_run, open_run_log
 
-    folder = default_data_dir(args.data)
-    path = folder / RUNLOG_NAME
-    if not path.exists():
-        raise UserError(f"no run log in {folder}: no run has been recorded there yet "
-                        "(or give --data DIR, or a CSV log)")
-    log = RunLog.reader(path)
+    log = open_run_log(args.data, ", or a CSV log")
     try:
         info = _find_run(log, which)
         samples = log.samples(info.id)

@@ -114,7 +114,7 @@ class HomeScreen(Screen[None]):
         kiln = self.launcher.kiln
         text = Text()
         text.append(f"{kiln.name}", style="bold")
-        text.append(f" · {device_words(self.launcher)} · max "
+        text.append(f" · {self.app.glyphs.plain(device_words(self.launcher))} · max "
                     f"{format_temp(kiln.max_c, self.app.units)} · bell "
                     f"{'on' if self.app.bell_on else 'off'}\n")
         if going is not None:
@@ -154,7 +154,7 @@ class HomeScreen(Screen[None]):
             started = time.strftime("%d %b %H:%M", time.localtime(run.wall_started or
                                                                    run.started))
             runs_table.add_row(str(run.id), run.profile[:28], started, length,
-                               f"{OUTCOME_MARK.get(status, '·')} {status}")
+                               self.app.glyphs.plain(f"{OUTCOME_MARK.get(status, '·')} {status}"))
         self.show_kiln(await asyncio.to_thread(launcher.going_run))
 
     def profile_rows(self, paths: list[Path]) -> list[tuple[str, str, str, str]]:
