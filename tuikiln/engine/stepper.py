@@ -128,7 +128,7 @@ class Stepper:
         self.units: Units = units or profile.units
         self.detector_factory = detector_factory
         self.index = start_index
-        self.state = st.STARTING
+        self.state: st.StepState = st.STARTING
         self.setpoint_c: float | None = None
         self.target_c: float | None = None
         self.heat_off = False
@@ -253,8 +253,8 @@ class Stepper:
         out, self._pending = self._pending, []
         return out
 
-    def _set_state(self, now: float, state: str) -> None:
-        if state != self.state:
+    def _set_state(self, now: float, state: st.StepState, *, force: bool = False) -> None:
+        if force or state != self.state:
             self.state = state
             self.state_since = now
             self._emit(now, ev.STEP_STATE, self.words(), state=state, index=self.index,
@@ -317,8 +317,7 @@ class Stepper:
                 self.setpoint_c = self.target_c if self.target_c is not None else temp
             new_state = st.WAITING_YOU
         self._pending.append(step_start_event(now, self.steps, self.index, self.units))
-        self.state = ""  # force the state event
-        self._set_state(now, new_state)
+        self._set_state(now, new_state, force=True)  # a new step always tells its state
         if isinstance(step, Hold) and temp_c is not None:
             self._hold(now, 0.0, temp_c, None)
         if isinstance(step, Pause):
