@@ -102,7 +102,7 @@ class Stepper:
         self.units: Units = units or profile.units
         self.detector_factory = detector_factory
         self.index = start_index
-        self.state = st.STARTING
+        self.state: st.StepState = st.STARTING
         self.setpoint_c: float | None = None
         self.target_c: float | None = None
         self.heat_off = False
@@ -227,8 +227,8 @@ class Stepper:
         out, self._pending = self._pending, []
         return out
 
-    def _set_state(self, now: float, state: str) -> None:
-        if state != self.state:
+    def _set_state(self, now: float, state: st.StepState, *, force: bool = False) -> None:
+        if force or state != self.state:
             self.state = state
             self.state_since = now
             self._emit(now, ev.STEP_STATE, self.words(), state=state, index=self.index,
@@ -295,8 +295,7 @@ class Stepper:
         self._emit(now, ev.STEP_START, f"Step {self.index + 1} of {len(self.steps)}{label}: "
                    f"{description}", index=self.index, kind=step.kind, description=description,
                    label=step.label)
-        self.state = ""  # force the state event
-        self._set_state(now, new_state)
+        self._set_state(now, new_state, force=True)  # a new step always tells its state
         if isinstance(step, Hold) and temp_c is not None:
             self._hold(now, 0.0, temp_c, None)
         if isinstance(step, Pause):
