@@ -129,8 +129,8 @@ def describe(model: Any, pid: dict[str, Any], source: str, units: str) -> str:
         f"  highest it can hold: about {format_temp(model.top_c, units)} at full output",
         f"  to hold {format_temp(f.at_c, units)} it needs about {f.output_pct:.0f} % output "
         "once the lining has soaked through",
-        f"  free cooling: {format_rate(model.loss_c_per_s(f.at_c), units)} at "
-        f"{format_temp(f.at_c, units)}, "
+        f"  free cooling: {format_rate(model.loss_c_per_s(model.valid_to_c), units)} at "
+        f"{format_temp(model.valid_to_c, units)}, "
         f"{format_rate(model.loss_c_per_s(model.room_c + 200.0), units)} at "
         f"{format_temp(model.room_c + 200.0, units)}",
         f"  the lining soaks up heat over about {format_duration(model.lining_tau_s)}; "
