@@ -16,7 +16,6 @@ from __future__ import annotations
 
 import asyncio
 import errno
-import logging
 from dataclasses import dataclass
 from typing import Any
 
@@ -31,7 +30,8 @@ from tuikiln.drivers.maps import Register, RegisterMap
 from tuikiln.drivers.serialport import port_problem
 
 # pymodbus logs every timeout at ERROR level; our errors already say it in plain words.
-logging.getLogger("pymodbus").setLevel(logging.CRITICAL)
+# The command line keeps libraries' lines out of sight below --log-level debug
+# (tuikiln/logsetup.py); a program using this driver alone decides for itself.
 
 NO_ANSWER_HINT = (
     "check the controller's Modbus address, baud rate and parity match the kiln file, "

@@ -50,6 +50,9 @@ h_w_m2k = 10              # convection from chamber air to the plate, W/(m²·K)
 layers = 4                # nodes across the half-thickness (1: one lumped lump)
 thermocouple = true       # a thermocouple tied to the plate surface (register 5)
 tc_lag_s = 4              # time constant of that thermocouple, s
+wrap = "none"             # "none" or "foil": the plate sealed in a stainless foil packet
+foil_emissivity = 0.3     # foil only: emissivity of the foil, 0..1
+foil_gap_mm = 1           # foil only: mean air gap between the foil and the plate, mm
 
 [device.noise]
 chamber_c = 0.3           # standard deviation of the chamber reading's noise, °C
@@ -71,6 +74,14 @@ Fault kinds: "element-open" (no heat), "relay-welded" (full heat whatever the ou
 "controller-reboot" (silent and heater off for `for`, default 3 s; then the setpoint and run
 state come back per `keep_settings`).
 
+A foil wrap (stainless tool-wrap foil, 0.05 mm, the packet air-hardening steels are hardened
+in) puts a thin skin of low emissivity round the plate and an air gap between skin and plate:
+the chamber heats the foil by radiation and convection, the foil heats the plate across the
+gap by conduction through the still air and radiation between the two faces. The default
+foil emissivity 0.3 (bright stainless 0.1-0.2, dulled by use towards 0.5) and gap 1 mm (a
+packet folded snug by hand, not pressed flat) are from memory, not measured; the air's
+conductivity is a power-law fit to Incropera App. A Table A.4 (from memory).
+
 Material values are means over 20-900 °C, from memory of handbook tables (Incropera,
 Fundamentals of Heat and Mass Transfer, App. A, and makers' data sheets): good enough for
 an invented oven, not for engineering.
@@ -84,6 +95,8 @@ import re
 from collections.abc import Mapping
 from dataclasses import dataclass, field, fields, replace
 from typing import Any
+
+WRAPS = ("none", "foil")
 
 FAULT_KINDS = (
     "element-open",
@@ -122,6 +135,10 @@ class LoadConfig:
     h_w_m2k: float = 10.0
     layers: int = 4
     tc_lag_s: float = 4.0
+    wrap: str = "none"
+    """ "none", or "foil": a stainless foil skin round the plate with an air gap inside."""
+    foil_emissivity: float = 0.3
+    foil_gap_m: float = 0.001
 
     @classmethod
     def of_material(cls, material: str, **overrides: Any) -> LoadConfig:
@@ -289,6 +306,8 @@ _LOAD_KEYS: dict[str, tuple[str, float, str, tuple[float, float]]] = {
     "h_w_m2k": ("h_w_m2k", 1.0, "num", (0.0, 1e6)),
     "layers": ("layers", 1.0, "int", (1, 50)),
     "tc_lag_s": ("tc_lag_s", 1.0, "num", (0.0, 3600.0)),
+    "foil_emissivity": ("foil_emissivity", 1.0, "num", (0.0, 1.0)),
+    "foil_gap_mm": ("foil_gap_m", 1e-3, "num", (0.01, 20.0)),
 }
 _DEVICE_OTHER = ("kind", "speed", "seed", "room", "control", "baud", "address", "load",
                  "noise", "fault", "port", "map")
@@ -435,7 +454,7 @@ def _check_load(
     if not isinstance(raw, Mapping):
         problems.append((lpath, '"load" needs to be a table [device.load], or false for none'))
         return None, False
-    _unknown_keys(raw, [*_LOAD_KEYS, "material", "thermocouple"], lpath, problems)
+    _unknown_keys(raw, [*_LOAD_KEYS, "material", "thermocouple", "wrap"], lpath, problems)
     material = raw.get("material", "carbon steel")
     if not isinstance(material, str):  # a list or table is unhashable: no dict lookup with it
         names = [f'"{m}"' for m in MATERIALS]
@@ -447,6 +466,13 @@ def _check_load(
                                                         list(MATERIALS))))
         material = "carbon steel"
     values = _apply(raw, _LOAD_KEYS, lpath, problems)
+    wrap = raw.get("wrap", "none")
+    if not isinstance(wrap, str):
+        problems.append(((*lpath, "wrap"), 'wrap must be text: "none" or "foil"'))
+    elif wrap not in WRAPS:
+        problems.append(((*lpath, "wrap"), _unknown("wrap", wrap, WRAPS)))
+    else:
+        values["wrap"] = wrap
     tc = raw.get("thermocouple", True)
     if not isinstance(tc, bool):
         problems.append(((*lpath, "thermocouple"), '"thermocouple" needs true or false'))

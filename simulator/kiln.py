@@ -151,6 +151,7 @@ class SimulatedKiln:
         step = physics.step
         update = self.controller.update
         load = physics.load
+        surface = physics.load_surface_index if load is not None else 0
         heater_w = self._heater_w
         ssr = self._ssr
         on_fraction = self._on_fraction
@@ -204,7 +205,7 @@ class SimulatedKiln:
                     tc -= DOOR_AIR_MIX * (tc - room_k)
             chamber_tc += (tc - KELVIN - chamber_tc) * a_chamber
             if load is not None:
-                load_tc += (load.temps[0] - KELVIN - load_tc) * self._lag_a_load
+                load_tc += (load.temps[surface] - KELVIN - load_tc) * self._lag_a_load
         self.last_heater_w = power
         self.chamber_tc_c = chamber_tc
         self.load_tc_c = load_tc

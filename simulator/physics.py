@@ -11,6 +11,12 @@ The chamber node holds the air, hearth, elements and the inner skin of the linin
 plate is heated from both faces by radiation from the chamber (a small grey body in a large
 enclosure: q = eps * sigma * (Tc^4 - Ts^4)) and by convection from the chamber air.
 
+A foil-wrapped plate has one more node at the head of its chain: the foil skin (0.05 mm of
+stainless), heated by the chamber as above but with the foil's emissivity, and joined to the
+plate's surface across the air gap by conduction through still air (k/gap; too thin a gap
+for convection to start) plus radiation between two parallel grey faces,
+sigma*(T1^4 - T2^4)/(1/eps1 + 1/eps2 - 1) (Incropera Eq. 13.24), linearised per step.
+
 Each step is backward (implicit) Euler with the radiation terms linearised about the start
 of the step (h_rad = eps*sigma*(T1^2 + T2^2)(T1 + T2)): unconditionally stable, so a 1 s step
 is fine even for a thin plate, and energy is conserved exactly by the discrete scheme.
@@ -34,6 +40,16 @@ DOOR_CONVECTION_W_M2K = 130.0
 # While the door is open the chamber thermocouple sits in a mix of hot and room air: it
 # sees this share of the chamber-room difference less (invented, order of size).
 DOOR_AIR_MIX = 0.25
+# Stainless tool-wrap foil is 0.002 in (0.05 mm) thick: common practice, no source. Its heat
+# capacity per area, rho*c*thickness = 7900 * 500 * 5e-5 (from memory, Incropera Table A.1).
+FOIL_HEAT_CAPACITY_J_M2K = 7900.0 * 500.0 * 0.05e-3
+
+
+def air_conductivity_w_mk(temp_k: float) -> float:
+    """Still air at 1 atm: k = 0.0263 * (T/300)^0.8 W/(m K), a power-law fit to Incropera
+    Table A.4 (from memory: 0.0263 at 300 K, 0.0573 at 800 K, 0.0763 at 1200 K; the fit is
+    within 5 % over 300-1300 K)."""
+    return 0.0263 * (max(temp_k, 200.0) / 300.0) ** 0.8
 
 
 class Chain:
@@ -59,6 +75,10 @@ class Chain:
         self.q = [0.0] * n
         self._ch = [0.0] * n
         self._inv_d = [0.0] * n
+        self._key = (-1.0, -1.0)
+
+    def invalidate(self) -> None:
+        """The inner conductances changed: compute the elimination again next step."""
         self._key = (-1.0, -1.0)
 
     def _prepare(self, inv_h: float) -> None:
@@ -125,6 +145,8 @@ class OvenPhysics:
         self.casing_area_m2 = 6.0 * (side + 2.0 * oven.wall_thickness_m) ** 2
         self.casing_h = oven.casing_h_w_m2k
         self.casing_eps = oven.casing_emissivity
+        self.foil = False
+        self.load_surface_index = 0
         self.load = self._plate(load) if load is not None else None
         self.load_cfg = load
         self.door_open = False
@@ -170,11 +192,30 @@ class OvenPhysics:
             dx = half / (n - 1)
             caps = [rho_c * face * dx * (0.5 if i in (0, n - 1) else 1.0) for i in range(n)]
             g = [load.conductivity_w_mk * face / dx] * (n - 1)
-        chain = Chain(caps, g, self.room_k)
         self.load_exchange_m2 = 0.5 * self.load_area_m2
         self.load_h = load.h_w_m2k
         self.load_eps = load.emissivity
-        return chain
+        self.foil = load.wrap == "foil"
+        self.load_surface_index = 0
+        """Where the plate's surface is in the chain (1 when the foil is node 0)."""
+        if self.foil:
+            # The foil covers the whole half-plate, edges included; the gap conductance g[0]
+            # is renewed every step (it carries radiation).
+            caps = [FOIL_HEAT_CAPACITY_J_M2K * self.load_exchange_m2, *caps]
+            g = [0.0, *g]
+            self.load_eps = load.foil_emissivity
+            self.load_surface_index = 1
+            eps_f, eps_p = load.foil_emissivity, load.emissivity
+            self.gap_eps = (1.0 / (1.0 / eps_f + 1.0 / eps_p - 1.0)
+                            if eps_f > 0.0 and eps_p > 0.0 else 0.0)
+            self.gap_m = load.foil_gap_m
+        return Chain(caps, g, self.room_k)
+
+    def _gap_g(self, foil_k: float, plate_k: float) -> float:
+        """Conductance from the foil to the plate surface across the air gap, W/K."""
+        air = air_conductivity_w_mk(0.5 * (foil_k + plate_k)) / self.gap_m
+        rad = self.gap_eps * SIGMA * (foil_k * foil_k + plate_k * plate_k) * (foil_k + plate_k)
+        return self.load_exchange_m2 * (air + rad)
 
     def step(self, h: float, heater_w: float) -> None:
         """Advance h seconds with the heater delivering `heater_w` on average."""
@@ -205,6 +246,9 @@ class OvenPhysics:
         load = self.load
         if load is not None:
             ts = load.temps[0]
+            if self.foil:
+                load.g[0] = self._gap_g(ts, load.temps[1])
+                load.invalidate()
             load.attach_g = self.load_exchange_m2 * (
                 self.load_h + self.load_eps * SIGMA * (tc * tc + ts * ts) * (tc + ts)
             )
@@ -239,7 +283,14 @@ class OvenPhysics:
 
     @property
     def load_surface_c(self) -> float | None:
-        return None if self.load is None else self.load.temps[0] - KELVIN
+        if self.load is None:
+            return None
+        return self.load.temps[self.load_surface_index] - KELVIN
+
+    @property
+    def foil_c(self) -> float | None:
+        """The foil skin, when the plate is wrapped."""
+        return self.load.temps[0] - KELVIN if self.load is not None and self.foil else None
 
     @property
     def load_core_c(self) -> float | None:

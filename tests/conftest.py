@@ -1,6 +1,30 @@
-"""Shared pytest options."""
+"""Shared pytest options and fixtures.
+
+Fixtures every test module may use without importing them:
+
+- `data_folder`: a fresh data folder (returned) with no user kiln file: XDG_CONFIG_HOME,
+  XDG_DATA_HOME and TUIKILN_DATA point into the test's tmp_path.
+- `kiln_file(text, name="kiln.toml")`: writes a kiln file (or any TOML) into tmp_path and
+  returns its path.
+- `run_log`: a real SQLite run log (`RunLog`) in tmp_path, closed afterwards.
+- `served_sim(*options)`: `tuikiln sim serve OPTIONS` in its own process (a real
+  pseudo-terminal unless told `--tcp`), stopped with its process group afterwards.
+- `mosquitto`, `mosquitto_factory`: a real mosquitto broker on a free loopback port
+  (tests/mqtt_broker.py); the tests skip when mosquitto is not installed.
+
+Waiting on conditions (never a fixed sleep): tests/waiting.py (`wait_until`, `eventually`).
+"""
 
 from __future__ import annotations
+
+from collections.abc import Callable, Iterator
+from pathlib import Path
+
+import pytest
+
+from tests.mqtt_broker import mosquitto, mosquitto_factory  # noqa: F401 - fixtures
+from tests.simserve import ServedSim
+from tuikiln.runlog import RunLog
 
 
 def pytest_addoption(parser) -> None:  # noqa: ANN001
@@ -8,3 +32,43 @@ def pytest_addoption(parser) -> None:  # noqa: ANN001
     # `--slow` runs them many times longer (tests/test_trials.py).
     parser.addoption("--slow", action="store_true", default=False,
                      help="run the long versions of the profile trials")
+
+
+@pytest.fixture
+def data_folder(tmp_path: Path, monkeypatch: pytest.MonkeyPatch) -> Path:
+    monkeypatch.setenv("XDG_CONFIG_HOME", str(tmp_path / "config"))  # no user kiln file
+    monkeypatch.setenv("XDG_DATA_HOME", str(tmp_path / "share"))
+    data = tmp_path / "data"
+    monkeypatch.setenv("TUIKILN_DATA", str(data))
+    return data
+
+
+@pytest.fixture
+def kiln_file(tmp_path: Path) -> Callable[..., Path]:
+    def write(text: str, name: str = "kiln.toml") -> Path:
+        path = tmp_path / name
+        path.write_text(text, encoding="utf-8")
+        return path
+
+    return write
+
+
+@pytest.fixture
+def run_log(tmp_path: Path) -> Iterator[RunLog]:
+    log = RunLog(tmp_path / "runs.sqlite")
+    yield log
+    log.close()
+
+
+@pytest.fixture
+def served_sim() -> Iterator[Callable[..., ServedSim]]:
+    started: list[ServedSim] = []
+
+    def serve(*options: str, wait_s: float = 15.0) -> ServedSim:
+        sim = ServedSim(*options, wait_s=wait_s)
+        started.append(sim)
+        return sim
+
+    yield serve
+    for sim in started:
+        sim.stop()

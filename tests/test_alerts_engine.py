@@ -18,8 +18,6 @@ import pytest
 if TYPE_CHECKING:
     from tests.mqtt_broker import Broker
 
-pytest_plugins = ["tests.mqtt_broker"]
-
 ROOT = Path(__file__).resolve().parent.parent
 SUB = shutil.which("mosquitto_sub")
 PUB = shutil.which("mosquitto_pub")

@@ -2,7 +2,6 @@
 
 from __future__ import annotations
 
-import asyncio
 import json
 import os
 import sys
@@ -12,6 +11,7 @@ from pathlib import Path
 from hypothesis import given
 from hypothesis import strategies as st
 
+from tests.waiting import alive, eventually
 from tuikiln import events as ev
 from tuikiln.alerts.hooks import HookRunner, build_argv
 from tuikiln.alerts.settings import HookSpec, check_hooks
@@ -92,14 +92,6 @@ async def test_hooks_run_only_for_their_events(tmp_path: Path) -> None:
     assert "exit code 1" in emitted[0].message
 
 
-def _alive(pid: int) -> bool:
-    try:
-        with open(f"/proc/{pid}/stat") as handle:
-            return handle.read().rsplit(")", 1)[1].split()[0] != "Z"
-    except FileNotFoundError:
-        return False
-
-
 async def test_a_hanging_hook_is_stopped_with_its_children(tmp_path: Path) -> None:
     pid_file = tmp_path / "child.pid"
     hanger = script(tmp_path, "hang.py", """#!{python}
@@ -116,11 +108,7 @@ time.sleep(60)
     assert [e.kind for e in emitted] == [ev.ALERT_FAILED]
     assert "did not finish within 0.5 s" in emitted[0].message
     child = int(pid_file.read_text())
-    for _ in range(50):
-        if not _alive(child):
-            break
-        await asyncio.sleep(0.02)
-    assert not _alive(child), "the hook's child survived"
+    await eventually(lambda: not alive(child), 1.0, "the hook's child to be gone")
     assert took < 3.0
 
 

@@ -27,7 +27,6 @@ from tuikiln.events import Event
 if TYPE_CHECKING:  # imported by pytest as a plugin, below, so not here
     from tests.mqtt_broker import Broker
 
-pytest_plugins = ["tests.mqtt_broker"]  # the `mosquitto` and `mosquitto_factory` fixtures
 MOSQUITTO_SUB = shutil.which("mosquitto_sub")
 
 KILN = "Bench Oven"  # -> id "bench-oven"
@@ -150,7 +149,8 @@ async def test_events_state_and_readings_reach_an_independent_mosquitto_sub(
 
     seen = {line.split(" ", 1)[0]: line.split(" ", 1)[1] for line in lines if " " in line}
     assert f"{BASE}/status online" in lines
-    assert json.loads(seen[f"{BASE}/event"]) == raised.as_dict()
+    assert json.loads(seen[f"{BASE}/event"]) == {**raised.as_dict(),
+                                                 "time_iso": "2023-11-14T22:15:00.500+00:00"}
     state = json.loads(seen[f"{BASE}/state"])
     assert state["step_words"] == "holding"
     assert state["load_c"] is None  # NaN is not JSON: sent as null

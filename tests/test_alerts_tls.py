@@ -21,7 +21,6 @@ from tuikiln.events import Event
 if TYPE_CHECKING:
     from tests.mqtt_broker import Broker
 
-pytest_plugins = ["tests.mqtt_broker"]
 OPENSSL = shutil.which("openssl")
 
 

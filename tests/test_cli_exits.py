@@ -25,12 +25,11 @@ def test_runs_on_an_empty_log_is_an_empty_list(tmp_path: Path,
     assert "no runs logged yet" in capsys.readouterr().err
 
 
-def test_export_to_dash_writes_the_standard_output(tmp_path: Path,
+def test_export_to_dash_writes_the_standard_output(tmp_path: Path, data_folder: Path,
                                                    monkeypatch: pytest.MonkeyPatch,
                                                    capsys: pytest.CaptureFixture[str]) -> None:
-    monkeypatch.setenv("XDG_CONFIG_HOME", str(tmp_path / "config"))  # no user kiln file
     monkeypatch.chdir(tmp_path)
-    data = str(tmp_path / "data")
+    data = str(data_folder)
     assert main(["--data", data, "run", str(PROFILE), "--headless", "--speed", "max",
                  "--auto-continue"]) == 0
     capsys.readouterr()

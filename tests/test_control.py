@@ -9,10 +9,10 @@ import os
 import stat
 import subprocess
 import sys
-import time
 
 import pytest
 
+from tests.waiting import eventually, wait_until
 from tuikiln import control
 from tuikiln.drivers.fake import FirstOrderOven, ScriptedDevice
 from tuikiln.engine import states as st
@@ -59,9 +59,13 @@ async def test_commands_status_and_subscribe_over_the_socket(tmp_path):
     assert stat.S_IMODE(os.stat(server.path).st_mode) == 0o600
     task = asyncio.create_task(engine.run())
     try:
-        await asyncio.sleep(0.05)
         path = str(server.path)
-        answer = await asyncio.to_thread(control.request, path, "status")
+
+        async def running() -> dict | None:
+            answer = await asyncio.to_thread(control.request, path, "status")
+            return answer if answer["status"]["state"] == st.RUN_RUNNING else None
+
+        answer = await eventually(running, what="the engine to be running")
         status = answer["status"]
         assert answer["ok"] and status["state"] == st.RUN_RUNNING
         for key in ("run", "kiln", "profile", "units", "state", "step", "step_count",
@@ -79,8 +83,10 @@ async def test_commands_status_and_subscribe_over_the_socket(tmp_path):
                     break
             return got
 
+        listening = len(engine.listeners)
         subscription = asyncio.create_task(asyncio.to_thread(first_lines, 3))
-        await asyncio.sleep(0.1)
+        await eventually(lambda: len(engine.listeners) > listening,
+                         what="the subscriber to be listening")
         paused = await asyncio.to_thread(control.request, path, "pause")
         assert paused["ok"] and paused["status"]["state"] == st.RUN_PAUSED
         lines = await asyncio.wait_for(subscription, 10.0)
@@ -115,13 +121,11 @@ def tuikiln(*args: str, data: str, **kw) -> subprocess.CompletedProcess:
                           text=True, env=env, timeout=60, **kw)
 
 
-def test_background_run_survives_its_starter_and_obeys_abort(tmp_path):
+def test_background_run_survives_its_starter_and_obeys_abort(tmp_path, kiln_file):
     data = str(tmp_path / "data")
-    kiln = tmp_path / "kiln.toml"
-    kiln.write_text('name = "Background oven"\nunits = "C"\nmax = 1100\n[device]\n'
-                    'kind = "sim"\n')
-    profile = tmp_path / "p.toml"
-    profile.write_text(PROFILE)
+    kiln = kiln_file('name = "Background oven"\nunits = "C"\nmax = 1100\n[device]\n'
+                     'kind = "sim"\n')
+    profile = kiln_file(PROFILE, "p.toml")
     started = tuikiln("run", str(profile), "--kiln", str(kiln), "--speed", "60", data=data)
     assert started.returncode == 0, started.stderr
     assert "tuikiln status" in started.stdout
@@ -135,9 +139,8 @@ def test_background_run_survives_its_starter_and_obeys_abort(tmp_path):
     assert busy.returncode == 4 and "already going on" in busy.stderr
     aborted = tuikiln("abort", data=data)
     assert aborted.returncode == 0, aborted.stderr
-    deadline = time.monotonic() + 20
-    while time.monotonic() < deadline and control.active_runs(tmp_path / "data"):
-        time.sleep(0.1)
+    wait_until(lambda: not control.active_runs(tmp_path / "data"), timeout=20,
+               what="the aborted run to end")
     runs = json.loads(tuikiln("runs", "--json", data=data).stdout)
     assert runs[-1]["outcome"] == st.ABORTED
     events = RunLog.in_folder(tmp_path / "data").events(runs[-1]["id"])

@@ -2,9 +2,9 @@
 
 from __future__ import annotations
 
-import time
 from pathlib import Path
 
+from tests.waiting import wait_until
 from tuikiln.kiln import parse_kiln
 from tuikiln.profile import parse_profile
 from tuikiln.ui.inprocess import build_engine, run_engine
@@ -27,10 +27,7 @@ async def test_a_hook_runs_at_the_end_of_an_in_process_run(tmp_path: Path) -> No
     finally:
         for sink in engine.sinks:
             await sink.stop()
-    deadline = time.monotonic() + 5
-    while not Path(f"{marker}-run-end").exists() and time.monotonic() < deadline:
-        time.sleep(0.05)
-    assert Path(f"{marker}-run-end").exists()
+    wait_until(Path(f"{marker}-run-end").exists, 5, "the run-end hook to leave its mark")
 
 
 def test_no_alerts_without_a_kiln_file(tmp_path: Path) -> None:

@@ -9,6 +9,8 @@ import tty
 
 import pytest
 
+from tests.waiting import eventually
+from tuikiln.drivers.base import Reading
 from tuikiln.drivers.errors import BadReply, LinkLost, NoAnswer, NotSupported
 from tuikiln.drivers.lines import ChannelSpec, LineSettings, LineThermometer
 
@@ -142,15 +144,16 @@ async def test_unplug_link_lost_then_recovers_without_blocking(meter) -> None:
         with pytest.raises(LinkLost):
             await dev.read()  # still gone: says so at once (backoff), no crash
         meter.plug()
-        reading = None
-        for _ in range(50):
+
+        async def answered() -> Reading | None:
             try:
                 meter.send("T=705")
-                reading = await dev.read()
-                break
+                return await dev.read()
             except (LinkLost, NoAnswer):
-                await asyncio.sleep(0.03)
-        assert reading is not None and reading.chamber_c == 705.0
+                return None
+
+        reading = await eventually(answered, what="a reading once plugged in again")
+        assert reading.chamber_c == 705.0
         assert dev.reconnects == 1
     task.cancel()
     assert ticks >= 3

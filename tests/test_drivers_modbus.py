@@ -16,6 +16,8 @@ from tests.test_drivers_wire import (
     start_serial_server,
     start_tcp_server,
 )
+from tests.waiting import eventually
+from tuikiln.drivers.base import Reading
 from tuikiln.drivers.errors import BadReply, LinkLost, NoAnswer, SettingsError
 from tuikiln.drivers.maps import parse_map
 from tuikiln.drivers.modbus import ModbusDevice, ModbusSettings
@@ -196,22 +198,24 @@ async def test_unplug_mid_poll_reports_link_lost_then_recovers_by_itself(tmp_pat
     task = asyncio.create_task(ticker())
     try:
         async with device:
+            sent = wire.bytes_up
             in_flight = asyncio.create_task(device.read())
-            await asyncio.sleep(0.1)
+            await eventually(lambda: wire.bytes_up > sent, what="the request on the wire")
             wire.unplug()
             with pytest.raises(LinkLost):
                 await in_flight
             with pytest.raises(LinkLost):
                 await device.read()  # still unplugged: says so without waiting
             wire.plug()
-            reading = None
-            for _ in range(40):
+
+            async def answered() -> Reading | None:
                 try:
-                    reading = await device.read()
-                    break
+                    return await device.read()
                 except (LinkLost, NoAnswer):
-                    await asyncio.sleep(0.05)
-            assert reading is not None and reading.chamber_c == pytest.approx(852.3)
+                    return None
+
+            reading = await eventually(answered, what="a reading once plugged in again")
+            assert reading.chamber_c == pytest.approx(852.3)
             assert device.reconnects == 1
     finally:
         task.cancel()

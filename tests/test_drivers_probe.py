@@ -8,6 +8,7 @@ import json
 import os
 import subprocess
 import sys
+from collections.abc import Callable
 from pathlib import Path
 
 import pytest
@@ -23,16 +24,8 @@ needs_sim_serve = pytest.mark.skipif(
 
 
 @pytest.fixture
-def serve():
-    served: list[ServedSim] = []
-
-    def start(*where: str) -> str:
-        served.append(ServedSim(*where, "--speed", "max"))
-        return served[-1].where
-
-    yield start
-    for sim in served:
-        sim.stop()
+def serve(served_sim: Callable[..., ServedSim]) -> Callable[..., str]:
+    return lambda *where: served_sim(*where, "--speed", "max").where
 
 
 def _kiln(tmp_path: Path, port: str) -> Path:

@@ -45,6 +45,8 @@ class PtyWire:
         self.dev_master, self.dev_slave, self.device_path = _raw_pty()
         self.host_master = self.host_slave = -1
         self.corrupt_replies = 0
+        self.bytes_up = 0
+        """Bytes the host has sent towards the device (a test waits on it: request sent)."""
         """How many device->host chunks to damage (one bit flipped: the CRC fails)."""
         self._dirs = {"up": _Direction(), "down": _Direction()}
         self.loop.add_reader(self.dev_master, self._pump, "down")
@@ -77,6 +79,8 @@ class PtyWire:
             return
         if not data or dst < 0:
             return
+        if direction == "up":
+            self.bytes_up += len(data)
         if direction == "down" and self.corrupt_replies > 0:
             self.corrupt_replies -= 1
             data = bytes([data[0], data[1] ^ 0x04]) + data[2:] if len(data) > 1 else b"\xff"
@@ -122,15 +126,17 @@ def holding_device(values: Sequence[int], *, device_id: int = 1, inputs: Sequenc
 
 async def start_serial_server(device: SimDevice, port: str) -> ModbusSerialServer:
     server = ModbusSerialServer(device, framer=FramerType.RTU, port=port, baudrate=9600)
+    # serve_forever(background=True) returns once listen() has opened the port (pymodbus
+    # server/base.py); a request sent before the server reads waits in the pty.
     await server.serve_forever(background=True)
-    await asyncio.sleep(0.05)
+    assert server.transport is not None
     return server
 
 
 async def start_tcp_server(device: SimDevice, port: int) -> ModbusTcpServer:
     server = ModbusTcpServer(device, framer=FramerType.RTU, address=("127.0.0.1", port))
-    await server.serve_forever(background=True)
-    await asyncio.sleep(0.05)
+    await server.serve_forever(background=True)  # returns listening, as above
+    assert server.transport is not None
     return server
 
 

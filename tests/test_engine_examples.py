@@ -19,16 +19,15 @@ PROFILES = sorted((Path(__file__).parent.parent / "profiles").glob("*.toml"))
 
 
 @pytest.mark.parametrize("profile", PROFILES, ids=lambda p: p.name)
-def test_example_profile_completes_headless(tmp_path, monkeypatch, profile):
-    monkeypatch.setenv("XDG_CONFIG_HOME", str(tmp_path / "config"))  # no user kiln file
+def test_example_profile_completes_headless(data_folder, profile):
     out = io.StringIO()
     with contextlib.redirect_stdout(out):
         code = main(["run", str(profile), "--headless", "--speed", "max", "--auto-continue",
-                     "--data", str(tmp_path)])
+                     "--data", str(data_folder)])
     text = out.getvalue()
     assert code == 0, text
     assert "Run complete" in text and "Warning" not in text and "ALARM" not in text
-    log = RunLog.in_folder(tmp_path)
+    log = RunLog.in_folder(data_folder)
     run = log.runs()[-1]
     assert run.outcome == "completed"
     samples = log.samples(run.id)

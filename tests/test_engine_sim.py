@@ -186,13 +186,11 @@ async def test_watch_only_follows_the_plan_without_writing(tmp_path):
     assert device.kiln.controller.setpoint_c == 300.0  # nothing was written
 
 
-def test_a_profile_hotter_than_the_kiln_is_refused(tmp_path):
+def test_a_profile_hotter_than_the_kiln_is_refused(tmp_path, kiln_file):
     from tuikiln.cli import main
 
-    kiln = tmp_path / "kiln.toml"
-    kiln.write_text('name = "Small"\nunits = "C"\nmax = 900\n[device]\nkind = "sim"\n')
-    profile = tmp_path / "hot.toml"
-    profile.write_text('units = "C"\n[[step]]\nramp = "max"\nto = 1000\n')
+    kiln = kiln_file('name = "Small"\nunits = "C"\nmax = 900\n[device]\nkind = "sim"\n')
+    profile = kiln_file('units = "C"\n[[step]]\nramp = "max"\nto = 1000\n', "hot.toml")
     code = main(["run", str(profile), "--kiln", str(kiln), "--headless", "--speed", "max",
                  "--data", str(tmp_path / "data")])
     assert code == 1

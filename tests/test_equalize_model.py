@@ -40,14 +40,18 @@ def test_convection_only_matches_the_analytic_exponential():
     steel = STEELS["carbon steel"]
     model = LoadModel(steel, 0.004, emissivity=0.0, h_w_m2k=25.0)
     tau = steel.density_kg_m3 * steel.specific_heat_j_kgk * 0.002 / 25.0
-    assert model.time_constant_s(500.0) == pytest.approx(tau)
+    # Bi = 25 * 0.002 / 38 = 1.3e-3: the slab's first mode is the lump to within Bi/3.
+    assert model.time_constant_s(500.0) == pytest.approx(tau, rel=1e-3)
     model.reset(20.0)
     model.update(0.0, 500.0)
     for t in np.arange(1.0, 3.0 * tau, 1.0):
         model.update(float(t), 500.0)
         expected = 500.0 + (20.0 - 500.0) * math.exp(-t / tau)
-        assert model.surface_c == pytest.approx(expected, abs=1e-6)
-        assert model.core_c <= model.surface_c  # the core trails the surface
+        # the lump is the slab's mean; the core trails it by a fraction of Bi, the surface
+        # leads it by Bi/2 of the distance left
+        assert model.core_c == pytest.approx(expected, abs=0.5)
+        assert model.core_c <= expected + 1e-9  # never ahead of the exact lump
+        assert model.core_c <= model.surface_c <= expected + 0.5
 
 
 def test_textbook_junction_time_constant_and_time_to_199_c():

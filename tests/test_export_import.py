@@ -13,10 +13,9 @@ ROOT = Path(__file__).resolve().parent.parent
 PROFILE = ROOT / "profiles" / "dry-run.toml"
 
 
-def test_export_then_import_round_trip(tmp_path: Path, monkeypatch: pytest.MonkeyPatch,
+def test_export_then_import_round_trip(tmp_path: Path, data_folder: Path,
                                        capsys: pytest.CaptureFixture[str]) -> None:
-    monkeypatch.setenv("XDG_CONFIG_HOME", str(tmp_path / "config"))  # no user kiln file
-    data = str(tmp_path / "data")
+    data = str(data_folder)
     assert main(["--data", data, "run", str(PROFILE), "--headless", "--speed", "max",
                  "--auto-continue"]) == 0
     out = tmp_path / "run.csv"
@@ -29,11 +28,9 @@ def test_export_then_import_round_trip(tmp_path: Path, monkeypatch: pytest.Monke
     assert result["steps"][0]["verdict"] == "met"
 
 
-def test_bad_report_suffix_and_unwritable_export(tmp_path: Path,
-                                                 monkeypatch: pytest.MonkeyPatch,
+def test_bad_report_suffix_and_unwritable_export(tmp_path: Path, data_folder: Path,
                                                  capsys: pytest.CaptureFixture[str]) -> None:
-    monkeypatch.setenv("XDG_CONFIG_HOME", str(tmp_path / "config"))
-    data = str(tmp_path / "data")
+    data = str(data_folder)
     assert main(["--data", data, "run", str(PROFILE), "--headless", "--speed", "max",
                  "--auto-continue"]) == 0
     assert main(["--data", data, "report", "1", "-o", str(tmp_path / "r.pdf")]) == 1

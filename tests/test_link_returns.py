@@ -11,6 +11,7 @@ import asyncio
 
 from tests.test_drivers_wire import PtyWire, holding_device, start_serial_server
 from tests.test_setpoint_truth import EEPROM_MAP, Events
+from tests.waiting import eventually
 from tuikiln import events as ev
 from tuikiln.drivers.maps import parse_map
 from tuikiln.drivers.modbus import ModbusDevice, ModbusSettings
@@ -32,12 +33,7 @@ WAIT_S = 30.0  # a bound so a broken engine fails the test instead of hanging it
 
 
 async def until(condition, what: str) -> None:  # noqa: ANN001
-    """Wait for `condition()` to hold (checked every 20 ms), at most WAIT_S."""
-    loop = asyncio.get_running_loop()
-    give_up = loop.time() + WAIT_S
-    while not await condition():
-        assert loop.time() < give_up, f"gave up waiting: {what}"
-        await asyncio.sleep(0.02)
+    await eventually(condition, WAIT_S, what)
 
 
 async def test_safe_state_is_written_when_the_link_comes_back(tmp_path) -> None:

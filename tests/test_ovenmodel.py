@@ -13,6 +13,7 @@ leak gaps (radiation), per Incropera, Fundamentals of Heat and Mass Transfer, ch
 from __future__ import annotations
 
 import math
+from dataclasses import replace
 from pathlib import Path
 
 import numpy as np
@@ -183,9 +184,16 @@ def test_fopdt_is_the_linearised_model(big: tuple[OvenModel, dict]) -> None:
     assert f.output_pct == pytest.approx(model.holding_output_pct(800.0))
 
 
-def test_refining_with_the_same_run_keeps_the_fit_and_adds_weight(big) -> None:  # noqa: ANN001
+def test_the_same_run_is_not_learned_twice(big) -> None:  # noqa: ANN001
     model, _ = big
-    twice = refine(model, model)
+    assert refine(model, model) is model
+
+
+def test_refining_with_a_copy_keeps_the_fit_and_adds_weight(big) -> None:  # noqa: ANN001
+    # The same numbers as if from another run (another fingerprint): the normal equations
+    # doubled give the same solution, with twice the weight.
+    model, _ = big
+    twice = refine(model, replace(model, sources=("another run",)))
     assert twice.runs == 2 and twice.seconds == pytest.approx(2 * model.seconds)
     assert twice.heat_c_per_s == pytest.approx(model.heat_c_per_s, rel=1e-9)
     assert twice.loss_per_s == pytest.approx(model.loss_per_s, rel=1e-6, abs=1e-12)
@@ -237,3 +245,21 @@ def test_nan_output_counts_as_none() -> None:
     t, temp, _ = _trace("no-cool")
     with pytest.raises(ModelError, match="no heater output"):
         identify(t, temp, np.full(t.size, math.nan))
+
+
+@pytest.mark.parametrize("change", [
+    {"valid_to_c": "hot"},
+    {"runs": "two"},
+    {"heat_c_per_s": True},
+    {"lining_tau_s": 0.0},
+    {"room_c": math.inf},
+    {"normals": [{"lining_tau_s": 600, "gram": [[1.0]], "moment": [1.0], "yy": 1, "n": 1}]},
+    {"normals": "none"},
+])
+def test_a_damaged_model_is_refused_in_words(big, change: dict) -> None:  # noqa: ANN001
+    model, _ = big
+    damaged = model.as_dict() | change
+    if "room_c" in change:  # JSON cannot hold inf; a hand-edited file could say 1e999
+        damaged["room_c"] = math.inf
+    with pytest.raises(ValueError, match="damaged|no oven has"):
+        OvenModel.from_dict(damaged)

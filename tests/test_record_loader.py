@@ -6,9 +6,8 @@ from __future__ import annotations
 import contextlib
 import io
 import json
+from collections.abc import Callable
 from pathlib import Path
-
-import pytest
 
 from tuikiln.cli import main
 from tuikiln.runlog import RUNLOG_NAME, RunLog
@@ -44,14 +43,11 @@ behind_for = "1s"
 """
 
 
-def test_screen_and_command_give_the_same_verdict(tmp_path: Path,
-                                                  monkeypatch: pytest.MonkeyPatch) -> None:
-    monkeypatch.setenv("XDG_CONFIG_HOME", str(tmp_path / "config"))
-    profile = tmp_path / "lag.toml"
-    profile.write_text(PROFILE)
-    kiln = tmp_path / "kiln.toml"
-    kiln.write_text(KILN)
-    data = tmp_path / "data"
+def test_screen_and_command_give_the_same_verdict(kiln_file: Callable[..., Path],
+                                                  data_folder: Path) -> None:
+    profile = kiln_file(PROFILE, "lag.toml")
+    kiln = kiln_file(KILN)
+    data = data_folder
     out = io.StringIO()
     with contextlib.redirect_stdout(out):
         assert main(["--data", str(data), "--kiln", str(kiln), "run", str(profile),

@@ -8,8 +8,6 @@ import dataclasses
 import io
 from pathlib import Path
 
-import pytest
-
 from tuikiln.cli import main
 from tuikiln.profile import parse_profile
 from tuikiln.runlog import RUNLOG_NAME, RunLog
@@ -35,12 +33,10 @@ to = 60
 """
 
 
-def test_verdicts_in_fahrenheit_keep_a_band_a_band(tmp_path: Path,
-                                                   monkeypatch: pytest.MonkeyPatch) -> None:
-    monkeypatch.setenv("XDG_CONFIG_HOME", str(tmp_path / "config"))
+def test_verdicts_in_fahrenheit_keep_a_band_a_band(tmp_path: Path, data_folder: Path) -> None:
     profile = tmp_path / "temper.toml"
     profile.write_text(PROFILE.format(target=205))
-    data = tmp_path / "data"
+    data = data_folder
     with contextlib.redirect_stdout(io.StringIO()):
         assert main(["--data", str(data), "run", str(profile), "--headless", "--speed", "max",
                      "--auto-continue"]) == 0

@@ -4,6 +4,7 @@ engine writes it (tuikiln.runlog.RunRecorder). Also the checks of those logs."""
 
 from __future__ import annotations
 
+from collections.abc import Callable
 from pathlib import Path
 
 import pytest
@@ -40,9 +41,11 @@ to = 420
 def simulate_run(log: RunLog, profile_text: str, *, faults: tuple[Fault, ...] = (),
                  seed: int = 1, load_tc: bool = True, limit_s: float = 30_000.0,
                  every_s: float = 1.0, oven: OvenConfig | None = None,
-                 load: LoadConfig | None = None) -> int:
+                 load: LoadConfig | None = None,
+                 on_tick: Callable[[float, RunRules], None] | None = None) -> int:
     """Run the profile on the simulator with the engine's rules; the run id in `log`
-    (`oven`, `load`: another oven than the default one, with another load)."""
+    (`oven`, `load`: another oven than the default one, with another load; `on_tick` is
+    called with the time from the start and the rules after every tick)."""
     profile = parse_profile(profile_text, "test.toml")
     limits = Limits().merged(profile.limits)
     rules = RunRules(profile, limits, max_c=1200.0)
@@ -70,6 +73,8 @@ def simulate_run(log: RunLog, profile_text: str, *, faults: tuple[Fault, ...] = 
                         st.STATE_CODE.get(stepper.state, 0), 0)
         if decision.setpoint_c is not None:
             kiln.set_setpoint(decision.setpoint_c)
+        if on_tick is not None:
+            on_tick(now - START_T, rules)
         kiln.advance(every_s)
         now += every_s
     recorder.end(rules.outcome or st.UNFINISHED, now)
@@ -285,16 +290,16 @@ for = "5m"
 """
 
 
-def test_engine_run_with_door_fault(tmp_path: Path, capsys: pytest.CaptureFixture[str]) -> None:
+def test_engine_run_with_door_fault(tmp_path: Path, kiln_file: Callable[..., Path],
+                                    capsys: pytest.CaptureFixture[str]) -> None:
     """The real engine (`tuikiln run --headless --speed max`) on the simulator, door open 5 min
     ten minutes into the soak: the replay says the soak was missed, and why and when."""
     import json
 
-    (tmp_path / "kiln.toml").write_text(KILN_DOOR)
-    (tmp_path / "short.toml").write_text(SHORT_C)
+    kiln, profile = kiln_file(KILN_DOOR), kiln_file(SHORT_C, "short.toml")
     data = str(tmp_path / "data")
-    code, _, err = _cli(capsys, "--data", data, "--kiln", str(tmp_path / "kiln.toml"), "run",
-                        str(tmp_path / "short.toml"), "--headless", "--speed", "max")
+    code, _, err = _cli(capsys, "--data", data, "--kiln", str(kiln), "run",
+                        str(profile), "--headless", "--speed", "max")
     assert code == 0, err
     code, out, err = _cli(capsys, "--data", data, "replay", "last", "--json")
     assert code == 0, err

@@ -17,8 +17,8 @@ def fill(recorder, n: int, t0: float = 0.0) -> None:
                         18.0, 100.0, 50.0, i // 100, i % 5, i % 2)
 
 
-def test_samples_round_trip_with_nulls_as_nan(tmp_path):
-    log = RunLog(tmp_path / "runs.sqlite")
+def test_samples_round_trip_with_nulls_as_nan(run_log: RunLog) -> None:
+    log = run_log
     rec = log.start_run(kiln="k", profile="p", started=0.0, profile_text="units='C'",
                         load={"material": "AISI O1"})
     n = BLOCK_ROWS * 2 + 77  # several full blocks and a growing one
@@ -37,8 +37,8 @@ def test_samples_round_trip_with_nulls_as_nan(tmp_path):
     assert [r.id for r in log.runs()] == [rec.run_id]
 
 
-def test_since_t_and_events_after_id(tmp_path):
-    log = RunLog(tmp_path / "runs.sqlite")
+def test_since_t_and_events_after_id(run_log: RunLog) -> None:
+    log = run_log
     rec = log.start_run(kiln="k", profile="p", started=0.0)
     fill(rec, 3000)
     rec.event(Event(1.0, "note", "one", detail={"text": "one"}))
@@ -68,8 +68,8 @@ def test_a_reader_sees_committed_samples_while_the_run_goes_on(tmp_path):
     assert sqlite3.connect(path).execute("PRAGMA journal_mode").fetchone()[0] == "wal"
 
 
-def test_failing_writes_keep_the_samples_and_retry(tmp_path):
-    log = RunLog(tmp_path / "runs.sqlite")
+def test_failing_writes_keep_the_samples_and_retry(run_log: RunLog) -> None:
+    log = run_log
     rec = log.start_run(kiln="k", profile="p", started=0.0)
     # A real SQLite error on every insert, as a full disk would give.
     rec.conn.execute("CREATE TEMP TRIGGER full BEFORE INSERT ON samples "

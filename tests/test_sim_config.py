@@ -5,6 +5,7 @@ from __future__ import annotations
 import subprocess
 import sys
 import tomllib
+from collections.abc import Callable
 from pathlib import Path
 
 from hypothesis import given, settings
@@ -102,10 +103,9 @@ def test_never_raises_on_any_table(device: dict) -> None:
     assert all(isinstance(message, str) and message for _, message in problems)
 
 
-def test_serve_reports_file_and_line_without_traceback(tmp_path: Path) -> None:
-    kiln = tmp_path / "kiln.toml"
-    kiln.write_text('name = "x"\n[device]\nkind = "sim"\n\n[[device.fault]]\nat = "15m"\n'
-                    'kind = "door"\n', encoding="utf-8")
+def test_serve_reports_file_and_line_without_traceback(kiln_file: Callable[..., Path]) -> None:
+    kiln = kiln_file('name = "x"\n[device]\nkind = "sim"\n\n[[device.fault]]\nat = "15m"\n'
+                     'kind = "door"\n')
     done = subprocess.run(
         [sys.executable, "-m", "tuikiln.simulator.serve", "--config", str(kiln)],
         cwd=REPO, capture_output=True, text=True, timeout=20,
@@ -128,12 +128,10 @@ def test_documented_settings_are_the_defaults() -> None:
     assert config == SimConfig()
 
 
-def test_serve_options_change_the_settings(tmp_path: Path) -> None:
+def test_serve_options_change_the_settings(kiln_file: Callable[..., Path]) -> None:
     from tuikiln.simulator.serve import build_parser, load_config
 
-    kiln = tmp_path / "kiln.toml"
-    kiln.write_text('[device]\nkind = "sim"\nheater_w = 1500\n[device.noise]\nchamber_c = 0\n',
-                    encoding="utf-8")
+    kiln = kiln_file('[device]\nkind = "sim"\nheater_w = 1500\n[device.noise]\nchamber_c = 0\n')
     args = build_parser().parse_args(
         ["--config", str(kiln), "--speed", "max", "--seed", "4", "--load-thickness", "12",
          "--no-load-tc", "--fault", "door-open@20m+45s", "--fault", "tc-open@1h"])

@@ -7,7 +7,7 @@ import select
 import subprocess
 import sys
 import time
-from collections.abc import Iterator
+from collections.abc import Callable
 from pathlib import Path
 
 import pytest
@@ -17,6 +17,7 @@ from pymodbus.exceptions import ModbusException
 from pymodbus.framer.rtu import FramerRTU
 
 from tests.simserve import ServedSim
+from tests.waiting import eventually, wait_until
 from tuikiln.simulator.modbus_rtu import crc16, with_crc
 
 REPO = Path(__file__).resolve().parents[1]
@@ -32,13 +33,8 @@ def test_crc_matches_pymodbus_and_the_spec_example() -> None:
 
 
 @pytest.fixture
-def served(request: pytest.FixtureRequest) -> Iterator[ServedSim]:
-    options = getattr(request, "param", ("--pty", "--speed", "60"))
-    server = ServedSim(*options)
-    try:
-        yield server
-    finally:
-        server.stop()
+def served(request: pytest.FixtureRequest, served_sim: Callable[..., ServedSim]) -> ServedSim:
+    return served_sim(*getattr(request, "param", ("--pty", "--speed", "60")))
 
 
 def _mbpoll(*args: str) -> str:
@@ -66,8 +62,13 @@ def test_mbpoll_reads_writes_and_the_oven_heats(served: ServedSim) -> None:
     assert first[2] == 0 and first[5] == 0 and first[4] & 2 == 0
     assert "Written 1 references" in _mbpoll("-r", "2", served.where, "5000")
     assert "Written 1 references" in _mbpoll("-r", "5", served.where, "1")
-    time.sleep(1.5)  # 90 s simulated at 60x
-    later = _values(_mbpoll("-r", "1", "-c", "6", "-1", served.where))
+
+    def warmer() -> dict[int, int] | None:
+        values = _values(_mbpoll("-r", "1", "-c", "6", "-1", served.where))
+        return values if values[1] > first[1] + 150 else None
+
+    # At 60x the oven heats 15 °C in well under two seconds of wall time.
+    later = wait_until(warmer, timeout=20, what="the oven to heat 15 °C")
     assert later[2] == 5000 and later[5] == 1 and later[4] & 2
     assert later[3] > 500  # output in tenths of a percent: heating hard
     assert later[1] > first[1] + 150  # more than 15 °C warmer already
@@ -108,10 +109,13 @@ async def test_pymodbus_client_over_tcp_at_full_speed(served: ServedSim) -> None
         assert not (await client.write_registers(4, [1], device_id=1)).isError()
         first = (await client.read_holding_registers(0, count=6, device_id=1)).registers
         assert first[5] == 32767  # no load thermocouple: over-range
-        time.sleep(0.5)
-        later = (await client.read_holding_registers(0, count=6, device_id=1)).registers
-        # "max" runs hours per second: the oven is already holding 400 °C.
-        assert abs(later[0] - 4000) < 30 and later[2] < 1000
+
+        async def holding() -> list[int] | None:
+            regs = (await client.read_holding_registers(0, count=6, device_id=1)).registers
+            return regs if abs(regs[0] - 4000) < 30 and regs[2] < 1000 else None
+
+        # "max" runs hours per second: the oven soon holds 400 °C with output to spare.
+        await eventually(holding, timeout=20, what="the oven to hold 400 °C")
     finally:
         client.close()
 

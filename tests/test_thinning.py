@@ -7,8 +7,8 @@ from hypothesis import given, settings
 from hypothesis import strategies as st
 from hypothesis.extra.numpy import arrays
 
+from tuikiln.thinning import bucket_bounds, min_max_buckets, thin
 from tuikiln.ui.chartdraw import ChartSpec, Trace, plot_layout, render_chart, strips_text
-from tuikiln.ui.thinning import bucket_bounds, min_max_buckets, thin
 
 temperatures = st.floats(min_value=-50, max_value=1300, allow_nan=False)
 

@@ -3,11 +3,11 @@ run started from home with the real engine process, left going when its screen c
 
 from __future__ import annotations
 
-import asyncio
-import time
+from collections.abc import Callable
 from pathlib import Path
 
 from tests.test_ui_fakes import DEMO_PROFILE, ScriptedEngine, screen_text
+from tests.waiting import eventually
 from tuikiln import control
 from tuikiln.ui.app import TuikilnApp
 from tuikiln.ui.launcher import Launcher
@@ -113,9 +113,9 @@ async def test_home_lists_kiln_profiles_and_runs(tmp_path: Path) -> None:
         assert isinstance(pilot.app.screen, ReplayScreen)
 
 
-async def test_run_started_from_home_goes_on_after_leaving(tmp_path: Path) -> None:
-    kiln = tmp_path / "kiln.toml"
-    kiln.write_text('name = "UI test oven"\nunits = "C"\n[device]\nkind = "sim"\nspeed = 30\n')
+async def test_run_started_from_home_goes_on_after_leaving(
+        tmp_path: Path, kiln_file: Callable[..., Path]) -> None:
+    kiln = kiln_file('name = "UI test oven"\nunits = "C"\n[device]\nkind = "sim"\nspeed = 30\n')
     launcher = Launcher(tmp_path / "data", str(kiln))
     app = TuikilnApp(lambda: HomeScreen(launcher), units="C")
     try:
@@ -148,7 +148,5 @@ async def test_run_started_from_home_goes_on_after_leaving(tmp_path: Path) -> No
     finally:
         for run in control.active_runs(tmp_path / "data"):
             control.request(run.socket, "abort")
-        deadline = time.monotonic() + 10
-        while control.active_runs(tmp_path / "data") and time.monotonic() < deadline:
-            await asyncio.sleep(0.1)
-    assert not control.active_runs(tmp_path / "data")
+        await eventually(lambda: not control.active_runs(tmp_path / "data"), 10,
+                         "the aborted run to end")

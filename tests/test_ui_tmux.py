@@ -8,11 +8,12 @@ import re
 import shutil
 import subprocess
 import sys
-import time
 import uuid
 from pathlib import Path
 
 import pytest
+
+from tests.waiting import alive, wait_until
 
 ROOT = Path(__file__).resolve().parents[1]
 pytestmark = pytest.mark.skipif(shutil.which("tmux") is None, reason="tmux is not installed")
@@ -30,14 +31,14 @@ class Tmux:
         return self("capture-pane", "-p", "-t", "demo")
 
     def wait_for(self, *words: str, timeout: float = 15.0) -> str:
-        deadline = time.monotonic() + timeout
-        text = ""
-        while time.monotonic() < deadline:
+        def shown() -> str | None:
             text = self.screen()
-            if all(word in text for word in words):
-                return text
-            time.sleep(0.2)
-        raise AssertionError(f"{words} not on screen:\n{text}")
+            return text if all(word in text for word in words) else None
+
+        try:
+            return wait_until(shown, timeout, f"{words} on screen")
+        except AssertionError as exc:
+            raise AssertionError(f"{exc}:\n{self.screen()}") from None
 
 
 @pytest.fixture
@@ -70,15 +71,7 @@ def test_demo_in_a_real_terminal(tmux: Tmux, tmp_path: Path) -> None:
     tmux.wait_for("Abort the run?", "[y] abort the run")
     tmux("send-keys", "-t", "demo", "n")
     tmux("send-keys", "-t", "demo", "q")
-    deadline = time.monotonic() + 10
-    while time.monotonic() < deadline:
-        try:
-            os.kill(pid, 0)
-        except ProcessLookupError:
-            break
-        time.sleep(0.1)
-    else:
-        raise AssertionError("the demo process is still there after q")
+    wait_until(lambda: not alive(pid), 10, "the demo process to end after q")
     leftover = subprocess.run(["pgrep", "-f", f"--data {tmp_path}"], capture_output=True,
                               text=True).stdout.split()
     assert leftover == []
@@ -89,12 +82,16 @@ def test_demo_in_a_real_terminal(tmux: Tmux, tmp_path: Path) -> None:
 EVENT_LINE = re.compile(r"^ \+\d+h\d\d ")  # the event log's lines (another widget's marks)
 
 
+def tuikiln_command(words: str, env: str) -> str:
+    return (f"cd {ROOT} && exec env -u COLUMNS -u LINES -u NO_COLOR -u TUIKILN_GLYPHS "
+            f"{env} {sys.executable} -m tuikiln {words}")
+
+
 def start(tmux: Tmux, tmp_path: Path, words: str, env: str = "", size: tuple = (80, 24)
           ) -> int:
     """Start `tuikiln WORDS` in a fresh pane of this size; the pane's process id."""
-    command = (f"cd {ROOT} && exec env -u COLUMNS -u LINES -u NO_COLOR -u TUIKILN_GLYPHS "
-               f"{env} {sys.executable} -m tuikiln {words}")
-    tmux("new-session", "-d", "-s", "demo", "-x", str(size[0]), "-y", str(size[1]), command)
+    tmux("new-session", "-d", "-s", "demo", "-x", str(size[0]), "-y", str(size[1]),
+         tuikiln_command(words, env))
     return int(tmux("display-message", "-p", "-t", "demo", "#{pane_pid}").strip())
 
 
@@ -118,7 +115,7 @@ def test_no_color_tells_lines_apart_by_shape_at_80x24(tmux: Tmux, tmp_path: Path
     start(tmux, tmp_path, demo_words(tmp_path), env="NO_COLOR=1")
     # The legend shows each line's mark; the load and the plan ahead appear within seconds.
     screen = tmux.wait_for(f"{BLOCK_MARKS['chamber']} chamber", f"{BLOCK_MARKS['load']} load",
-                           f"{BLOCK_MARKS['plan']} plan", "step 1 of 8")
+                           f"{BLOCK_MARKS['plan']} plan", "step 1 of 8", timeout=40.0)
     lines = screen.splitlines()
     chart = "\n".join(line[:48] for line in lines[2:18])
     assert BLOCK_MARKS["chamber"] in chart and BLOCK_MARKS["plan"] in chart
@@ -137,25 +134,35 @@ def test_linux_console_draws_without_braille(tmux: Tmux, tmp_path: Path) -> None
     from tuikiln.ui.glyphs import BLOCK_MARKS
 
     start(tmux, tmp_path, demo_words(tmp_path), env="TERM=linux")
-    screen = tmux.wait_for(f"{BLOCK_MARKS['chamber']} chamber", "step 1 of 8", "chamber ")
+    screen = tmux.wait_for(f"{BLOCK_MARKS['chamber']} chamber", "step 1 of 8", "chamber ",
+                           timeout=40.0)
     assert not braille_in(screen)
-    # Everything but the event log's lines is in code page 437, the character set of the
-    # Linux console's built-in font (from memory); Python's "cp437" codec is the table.
-    for line in screen.splitlines():
-        if not EVENT_LINE.match(line):
-            line.encode("cp437")
+    console_font_has(screen)
     assert "╭" not in screen  # the big digits' rounded corners are not drawn there
     tmux("send-keys", "-t", "demo", "q")
 
 
 def test_override_draws_braille_on_the_linux_console(tmux: Tmux, tmp_path: Path) -> None:
     start(tmux, tmp_path, demo_words(tmp_path) + " --glyphs braille", env="TERM=linux")
-    screen = tmux.wait_for("━ chamber", "step 1 of 8")
+    screen = tmux.wait_for("━ chamber", "step 1 of 8", timeout=40.0)
     assert braille_in(screen)
     tmux("send-keys", "-t", "demo", "q")
 
 
-def test_every_screen_keys_at_80x24(tmux: Tmux, tmp_path: Path) -> None:
+def console_font_has(screen: str) -> None:
+    """Every character on screen, the event log's lines apart, is in code page 437, the
+    character set of the Linux console's built-in font (from memory); Python's "cp437"
+    codec is the table."""
+    for line in screen.splitlines():
+        if not EVENT_LINE.match(line):
+            try:
+                line.encode("cp437")
+            except UnicodeEncodeError as exc:
+                raise AssertionError(f"{line[exc.start:exc.end]!r} in {line!r}") from None
+
+
+@pytest.mark.parametrize("term", ["", "TERM=linux"], ids=["default", "linux-console"])
+def test_every_screen_keys_at_80x24(tmux: Tmux, tmp_path: Path, term: str) -> None:
     from tests.test_replay_sim import SHORT_C, simulate_run
     from tuikiln.runlog import RunLog
     from tuikiln.ui.screens.home import HomeScreen
@@ -165,28 +172,38 @@ def test_every_screen_keys_at_80x24(tmux: Tmux, tmp_path: Path) -> None:
     log = RunLog(tmp_path / "runs.sqlite")
     simulate_run(log, SHORT_C, limit_s=1200.0)
     log.close()
-    start(tmux, tmp_path, f"home --data {tmp_path}")
+    start(tmux, tmp_path, f"home --data {tmp_path}", env=term)
 
     def footer_has(screen_class: type, *also: str) -> str:
-        screen = tmux.wait_for(*footer_words(screen_class), *also)
+        screen = tmux.wait_for(*footer_words(screen_class), *also, timeout=40.0)
         footer = screen.splitlines()[-1]
         for words in footer_words(screen_class):
             assert words in footer, (words, footer)
+        if term:
+            console_font_has(screen)
         return screen
 
     footer_has(HomeScreen, "Recent runs")
     tmux("send-keys", "-t", "demo", "Enter")  # the first profile's plan
     footer_has(PreviewScreen, "total at least")
     tmux("send-keys", "-t", "demo", "s")  # the long summary scrolls; its keys stay in view
-    tmux.wait_for("[y] start it", "[n] no, go back")
+    screen = tmux.wait_for("[y] start it", "[n] no, go back")
+    if term:
+        console_font_has(screen)
     tmux("send-keys", "-t", "demo", "n")
     footer_has(PreviewScreen)
     # q rather than Escape: an Escape followed at once by Tab reads as Alt+Tab.
     tmux("send-keys", "-t", "demo", "q")
     footer_has(HomeScreen, "Recent runs")
-    tmux("send-keys", "-t", "demo", "Tab")  # to the runs
-    tmux("send-keys", "-t", "demo", "Enter")
-    footer_has(ReplayScreen, "Replay · run 1")
+    # The replay screen by `tuikiln review` in the same pane (from home, Tab would race the
+    # focus Textual gives back to the list the preview was opened from).
+    tmux("respawn-pane", "-k", "-t", "demo", tuikiln_command(f"review last --data {tmp_path}",
+                                                            term))
+    footer_has(ReplayScreen, "Replay · run 1", "Verdicts")
+    tmux("send-keys", "-t", "demo", "?")
+    screen = tmux.wait_for("Escape closes this help")
+    if term:
+        console_font_has(screen)
     tmux("send-keys", "-t", "demo", "q")
-    footer_has(HomeScreen, "Recent runs")
+    footer_has(ReplayScreen)
     tmux("send-keys", "-t", "demo", "q")

@@ -15,6 +15,7 @@ import sys
 from collections.abc import Sequence
 from typing import NoReturn
 
+from tuikiln import logsetup
 from tuikiln.errors import FileProblems, UserError
 
 # command name -> module (one line each, so adding a command touches one line).
@@ -25,6 +26,7 @@ COMMANDS: dict[str, str] = {
     "review": "tuikiln.commands.review",
     "check": "tuikiln.commands.check",
     "plan": "tuikiln.commands.plan",
+    "learn": "tuikiln.commands.learn",
     "probe": "tuikiln.commands.probe",
     "sim": "tuikiln.commands.sim",
     "thermocouple": "tuikiln.commands.thermocouple",
@@ -43,7 +45,11 @@ COMMANDS: dict[str, str] = {
     "report": "tuikiln.commands.replay",
     "import": "tuikiln.commands.replay",
     "service": "tuikiln.commands.service",
+    "completion": "tuikiln.commands.completion",
 }
+
+# Commands that draw a screen: Textual draws on the standard error, so their log goes to a file.
+SCREEN_COMMANDS = frozenset({"demo", "home", "watch", "review"})
 
 # Shown in `tuikiln --help`; the modules' HELP lines are read lazily.
 COMMAND_HELP: dict[str, str] = {
@@ -53,6 +59,7 @@ COMMAND_HELP: dict[str, str] = {
     "review": "look back at a past run on screen: chart against the plan, cursor, verdicts",
     "check": "check profile files and print a one-line summary of each",
     "plan": "show the planned curve of a profile (table, --json or --csv)",
+    "learn": "learn the oven from a logged run: heating, losses, time constant, PID by SIMC",
     "probe": "connect to the kiln's device and print readings, to check wiring and settings",
     "sim": "the built-in software oven: `sim serve` answers Modbus RTU on a pty or TCP",
     "thermocouple": "convert thermocouple millivolts to temperature and back (NIST ITS-90)",
@@ -71,6 +78,7 @@ COMMAND_HELP: dict[str, str] = {
     "report": "write a run's report as HTML (with its chart) or Markdown (.md)",
     "import": "replay another tool's CSV temperature log against a profile",
     "service": "print a systemd unit that resumes unfinished runs at boot and after a crash",
+    "completion": "print a shell completion script (bash or zsh) for tuikiln's commands",
 }
 
 
@@ -97,6 +105,15 @@ def _global_options() -> _Parser:
         default=argparse.SUPPRESS,
         help="kiln file (default: kiln.toml in the user's config folder; none: the simulator)",
     )
+    common.add_argument(
+        "--log-level",
+        metavar="LEVEL",
+        choices=logsetup.LEVELS,
+        default=argparse.SUPPRESS,
+        help="debug, info, warning (default) or error; also $TUIKILN_LOG_LEVEL. Logs go to "
+        "the standard error (the journal under systemd); the screens' to "
+        "DATA/logs/tuikiln.log. Libraries' own lines are shown only at debug",
+    )
     return common
 
 
@@ -106,7 +123,7 @@ def _first_word(argv: Sequence[str]) -> str | None:
     for word in argv:
         if skip_next:
             skip_next = False
-        elif word in ("--data", "--kiln"):
+        elif word in ("--data", "--kiln", "--log-level"):
             skip_next = True
         elif not word.startswith("-"):
             return word
@@ -168,6 +185,11 @@ def main(argv: Sequence[str] | None = None) -> int:
         return 0
     args.data = getattr(args, "data", None) or os.environ.get("TUIKILN_DATA") or None
     args.kiln = getattr(args, "kiln", None)
+    args.log_level = logsetup.configure(getattr(args, "log_level", None))
+    if args.command in SCREEN_COMMANDS:
+        from tuikiln.runlog import default_data_dir
+
+        logsetup.to_file(default_data_dir(args.data))
     module = importlib.import_module(args._module)
     try:
         return int(module.run(args) or 0)

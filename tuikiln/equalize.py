@@ -335,8 +335,9 @@ class LoadWatch:
 
     def __init__(self, material: str | None, thickness_m: float | None, *, window_s: float,
                  slope_limit_c_per_s: float, confirm_s: float, resolution_c: float = 1.0,
-                 units: Units = "C") -> None:
-        self.model = LoadModel.from_load(material, thickness_m)
+                 units: Units = "C", wrap: str = "none",
+                 width_m: float | None = None) -> None:
+        self.model = LoadModel.from_load(material, thickness_m, wrap, width_m)
         self.thickness_m = thickness_m
         self.window_s = window_s
         self.slope_limit = slope_limit_c_per_s
@@ -367,7 +368,9 @@ class LoadWatch:
                load_c: float | None = None) -> EqualizeStatus | None:
         """Feed one reading; the hold's status while a hold is watched, else None."""
         chamber = chamber_c if chamber_c is not None and math.isfinite(chamber_c) else None
-        core = None if chamber is None else self.model.update(now, chamber)
+        # The load thermocouple (on the surface) only bounds the core from below while the
+        # part cools; the estimate itself is driven by the chamber alone.
+        core = None if chamber is None else self.model.update(now, chamber, load_c)
         if load_c is not None and math.isfinite(load_c):
             watched, source = load_c, LOAD_TC
         elif core is not None:

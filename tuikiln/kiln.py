@@ -58,6 +58,8 @@ class Kiln:
     base_dir: str = "."
     text: str = ""
     """The file's text as loaded (stored with every run; secrets live in other files)."""
+    channels: Mapping[str, Mapping[str, Any]] = field(default_factory=dict)
+    """Checked values of each registered alert channel's table (tuikiln.alerts.channels)."""
 
     @property
     def is_simulator(self) -> bool:
@@ -92,8 +94,10 @@ def parse_kiln(text: str, file: str = "<kiln>") -> Kiln:
     def report(path: tuple, message: str) -> None:
         found.append(Problem(file, lines.line(path), message))
 
+    from tuikiln.alerts.channels import CHANNELS, check_channel
+
     settings: Problems = []
-    values = check_table(data, KILN, (), settings)
+    values = check_table(data, KILN, (), settings, also=CHANNELS)
     for key_path, message in settings:
         report(key_path, message)
     units = values["units"]
@@ -128,6 +132,14 @@ def parse_kiln(text: str, file: str = "<kiln>") -> Kiln:
         hooks, hook_problems = check_hooks(data["hook"], base_dir)
         for key_path, message in hook_problems:
             report(tuple(key_path), message)
+    channels: dict[str, Mapping[str, Any]] = {}
+    for table in CHANNELS:
+        if table in data:
+            checked, channel_problems = check_channel(table, data[table], base_dir)
+            for key_path, message in channel_problems:
+                report(tuple(key_path), message)
+            if checked is not None:
+                channels[table] = checked
     on_restart, bell = values["on_restart"], values["bell"]
     if found:
         raise FileProblems(sorted(found, key=lambda p: p.line or 0))
@@ -144,6 +156,7 @@ def parse_kiln(text: str, file: str = "<kiln>") -> Kiln:
         path=file,
         base_dir=base_dir,
         text=text,
+        channels=channels,
     )
 
 

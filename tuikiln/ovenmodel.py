@@ -57,6 +57,7 @@ heat-up measures best. The steady-state gain (a/(100*L')) is reported beside it.
 
 from __future__ import annotations
 
+import hashlib
 import math
 from collections.abc import Mapping
 from dataclasses import asdict, dataclass, replace
@@ -133,6 +134,8 @@ class OvenModel:
     operating_c: float | None = None
     """Where the run spent its controlled time: the default point of the FOPDT model."""
     normals: tuple[Normals, ...] = ()
+    sources: tuple[str, ...] = ()
+    """A fingerprint of each log learned from: the same run is never counted twice."""
 
     # ----- the physics -----
 
@@ -247,18 +250,31 @@ class OvenModel:
         if not isinstance(d, Mapping) or d.get("version") != MODEL_VERSION:
             raise ValueError("not an oven model saved by this version of tuikiln")
         try:
-            values = {name: d[name] for name in _FIELDS if name in d and name != "normals"}
+            values: dict[str, Any] = {}
+            for name in _FIELDS:
+                if name not in d or name in ("normals", "sources"):
+                    continue
+                value = d[name]
+                if name == "operating_c" and value is None:
+                    values[name] = None
+                elif isinstance(value, bool) or not isinstance(value, int | float):
+                    raise ValueError(f'"{name}" is not a number')
+                else:
+                    values[name] = int(value) if name == "runs" else float(value)
+            values["sources"] = tuple(str(x) for x in d.get("sources", ()))
             normals = tuple(
                 Normals(float(n["lining_tau_s"]),
                         tuple(tuple(float(x) for x in row) for row in n["gram"]),
                         tuple(float(x) for x in n["moment"]), float(n["yy"]), int(n["n"]))
                 for n in d.get("normals", ()))
+            if any(len(n.gram) != 4 or any(len(row) != 4 for row in n.gram)
+                   or len(n.moment) != 4 for n in normals):
+                raise ValueError("its least-squares sums have the wrong shape")
             model = cls(**values, normals=normals)
         except (TypeError, ValueError, KeyError) as exc:
             raise ValueError(f"the oven model is damaged ({exc})") from None
-        numbers = (model.heat_c_per_s, model.loss_per_s, model.radiation_per_s_k3,
-                   model.lining_per_s, model.lining_tau_s, model.room_c, model.dead_time_s)
-        if not all(isinstance(x, int | float) and math.isfinite(x) for x in numbers) \
+        numbers = [getattr(model, f) for f in _FIELDS if isinstance(getattr(model, f), float)]
+        if not all(math.isfinite(x) for x in numbers) \
                 or model.heat_c_per_s <= 0 or model.loss_per_s < 0 or model.lining_tau_s <= 0 \
                 or model.radiation_per_s_k3 < 0 or model.lining_per_s < 0 \
                 or model.dead_time_s < 0:
@@ -446,20 +462,30 @@ def identify(t_s: np.ndarray, chamber_c: np.ndarray, output_pct: np.ndarray | No
                        normals=tuple(normals), sim_rms=0.0)
     ok = np.isfinite(grid.temp) & np.isfinite(grid.out)
     simulated = model.simulate(grid.t[ok], grid.out[ok], float(grid.temp[ok][0]))
-    return replace(model, sim_rms_c=float(np.sqrt(np.mean((simulated - grid.temp[ok]) ** 2))))
+    return replace(model, sim_rms_c=float(np.sqrt(np.mean((simulated - grid.temp[ok]) ** 2))),
+                   sources=(fingerprint(grid),))
+
+
+def fingerprint(grid: _Grid) -> str:
+    """The binned log's digest: the same run, from the run log or its CSV export, gives
+    the same one (to the tenth of a degree the readings are logged at)."""
+    digest = hashlib.sha256()
+    digest.update(np.round(grid.t - grid.t[0]).astype(np.int64).tobytes())
+    digest.update(np.nan_to_num(np.round(grid.temp, 0)).astype(np.int64).tobytes())
+    return digest.hexdigest()[:16]
 
 
 def _from_coef(coef: np.ndarray, tau: float, room_c: float, dead: float, ss: float, n: int, *,
                valid: tuple[float, float], seconds: float, runs: int,
-               operating: float | None, normals: tuple[Normals, ...], sim_rms: float
-               ) -> OvenModel:
+               operating: float | None, normals: tuple[Normals, ...], sim_rms: float,
+               sources: tuple[str, ...] = ()) -> OvenModel:
     return OvenModel(
         heat_c_per_s=float(coef[0]), loss_per_s=float(coef[1]),
         radiation_per_s_k3=float(coef[2]) / _RAD_SCALE, lining_per_s=float(coef[3]),
         lining_tau_s=tau, room_c=room_c, dead_time_s=dead,
         rms_c_per_min=math.sqrt(max(ss, 0.0) / max(n, 1)) * 60.0, sim_rms_c=sim_rms,
         valid_from_c=valid[0], valid_to_c=valid[1], seconds=seconds, runs=runs,
-        operating_c=operating, normals=normals)
+        operating_c=operating, normals=normals, sources=sources)
 
 
 def _lag_scan_s(s: _Smoothed, room_c: float, tau: float, h: float) -> float:
@@ -524,6 +550,8 @@ def _step_dead_time_s(t: np.ndarray, temp: np.ndarray, out: np.ndarray, coef: np
 def refine(earlier: OvenModel, new: OvenModel) -> OvenModel:
     """One model from two: a fit over both runs (their normal equations added per tau_w);
     the dead time and the simulated residual weighted by the seconds each was learned from."""
+    if set(new.sources) <= set(earlier.sources):
+        return earlier  # learned from this very log already
     if not earlier.normals or not new.normals or \
             [n.lining_tau_s for n in earlier.normals] != [n.lining_tau_s for n in new.normals]:
         return new
@@ -549,4 +577,5 @@ def refine(earlier: OvenModel, new: OvenModel) -> OvenModel:
         valid=(min(earlier.valid_from_c, new.valid_from_c),
                max(earlier.valid_to_c, new.valid_to_c)),
         seconds=w1 + w2, runs=earlier.runs + new.runs, operating=ops[-1] if ops else None,
-        normals=summed, sim_rms=math.sqrt(mix(earlier.sim_rms_c**2, new.sim_rms_c**2)))
+        normals=summed, sim_rms=math.sqrt(mix(earlier.sim_rms_c**2, new.sim_rms_c**2)),
+        sources=tuple(dict.fromkeys(earlier.sources + new.sources)))

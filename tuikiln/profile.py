@@ -87,6 +87,12 @@ class Load:
     thickness_m: float | None = None
     pieces: int | None = None
     thickness_text: str | None = None
+    width_m: float | None = None
+    """The part's width (the next size up from the thickness): the estimate then counts the
+    heat taken in through the edges."""
+    wrap: str = "none"
+    """ "none", or "foil": the part is sealed in a stainless foil packet (the equalization
+    estimate then allows for the foil's low emissivity and the air gap inside it)."""
 
 
 @dataclass(frozen=True)
@@ -108,7 +114,8 @@ class Profile:
 
 
 TOP_KEYS = ("name", "units", "about", "load", "limits", "step")
-LOAD_KEYS = ("material", "thickness", "pieces")
+LOAD_KEYS = ("material", "thickness", "width", "pieces", "wrap")
+WRAPS = ("none", "foil")
 STEP_KEYS = {
     "ramp": ("ramp", "to", "label"),
     "hold": ("hold", "start", "band", "label"),
@@ -208,12 +215,27 @@ class _Checker:
                 thickness_m = parse_thickness(thickness)
             except ValueError as exc:
                 self.report(("load", "thickness"), f'"thickness": {exc}')
+        width_m = None
+        width = table.get("width")
+        if width is not None:
+            try:
+                width_m = parse_thickness(width)
+            except ValueError as exc:
+                self.report(("load", "width"),
+                            f'"width": {str(exc).replace("thickness", "width")}')
         pieces = table.get("pieces")
         if pieces is not None and (isinstance(pieces, bool) or not isinstance(pieces, int)
                                    or pieces < 1):
             self.report(("load", "pieces"), '"pieces" must be a whole number, 1 or more')
             pieces = None
-        return Load(material, thickness_m, pieces, thickness if thickness_m else None)
+        wrap = table.get("wrap", "none")
+        if not isinstance(wrap, str) or wrap not in WRAPS:
+            shown = f'"{wrap}"' if isinstance(wrap, str) else "that"
+            self.report(("load", "wrap"), f'"wrap" must be "none" or "foil", not {shown}'
+                        f"{suggest(wrap, WRAPS) if isinstance(wrap, str) else ''}")
+            wrap = "none"
+        return Load(material, thickness_m, pieces, thickness if thickness_m else None,
+                    width_m, wrap)
 
     def steps(self, raw: Any, start_c: float, profile_band: float | None) -> list[Step]:
         if raw is None or raw == []:

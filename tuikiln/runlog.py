@@ -261,12 +261,42 @@ def _connect(path: Path, *, writer: bool = False) -> sqlite3.Connection:
     return conn
 
 
-class RunLog:
-    """Reader (and the door to the writer) for one `runs.sqlite`."""
+def _connect_reader(path: Path) -> sqlite3.Connection:
+    """A connection that can only read: SQLite refuses every write through it, so a screen
+    or a listing can never create the file, add schema or race the engine's commits."""
+    if not path.exists() or path.stat().st_size == 0:
+        # Nothing logged yet (or the engine is making the file this instant): an empty log
+        # in memory answers every question with "none".
+        conn = sqlite3.connect(":memory:", isolation_level=None, check_same_thread=False)
+        conn.executescript(_SCHEMA)
+        return conn
+    conn = sqlite3.connect(path.resolve().as_uri() + "?mode=ro", uri=True, timeout=10.0,
+                           isolation_level=None, check_same_thread=False)
+    conn.execute(f"PRAGMA busy_timeout={READER_BUSY_MS}")
+    tables = {row[0] for row in conn.execute("SELECT name FROM sqlite_master")}
+    if not {"runs", "meta"} <= tables:
+        conn.close()
+        raise sqlite3.DatabaseError("it is not a run log (it has no table of runs)")
+    # Reading a page past the first finds most damage here, where the path is known, as the
+    # writer's schema check does.
+    conn.execute("SELECT value FROM meta WHERE key = 'schema'").fetchone()
+    return conn
 
-    def __init__(self, path: str | os.PathLike[str]) -> None:
+
+class RunLog:
+    """Reader (and the door to the writer) for one `runs.sqlite`.
+
+    `RunLog(path)` is the engine's: it makes the file and its schema. Everything else reads
+    through `RunLog.reader(path)`, which opens it read-only (tests/test_layering.py checks
+    which modules may do which)."""
+
+    def __init__(self, path: str | os.PathLike[str], *, read_only: bool = False) -> None:
         self.path = Path(path)
+        self.read_only = read_only
         try:
+            if read_only:
+                self._conn = _connect_reader(self.path)
+                return
             private_folder(self.path.parent)
             if not self.path.exists():  # made 0600 here; SQLite gives its WAL the same mode
                 os.close(os.open(self.path, os.O_WRONLY | os.O_CREAT, 0o600))
@@ -278,8 +308,13 @@ class RunLog:
             raise log_trouble(self.path, exc) from exc
 
     @classmethod
-    def in_folder(cls, data_dir: str | os.PathLike[str]) -> RunLog:
-        return cls(Path(data_dir) / RUNLOG_NAME)
+    def in_folder(cls, data_dir: str | os.PathLike[str], *, read_only: bool = False) -> RunLog:
+        return cls(Path(data_dir) / RUNLOG_NAME, read_only=read_only)
+
+    @classmethod
+    def reader(cls, path: str | os.PathLike[str]) -> RunLog:
+        """The log opened read-only (a missing file reads as a log with no runs)."""
+        return cls(path, read_only=True)
 
     def close(self) -> None:
         self._conn.close()

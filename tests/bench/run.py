@@ -32,6 +32,8 @@ MODULES = [
     "modbus_rate",
     "watch_cost",
     "equalize",
+    "load_equalize",
+    "ovenmodel_fit",
     "fuzz_hostile",
     "trials",
 ]

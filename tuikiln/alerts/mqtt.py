@@ -6,9 +6,13 @@ Topics, under `{prefix}/{id}/`:
     status   "online" / "offline", retained; "offline" is also the Last Will, so a crash or a
              lost link shows as offline within about the keepalive
     state    the engine's status dict as JSON, retained; at most about once a second while it
-             changes, at least every 5 s, and again after every reconnect
-    event    one JSON object per event (Event.as_dict()), QoS 1
-    reading  one JSON object per sample (turn off with readings = false)
+             changes, at least every 5 s, and again after every reconnect. Text values at
+             most 255 characters (tuikiln.alerts.payloads); `time_iso`, `started_iso`
+             (ISO 8601 UTC) beside the epoch seconds
+    attributes  the state's whole texts (step words, profile, alarms), retained, sent with
+             the state when they change; the dashboard entities' attributes
+    event    one JSON object per event (Event.as_dict() and `time_iso`), QoS 1
+    reading  one JSON object per sample, with `time_iso` (turn off with readings = false)
     command  (subscribed, only with commands = true) see tuikiln.alerts.remote
 
 Shape of the work: `event()`, `state()` and `reading()` are plain calls that serialise, queue
@@ -44,6 +48,7 @@ from aiomqtt.exceptions import MqttConnectError
 
 from tuikiln import events as ev
 from tuikiln.alerts.discovery import discovery_messages
+from tuikiln.alerts.payloads import state_and_attributes, with_iso_times
 from tuikiln.alerts.remote import Refusal, RemoteCommand, parse_command
 from tuikiln.alerts.settings import MqttSettings, read_password
 from tuikiln.events import Event
@@ -173,8 +178,11 @@ class MqttPublisher:
         self._timeout = timeout
         self._outbox = _Outbox(event_cap=event_cap, reading_cap=reading_cap)
         self._topics = {leaf: settings.topic(leaf)
-                        for leaf in ("status", "state", "event", "reading", "command")}
+                        for leaf in ("status", "state", "attributes", "event", "reading",
+                                     "command")}
         self._state_payload: str | None = None
+        self._attributes_payload: str | None = None
+        self._attributes_sent: str | None = None
         self._state_version = 0
         self._state_sent_version = -1
         self._state_sent_at: float | None = None
@@ -200,14 +208,17 @@ class MqttPublisher:
         try:
             if event.run_id is not None:
                 self._run_id = event.run_id
-            self._outbox.add(self._topics["event"], to_json(event.as_dict()), 1, True)
+            self._outbox.add(self._topics["event"], to_json(with_iso_times(event.as_dict())),
+                             1, True)
             self._poke()
         except Exception:
             self._note_sink_error("event")
 
     def state(self, state: Mapping[str, Any]) -> None:
         try:
-            self._state_payload = to_json(state)
+            short, attributes = state_and_attributes(state)
+            self._state_payload = to_json(short)
+            self._attributes_payload = to_json(attributes)
             self._state_version += 1
             self._poke()
         except Exception:
@@ -217,7 +228,7 @@ class MqttPublisher:
         if not self.settings.readings:
             return
         try:
-            self._outbox.add(self._topics["reading"], to_json(sample), 0, False)
+            self._outbox.add(self._topics["reading"], to_json(with_iso_times(sample)), 0, False)
             self._poke()
         except Exception:
             self._note_sink_error("reading")
@@ -367,6 +378,7 @@ class MqttPublisher:
         if self.settings.commands:
             await client.subscribe(self._topics["command"], qos=1)
         self._state_sent_at = None  # a broker without persistence forgot the retained state
+        self._attributes_sent = None
         self._online.set()
         if self._outage_reported or self._login_reported:
             log.info("MQTT broker %s reachable again", self._where())
@@ -409,6 +421,12 @@ class MqttPublisher:
 
     async def _publish_state(self, client: aiomqtt.Client) -> None:
         payload, version = self._state_payload, self._state_version
+        attributes = self._attributes_payload
+        if attributes is not None and attributes != self._attributes_sent:
+            # Before the state, so a dashboard that reads both never shows a cut text
+            # without its whole one.
+            await client.publish(self._topics["attributes"], attributes, qos=1, retain=True)
+            self._attributes_sent = attributes
         await client.publish(self._topics["state"], payload, qos=1, retain=True)
         self._state_sent_version = version
         self._state_sent_at = time.monotonic()

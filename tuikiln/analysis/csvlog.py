@@ -14,6 +14,7 @@ from __future__ import annotations
 
 import csv
 import dataclasses
+import functools
 import io
 import math
 from collections.abc import Callable, Sequence
@@ -36,6 +37,8 @@ _SECONDS_PER = {"seconds": 1.0, "minutes": 60.0, "epoch": 1.0, "days": 86400.0}
 # Column names tried when none is given: the usual ones, then `tuikiln export`'s own.
 TIME_COLUMNS = ("time", "t_s", "timestamp", "datetime", "date/time", "elapsed")
 CHAMBER_COLUMNS = ("chamber", "chamber_c", "temperature", "temp", "pv")
+# The heater output in % (read only when asked for: `tuikiln learn`); not a temperature.
+OUTPUT_COLUMNS = ("output_pct", "output", "out", "power", "mv")
 # The first spreadsheet day (serial 0) is 1899-12-30; Unix time 0 is serial 25569.
 _SERIAL_UNIX_DAY = 25569.0
 _T = TypeVar("_T")
@@ -57,6 +60,8 @@ class CsvLayout:
     time_column: str | None = None
     chamber_column: str | None = None
     load_column: str | None = None
+    output_column: str | None = None
+    """The heater output column (%): None: not read; "auto": the first known name if any."""
     units: str | None = None
     time_format: str = "auto"
     delimiter: str | None = None
@@ -88,6 +93,7 @@ class CsvLog:
     time_s: np.ndarray
     chamber_c: np.ndarray
     load_c: np.ndarray | None
+    output_pct: np.ndarray | None = None
     start_epoch: float | None = None
     """Unix time of the first row, when the file's times are absolute (epoch, day serials,
     ISO with a zone)."""
@@ -221,7 +227,8 @@ def _resolve(layout: CsvLayout, header: Sequence[str], line: int, columns: dict[
     return dataclasses.replace(layout, units=units or "C", decimal=decimal,
                                time_format=time_format, time_column=names["time"],
                                chamber_column=names["chamber"],
-                               load_column=names.get("load"))
+                               load_column=names.get("load"),
+                               output_column=names.get("output"))
 
 
 def _read_rows(text: str, delimiter: str, problems: _Collector) -> list[_Row]:
@@ -257,6 +264,12 @@ def _find_columns(
         wanted["load"] = layout.load_column
     elif wanted["time"] == "t_s" and "load_c" in names:
         wanted["load"] = "load_c"  # `tuikiln export`'s own file reads back without options
+    if layout.output_column == "auto":
+        known = _known(names, bases, OUTPUT_COLUMNS)
+        if known in names:
+            wanted["output"] = known
+    elif layout.output_column is not None:
+        wanted["output"] = layout.output_column
     found: dict[str, int] = {}
     for role, name in wanted.items():
         exact = [i for i, n in enumerate(names) if n == name]
@@ -310,6 +323,7 @@ def _parse_rows(
         time_s=seconds,
         chamber_c=temps["chamber"],
         load_c=temps.get("load"),
+        output_pct=temps.get("output"),
         start_epoch=start,
         units=layout.units or "C",
     )
@@ -345,7 +359,8 @@ def _numbers_at_once(
     raw = parsed.pop("time")
     seconds = raw * _SECONDS_PER[layout.time_format]
     temps = {
-        role: values if layout.units == "C" else f_to_c(values) for role, values in parsed.items()
+        role: values if layout.units == "C" or role == "output" else f_to_c(values)
+        for role, values in parsed.items()
     }
     if any((values < ABSOLUTE_ZERO_C).any() for values in temps.values()):
         return None
@@ -371,6 +386,8 @@ def _row_by_row(
     lines: list[int] = []
     stamps: list[float | datetime] = []
     temps: dict[str, list[float]] = {role: [] for role in columns if role != "time"}
+    # The output column is a percentage: read as a number, never converted from °F.
+    unit_of = {role: "C" if role == "output" else layout.units or "C" for role in temps}
     for line, cells in data:
         wrong: list[str] = []
         stamp = _cell(cells, columns["time"], str(layout.time_column), parse_time, wrong)
@@ -379,7 +396,7 @@ def _row_by_row(
                 cells,
                 columns[role],
                 _column_name(layout, role),
-                lambda text: _temperature(text, layout.units or "C", decimal),
+                functools.partial(_temperature, units=unit_of[role], decimal=decimal),
                 wrong,
             )
             for role in temps
@@ -400,6 +417,8 @@ def _row_by_row(
 
 
 def _column_name(layout: CsvLayout, role: str) -> str:
+    if role == "output":
+        return str(layout.output_column)
     return str(layout.chamber_column if role == "chamber" else layout.load_column)
 
 

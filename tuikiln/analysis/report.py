@@ -117,6 +117,18 @@ def _alarm_line(a: Mapping[str, Any]) -> str:
     return f"{clock(a['raised_s'])} {a['severity']}: {a['words']}{cleared}"
 
 
+def _alarm_lines(result: Replay) -> list[str]:
+    """The alarms, and a word when their sentences (as the engine logged them, in the run's
+    units) are in other units than the rest of the report."""
+    lines = [_alarm_line(a) for a in result.as_dict()["alarms"]]
+    logged_units = result.run.get("units")
+    if lines and result.source == "log" and logged_units in ("C", "F") and (
+            logged_units != result.units):
+        lines.append(f"(the alarms' words are as the engine logged them, in "
+                     f"{symbol(logged_units)})")
+    return lines
+
+
 def _heading(result: Replay) -> str:
     run = result.run
     if "csv" in run:
@@ -185,7 +197,7 @@ def render_text(result: Replay, whatif: Mapping[str, Any] | None = None) -> str:
         lines += [f"      * {r}" for r in s.reasons]
     data = result.as_dict()
     if data["alarms"]:
-        lines += ["", "Alarms:"] + [f"  {_alarm_line(a)}" for a in data["alarms"]]
+        lines += ["", "Alarms:"] + [f"  {line}" for line in _alarm_lines(result)]
     if result.notes:
         lines += ["", "Notes:"] + [f"  {clock(n['at_s'])} {n['text']}" for n in result.notes]
     temper = _temper_lines(result)
@@ -217,7 +229,7 @@ def render_markdown(result: Replay, whatif: Mapping[str, Any] | None = None) -> 
     for s in result.steps:
         out.append(f"| {s.index + 1} | {_md(s.title(u))} | {s.verdict} | "
                    f"{_md('; '.join(step_figures(s, u)))} | {_md('; '.join(s.reasons))} |")
-    out += _md_section("Alarms", [_alarm_line(a) for a in result.as_dict()["alarms"]])
+    out += _md_section("Alarms", _alarm_lines(result))
     out += _md_section("Load", _load_lines(result))
     out += _md_section("Notes", [f"{clock(n['at_s'])} {n['text']}" for n in result.notes])
     out += _md_section("Tempering parameter", _temper_lines(result))
@@ -255,14 +267,37 @@ def _load_lines(result: Replay) -> list[str]:
 # ----- HTML -----
 
 _CSS = """
-body { font-family: sans-serif; margin: 2em; color: #222; max-width: 1060px; }
+body { font-family: sans-serif; margin: 2em auto; padding: 0 1em; color: #222;
+       max-width: 1060px; line-height: 1.35; }
 table { border-collapse: collapse; width: 100%; margin: 1em 0; }
-th, td { border: 1px solid #ccc; padding: 4px 8px; text-align: left; vertical-align: top; }
+th, td { border: 1px solid #ccc; padding: 4px 8px; text-align: left; vertical-align: top;
+         overflow-wrap: break-word; }
 th { background: #f0f0f0; }
+h1 { font-size: clamp(1.3em, 5vw, 2em); }
+.table-wrap { overflow-x: auto; }
 .met { color: #1b6e20; font-weight: bold; }
 .remarks { color: #8a5a00; font-weight: bold; }
 .missed { color: #b00020; font-weight: bold; }
 .safety { border: 2px solid #b00020; padding: 0.6em; margin-top: 2em; }
+/* The chart takes the page's width; below 640 px it keeps that width and scrolls sideways,
+   so its labels stay big enough to read on a phone. */
+figure.chart { margin: 1em 0; overflow-x: auto; }
+figure.chart svg { display: block; width: 100%; height: auto; min-width: 640px; }
+@media print {
+  @page { margin: 15mm; }
+  body { color: #000; background: #fff; margin: 0; padding: 0; max-width: none;
+         font-size: 10pt; }
+  h1 { font-size: 16pt; } h2 { font-size: 13pt; break-after: avoid; }
+  .met, .remarks, .missed { color: #000; }
+  th { background: #fff; border-bottom: 2px solid #000; }
+  th, td { border-color: #000; padding: 2px 5px; }
+  figure.chart { overflow: visible; break-inside: avoid; page-break-inside: avoid; }
+  figure.chart svg { min-width: 0; }
+  .table-wrap { overflow: visible; }
+  thead { display: table-header-group; }  /* the header again on every page */
+  tr, li { break-inside: avoid; page-break-inside: avoid; }
+  .safety { border-color: #000; }
+}
 """
 
 
@@ -293,6 +328,7 @@ def render_html(result: Replay, whatif: Mapping[str, Any] | None = None) -> str:
         '<html lang="en">',
         "<head>",
         '<meta charset="utf-8">',
+        '<meta name="viewport" content="width=device-width, initial-scale=1">',
         f"<title>{heading}</title>",
         f"<style>{_CSS}</style>",
         "</head>",
@@ -302,14 +338,14 @@ def render_html(result: Replay, whatif: Mapping[str, Any] | None = None) -> str:
         f"{escape(result.verdict)}</span></p>",
         _ul(result.reasons) if result.reasons else "",
         "<h2>Plan and actual</h2>",
-        chart_svg(result),
+        f'<figure class="chart">{chart_svg(result)}</figure>',
         "<h2>Steps</h2>",
-        "<table><thead><tr><th>#</th><th>step</th><th>verdict</th><th>figures</th>"
-        "<th>reasons</th></tr></thead><tbody>",
+        '<div class="table-wrap"><table><thead><tr><th>#</th><th>step</th><th>verdict</th>'
+        "<th>figures</th><th>reasons</th></tr></thead><tbody>",
         *rows,
-        "</tbody></table>",
+        "</tbody></table></div>",
         "<h2>Alarms</h2>",
-        _ul([_alarm_line(a) for a in result.as_dict()["alarms"]]),
+        _ul(_alarm_lines(result)),
         "<h2>Load</h2>",
         _ul(_load_lines(result)),
         "<h2>Notes</h2>",

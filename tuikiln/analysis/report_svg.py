@@ -2,7 +2,12 @@
 
 Plain SVG 1.1 (no script, no external font or stylesheet), so it opens in any browser and
 parses as XML. Long traces are thinned first, keeping each column's minimum and maximum so
-an overshoot never vanishes from the chart (tuikiln.ui.thinning, pure numpy).
+an overshoot never vanishes from the chart (tuikiln.thinning, pure numpy).
+
+The chart has a viewBox and no fixed size: it takes the width of the page (a phone, a wide
+screen, a printed sheet) and keeps its proportions. Every series has its own dash as well as
+its own colour, and the legend (below the plot, where it hides no reading) draws each dash,
+so a black-and-white print or a reader who does not tell red from orange loses nothing.
 """
 
 from __future__ import annotations
@@ -14,16 +19,17 @@ import numpy as np
 
 from tuikiln.analysis.replay import Replay, clock
 from tuikiln.plan import plan_profile
-from tuikiln.ui.thinning import thin
+from tuikiln.thinning import thin
 from tuikiln.units import symbol
 
-WIDTH, HEIGHT = 1000, 440
-LEFT, RIGHT, TOP, BOTTOM = 64, 20, 28, 48
-SERIES = (  # name, colour, dash
-    ("plan", "#9a9a9a", "6 4"),
-    ("setpoint", "#2f6db5", ""),
-    ("chamber", "#c8382b", ""),
-    ("load", "#e08a00", ""),
+WIDTH, HEIGHT = 1000, 470
+LEFT, RIGHT, TOP, BOTTOM = 64, 20, 28, 78
+LEGEND_Y = HEIGHT - 14
+SERIES = (  # name, colour, dash (SVG stroke-dasharray; "" is solid), stroke width
+    ("plan", "#8a8a8a", "9 5", 1.6),
+    ("setpoint", "#2f6db5", "2 3", 1.6),
+    ("chamber", "#c8382b", "", 1.8),
+    ("load", "#e08a00", "12 3 3 3", 1.6),
 )
 
 
@@ -40,6 +46,10 @@ def _nice_step(span: float, count: int) -> float:
         if raw <= m * power:
             return m * power
     return 10.0 * power
+
+
+def _dash(dash: str) -> str:
+    return f' stroke-dasharray="{dash}"' if dash else ""
 
 
 def _path(x: np.ndarray, y: np.ndarray) -> str:
@@ -90,8 +100,10 @@ def chart_svg(result: Replay) -> str:
         return TOP + (hi - shown) / (hi - lo) * plot_h
 
     out: list[str] = [
-        f'<svg xmlns="http://www.w3.org/2000/svg" width="{WIDTH}" height="{HEIGHT}" '
-        f'viewBox="0 0 {WIDTH} {HEIGHT}" role="img" font-family="sans-serif" font-size="12">',
+        # No pixel size: the viewBox gives the proportions, the page the width.
+        f'<svg xmlns="http://www.w3.org/2000/svg" viewBox="0 0 {WIDTH} {HEIGHT}" '
+        'width="100%" preserveAspectRatio="xMidYMid meet" class="chart" role="img" '
+        'font-family="sans-serif" font-size="12">',
         f"<title>{escape(result.profile.name)}: plan and actual</title>",
         f'<rect x="0" y="0" width="{WIDTH}" height="{HEIGHT}" fill="#ffffff"/>',
     ]
@@ -127,18 +139,18 @@ def chart_svg(result: Replay) -> str:
         hour += x_step
     out.append(f'<rect x="{LEFT}" y="{TOP}" width="{plot_w}" height="{plot_h}" fill="none" '
                'stroke="#444"/>')
-    out.append(f'<text x="{LEFT + plot_w / 2:.0f}" y="{HEIGHT - 8}" text-anchor="middle">'
-               "hours from the start</text>")
+    out.append(f'<text x="{LEFT + plot_w / 2:.0f}" y="{TOP + plot_h + 36}" '
+               'text-anchor="middle">hours from the start</text>')
     out.append(f'<text x="14" y="{TOP + plot_h / 2:.0f}" text-anchor="middle" '
                f'transform="rotate(-90 14 {TOP + plot_h / 2:.0f})">{escape(symbol(units))}</text>')
     # The series; the plan last, dashed on top, so it shows where the setpoint follows it.
-    for name, colour, dash in SERIES[1:] + SERIES[:1]:
+    for name, colour, dash, width in SERIES[1:] + SERIES[:1]:
         if name not in series:
             continue
         series_h, series_c = series[name]
-        dashed = f' stroke-dasharray="{dash}"' if dash else ""
-        out.append(f'<path d="{_path(sx(series_h), sy(series_c))}" fill="none" stroke="{colour}" '
-                   f'stroke-width="1.6"{dashed}><title>{name}</title></path>')
+        out.append(f'<path d="{_path(sx(series_h), sy(series_c))}" fill="none" '
+                   f'stroke="{colour}" stroke-width="{width}"{_dash(dash)} '
+                   f'class="series-{name}"><title>{name}</title></path>')
     # Alarms: a line and a marker where each was raised.
     for alarm in result.alarms:
         hours = (alarm.raised_t - trace.start_t) / 3600.0
@@ -151,19 +163,20 @@ def chart_svg(result: Replay) -> str:
                    f'y2="{TOP + plot_h}" stroke="{colour}" stroke-dasharray="3 3"/>'
                    f'<polygon points="{x - 6:.1f},{TOP + plot_h + 1} {x + 6:.1f},'
                    f'{TOP + plot_h + 1} {x:.1f},{TOP + plot_h - 10}" fill="{colour}"/></g>')
-    # Legend.
-    lx = LEFT + 10
-    for name, colour, dash in SERIES:
+    # Legend: each series' own dash, long enough to show its pattern twice or more.
+    lx, ly = LEFT, LEGEND_Y
+    out.append('<g class="legend">')
+    for name, colour, dash, width in SERIES:
         if name not in series:
             continue
-        dashed = f' stroke-dasharray="{dash}"' if dash else ""
-        out.append(f'<line x1="{lx}" y1="{TOP + 14}" x2="{lx + 22}" y2="{TOP + 14}" '
-                   f'stroke="{colour}" stroke-width="2"{dashed}/>')
-        out.append(f'<text x="{lx + 27}" y="{TOP + 18}">{name}</text>')
-        lx += 95
+        out.append(f'<line x1="{lx}" y1="{ly - 4}" x2="{lx + 48}" y2="{ly - 4}" '
+                   f'stroke="{colour}" stroke-width="{width + 0.6:g}"{_dash(dash)}/>')
+        out.append(f'<text x="{lx + 54}" y="{ly}">{name}</text>')
+        lx += 140
     if result.alarms:
-        out.append(f'<polygon points="{lx},{TOP + 19} {lx + 12},{TOP + 19} {lx + 6},{TOP + 8}" '
+        out.append(f'<polygon points="{lx},{ly + 1} {lx + 12},{ly + 1} {lx + 6},{ly - 10}" '
                    'fill="#d97700"/>')
-        out.append(f'<text x="{lx + 17}" y="{TOP + 18}">alarm</text>')
+        out.append(f'<text x="{lx + 17}" y="{ly}">alarm</text>')
+    out.append("</g>")
     out.append("</svg>")
     return "\n".join(out)

@@ -7,6 +7,8 @@ import csv
 import json
 import math
 import sys
+from dataclasses import dataclass
+from typing import Any
 
 from tuikiln.commands.check import summary
 from tuikiln.errors import UserError
@@ -37,6 +39,9 @@ def add_arguments(parser: argparse.ArgumentParser) -> None:
     shape.add_argument("--csv", action="store_true", help="the curve as time_s,setpoint rows")
     parser.add_argument("--every", type=float, metavar="SECONDS",
                         help="with --csv: one row every SECONDS instead of the curve's corners")
+    parser.add_argument("--model", metavar="FILE",
+                        help="an oven model saved by `tuikiln learn --save` (default: the "
+                             "kiln's saved model, if any)")
 
 
 def run(args: argparse.Namespace) -> int:
@@ -50,21 +55,64 @@ def run(args: argparse.Namespace) -> int:
         except ValueError as exc:
             raise UserError(f"--from: {exc}") from None
     plan = plan_profile(profile, start_c)
+    forecast = _forecast(args, plan, kiln)
     if args.json:
-        json.dump(plan_as_json(plan, units), sys.stdout, indent=2)
+        json.dump(plan_as_json(plan, units, forecast), sys.stdout, indent=2,
+                  ensure_ascii=False)
         print()
     elif args.csv:
         write_csv(plan, units, args.every)
     else:
-        print_table(plan, units)
+        print_table(plan, units, forecast)
     return 0
 
 
-def plan_as_json(plan: Plan, units: str) -> dict:
+def _forecast(args: argparse.Namespace, plan: Plan, kiln: Any) -> Forecast:
+    """The oven's prediction (`--model`, else the kiln's saved model), or the reason why
+    there is none."""
+    from pathlib import Path
+
+    from tuikiln.limits import Limits
+    from tuikiln.ovenmodel import OvenModel
+    from tuikiln.ovenmodel_plan import predict, temper_warnings
+    from tuikiln.ovenmodel_store import model_path, read_model, saved_model
+    from tuikiln.runlog import default_data_dir
+
+    data_dir = default_data_dir(args.data)
+    model: OvenModel | None
+    if args.model:
+        path = Path(args.model)
+        model = read_model(path)
+    else:
+        path = model_path(data_dir, kiln.name)
+        model = saved_model(data_dir, kiln.name)
+    if model is None:
+        return Forecast(None, None, temper_warnings(plan, None, None, plan.profile.units),
+                        f'no oven model for "{kiln.name}": the times of "max" ramps, free '
+                        "cools and the waits to reach temperature are unknown (counted as "
+                        "nothing); learn the oven from a run with `tuikiln learn RUN --save`")
+    band = Limits().merged(kiln.alarms).merged(plan.profile.limits).band
+    prediction = predict(plan, model, band, plan.profile.units)
+    return Forecast(prediction, str(path), list(prediction.warnings), "")
+
+
+@dataclass
+class Forecast:
+    prediction: Any
+    model_source: str | None
+    warnings: list[Any]
+    note: str
+
+
+def plan_as_json(plan: Plan, units: str, forecast: Forecast | None = None) -> dict:
     def temp(c: float) -> float:
         return round(from_c(c, units), 3)
 
-    return {
+    def seconds(value: float | None) -> float | None:
+        return None if value is None else round(value, 1)
+
+    predicted = forecast.prediction if forecast is not None else None
+    out: dict[str, Any] = {
         "name": plan.profile.name,
         "units": units,
         "total_s": round(plan.total_s, 3),
@@ -85,6 +133,18 @@ def plan_as_json(plan: Plan, units: str) -> dict:
             for s in plan.steps
         ],
     }
+    if forecast is None:
+        return out
+    out["predicted_total_s"] = seconds(predicted.total_s) if predicted else None
+    for row, s in zip(out["steps"], plan.steps, strict=True):
+        p = predicted.steps[s.index] if predicted else None
+        row["predicted_start_s"] = seconds(p.start_s) if p else None
+        row["predicted_end_s"] = seconds(p.end_s) if p else None
+    out["warnings"] = [{"step": w.step, "text": w.text} for w in forecast.warnings]
+    out["model"] = forecast.model_source
+    if forecast.note:
+        out["model_note"] = forecast.note
+    return out
 
 
 def write_csv(plan: Plan, units: str, every: float | None) -> None:
@@ -103,12 +163,28 @@ def write_csv(plan: Plan, units: str, every: float | None) -> None:
         out.writerow([f"{t:.1f}", f"{from_c(float(c), units):.2f}"])
 
 
-def print_table(plan: Plan, units: str) -> None:
+def print_table(plan: Plan, units: str, forecast: Forecast | None = None) -> None:
     print(f"{plan.profile.name}: {summary(plan)}")
+    predicted = forecast.prediction if forecast is not None else None
+    if predicted is not None:
+        total = predicted.total_s
+        print("on this oven (learned model): about "
+              + (format_duration(total) if total is not None else "never: see below"))
     print(f"starts at {from_c(plan.start_c, units):.0f} {symbol(units)}; "
           "* = open-ended (its length is known only when it runs)")
-    print(f"{'#':>3}  {'starts':>7}  {'ends':>7}  step")
+    more = f"  {'oven ends':>9}" if predicted is not None else ""
+    print(f"{'#':>3}  {'starts':>7}  {'ends':>7} {more} step")
     for s in plan.steps:
         mark = "*" if s.open_ended else " "
+        oven = ""
+        if predicted is not None:
+            end = predicted.steps[s.index].end_s
+            oven = f"  {format_duration(end) if end is not None else 'never':>9}"
         print(f"{s.index + 1:>3}  {format_duration(s.start_s):>7}  {format_duration(s.end_s):>7}"
-              f"{mark} {describe_step(s.step, units)}")
+              f"{mark}{oven} {describe_step(s.step, units)}")
+    if forecast is None:
+        return
+    for w in forecast.warnings:
+        print(f"warning: step {w.step + 1}: {w.text}")
+    if forecast.note:
+        print(forecast.note)

@@ -1,7 +1,7 @@
 """`tuikiln replay`, `tuikiln report` and `tuikiln import`: hold a logged run against a profile.
 
     tuikiln replay RUN [--against PROFILE] [--json] [--band 5 --hold-grace 1m ...]
-    tuikiln report RUN -o FILE.html|FILE.md [--against PROFILE]
+    tuikiln report RUN -o FILE.html|FILE.md|FILE.txt|- [--units C|F] [--against PROFILE]
     tuikiln import CSV --against PROFILE [--time-column time --chamber-column chamber ...]
     tuikiln replay --csv CSV --against PROFILE        (the same as import)
 
@@ -24,6 +24,9 @@ from tuikiln.errors import FileProblems, UserError
 from tuikiln.limits import LIMIT_KEYS, LimitKey
 
 HELP = "hold a logged run (or another tool's CSV log) against its profile, step by step"
+# The report's form goes by the file's suffix.
+REPORT_FORMS = {".html": "html", ".htm": "html", ".md": "markdown", ".markdown": "markdown",
+                ".txt": "text"}
 
 
 def _option(key: LimitKey) -> str:
@@ -42,7 +45,13 @@ def add_arguments(parser: argparse.ArgumentParser) -> None:
                         help="the profile to hold the log against (default: the run's own)")
     if command == "report":
         parser.add_argument("-o", "--output", metavar="FILE", required=True,
-                            help="the report file: .html (with a chart) or .md")
+                            help='the report file: .html (with a chart), .md (Markdown) or '
+                            '.txt (plain text); "-" prints the plain text')
+        parser.add_argument("--units", dest="display_units", type=str.upper,
+                            choices=("C", "F"), default=None,
+                            help="show temperatures in C or F (default: the run's units, "
+                            "which are the kiln file's as it was when the run was made; for "
+                            "a CSV log, the profile's)")
     else:
         parser.add_argument("--json", dest="json_output", action="store_true",
                             help="print JSON")
@@ -58,9 +67,12 @@ def add_arguments(parser: argparse.ArgumentParser) -> None:
     csv.add_argument("--load-column", metavar="NAME",
                      help='header of a load thermocouple column (default: none, or "load_c" '
                      "in a file from tuikiln export)")
-    csv.add_argument("--units", type=str.upper, choices=("C", "F"), default=None,
-                     help='the temperature unit (default: from the header, such as "°F", '
-                     '"(F)" or "degF", else C)')
+    # In a report, --units is the unit shown; the CSV's own unit is then --csv-units only.
+    unit_options = ("--csv-units",) if command == "report" else ("--units", "--csv-units")
+    csv.add_argument(*unit_options, dest="csv_units", type=str.upper, choices=("C", "F"),
+                     default=None,
+                     help='the temperature unit of the file (default: from the header, such '
+                     'as "°F", "(F)" or "degF", else C)')
     csv.add_argument("--time-format", default="auto", metavar="FORMAT",
                      help='"seconds", "minutes", "hms" (H:MM:SS), "iso", "epoch" (Unix '
                      'seconds), "days" (spreadsheet day serials) or a strftime format '
@@ -94,24 +106,29 @@ def run(args: argparse.Namespace) -> int:
     loaded = _load(args)
     overrides = _limit_overrides(args, loaded.profile.units)
     c, below_c = _analysis_options(args)
+    shown = getattr(args, "display_units", None)  # None: the run's (or the profile's) units
     whatif: dict[str, Any] | None = None
     if overrides:
         from tuikiln.analysis.whatif import compare_alarms
 
-        baseline = loaded.replay(rerun=True, c=c, quench_below_c=below_c)
+        baseline = loaded.replay(rerun=True, c=c, quench_below_c=below_c, units=shown)
         result = loaded.replay(loaded.limits.merged(overrides), rerun=True, c=c,
-                               quench_below_c=below_c)
+                               quench_below_c=below_c, units=shown)
         changes = compare_alarms(baseline.events, result.events)
         whatif = report_mod.whatif_dict(baseline, result, changes, overrides)
     else:
-        result = loaded.replay(c=c, quench_below_c=below_c)
+        result = loaded.replay(c=c, quench_below_c=below_c, units=shown)
     if args.command == "report":
+        if args.output == "-":
+            sys.stdout.write(report_mod.render_text(result, whatif))
+            return 0
         path = Path(args.output)
-        if path.suffix.lower() not in (".html", ".htm", ".md", ".markdown"):
-            raise UserError(f"{path}: the report is HTML or Markdown: name the file .html or .md")
-        markdown = path.suffix.lower() in (".md", ".markdown")
-        text = (report_mod.render_markdown(result, whatif) if markdown
-                else report_mod.render_html(result, whatif))
+        form = REPORT_FORMS.get(path.suffix.lower())
+        if form is None:
+            raise UserError(f"{path}: the report is HTML, Markdown or text: name the file "
+                            ".html, .md or .txt (or -o - to print it)")
+        text = {"html": report_mod.render_html, "markdown": report_mod.render_markdown,
+                "text": report_mod.render_text}[form](result, whatif)
         try:
             path.write_text(text, encoding="utf-8")
         except OSError as exc:
@@ -204,7 +221,7 @@ def _load_csv(args: argparse.Namespace, path: str) -> Any:
     delimiter = "\t" if args.delimiter in ("tab", "\\t") else args.delimiter
     try:
         layout = CsvLayout(time_column=args.time_column, chamber_column=args.chamber_column,
-                           load_column=args.load_column, units=args.units,
+                           load_column=args.load_column, units=args.csv_units,
                            time_format=args.time_format, delimiter=delimiter,
                            decimal=args.decimal, encoding=args.encoding)
     except ValueError as exc:
@@ -214,17 +231,23 @@ def _load_csv(args: argparse.Namespace, path: str) -> Any:
     return from_csv(path, layout, profile, kiln)
 
 
-def _load_run(args: argparse.Namespace) -> Any:
-    from tuikiln.analysis.loading import from_log
-    from tuikiln.profile import parse_profile
+def open_run_log(data: str | None, other: str = "") -> Any:
+    """The data folder's run log for reading; a UserError when there is none yet."""
     from tuikiln.runlog import RUNLOG_NAME, RunLog, default_data_dir
 
-    folder = default_data_dir(args.data)
+    folder = default_data_dir(data)
     path = folder / RUNLOG_NAME
     if not path.exists():
         raise UserError(f"no run log in {folder}: no run has been recorded there yet "
-                        "(or give --data DIR)")
-    log = RunLog(path)
+                        f"(or give --data DIR{other})")
+    return RunLog.reader(path)
+
+
+def _load_run(args: argparse.Namespace) -> Any:
+    from tuikiln.analysis.loading import from_log
+    from tuikiln.profile import parse_profile
+
+    log = open_run_log(args.data)
     try:
         info = _find_run(log, args.run)
         against = _against(args) if args.against else None

@@ -265,8 +265,10 @@ def _interactive() -> bool:
 
 def _attach_screen(args: argparse.Namespace, data_dir: Path) -> int:
     """The live screen on the run just started; leaving it leaves the run going."""
+    from tuikiln import logsetup
     from tuikiln.commands import watch
 
+    logsetup.to_file(data_dir)  # the screen draws on the standard error
     time.sleep(0.3)  # let the run write its first samples
     return watch.run(argparse.Namespace(data=str(data_dir), kiln=args.kiln, units=None,
                                         no_bell=False))
@@ -350,6 +352,9 @@ async def run_headless(kiln: Any, profile: Any, data_dir: Path, *, speed: float 
                                auto_continue=auto_continue, resume=resume,
                                safe_device=None if kiln.is_simulator else spare_device,
                                **extra)
+            from tuikiln.ovenmodel_store import live_forecast
+
+            engine.forecast = live_forecast(data_dir, kiln.name, profile, limits)
             engine_box.append(engine)
             return await _serve_run(engine, kiln, data_dir, sinks, out, st)
         finally:

@@ -75,7 +75,7 @@ def _open_log(args: argparse.Namespace) -> Any:
     path = _log_path(args)
     if not path.exists():
         raise UserError(f"no runs logged yet (no {path})")
-    return RunLog(path)
+    return RunLog.reader(path)
 
 
 def run(args: argparse.Namespace) -> int:

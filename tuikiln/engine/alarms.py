@@ -19,15 +19,15 @@ from typing import Any
 
 from tuikiln import events as ev
 from tuikiln.engine import states as st
+from tuikiln.engine.checks import ALARM_KINDS, CRITICAL, WARNING, Check, judge_all, make_checks
 from tuikiln.events import Event
 from tuikiln.limits import Limits
 from tuikiln.units import Units, delta_from_c, format_duration, format_temp, symbol
 
-WARNING = "warning"
-CRITICAL = "critical"
-
-# code -> (severity, short name for people)
-ALARMS: dict[str, tuple[str, str]] = {
+# code -> (severity, short name for people). The same dict as engine/checks' ALARM_KINDS:
+# checks registered there (one module each) join these built-in ones.
+ALARMS: dict[str, tuple[str, str]] = ALARM_KINDS
+ALARMS.update({
     "too-hot": (WARNING, "too hot"),
     "hold-slipped": (WARNING, "hold out of band"),
     "never-reached": (WARNING, "target never reached"),
@@ -40,7 +40,7 @@ ALARMS: dict[str, tuple[str, str]] = {
     "over-kiln-max": (CRITICAL, "over the kiln's maximum"),
     "paused-too-long": (WARNING, "paused too long"),
     "log-trouble": (WARNING, "cannot write the run log"),
-}
+})
 CRITICAL_CODES = frozenset(code for code, (sev, _) in ALARMS.items() if sev == CRITICAL)
 
 BAD_READINGS_TO_ALARM = 3      # consecutive impossible / faulty readings before sensor-bad
@@ -124,9 +124,15 @@ class AlarmRules:
     _recent_sp: deque[tuple[float, float]] = field(default_factory=deque)
     _slow_at: float = -1e300
     _pending: list[Event] = field(default_factory=list)
+    checks: list[Check] = field(default_factory=list)
+    """The registered checks (engine/checks), made for this run's limits and units."""
     unjudged: frozenset[str] = frozenset()
     """Codes never raised: a replay of a log without the signal they judge (a log with no
     heater output column cannot say whether the heater was asked for power)."""
+
+    def __post_init__(self) -> None:
+        if not self.checks:
+            self.checks = make_checks(self.limits, self.units)
 
     # ----- public -----
 
@@ -160,6 +166,7 @@ class AlarmRules:
         if slow:
             self._check_hold(obs)
             self._check_paused(obs)
+        judge_all(self, obs, temp, slow)
         out, self._pending = self._pending, []
         return out
 
@@ -168,6 +175,10 @@ class AlarmRules:
         self._set(code, active, now, words)
         out, self._pending = self._pending, []
         return out
+
+    def set_alarm(self, code: str, active: bool, now: float, words: str = "") -> None:
+        """Raise or clear `code` as part of this tick (the registered checks' way in)."""
+        self._set(code, active, now, words)
 
     def acknowledge(self, now: float, code: str | None = None) -> list[Event]:
         """Mark one alarm (or every active one) as seen; returns the events."""

@@ -69,7 +69,8 @@ def make_load_watch(profile: Profile, limits: Limits, units: Units) -> Any:
     except ImportError:
         return None
     try:
-        return LoadWatch(profile.load.material, profile.load.thickness_m,
+        return LoadWatch(profile.load.material, profile.load.thickness_m, wrap=profile.load.wrap,
+                         width_m=profile.load.width_m,
                          window_s=limits.equalize_window,
                          slope_limit_c_per_s=limits.equalize_slope / 60.0,
                          confirm_s=limits.equalize_confirm, units=units)

@@ -48,6 +48,7 @@ from tuikiln.engine.safety import SafeResult, drive_safe
 from tuikiln.engine.status import LastReading, build_status
 from tuikiln.events import Event
 from tuikiln.limits import Limits
+from tuikiln.ovenmodel_plan import LiveForecast
 from tuikiln.profile import Profile
 from tuikiln.runlog import QUEUE_WARN_FRACTION, RunLog, RunRecorder
 from tuikiln.units import format_duration, format_temp
@@ -132,6 +133,8 @@ class RunEngine:
         self._log_trouble = False
         self._log_queue_near = False
         self.ticks = 0
+        self.forecast: LiveForecast | None = None
+        """The learned oven's times for the status (tuikiln.ovenmodel_store.live_forecast)."""
         self.resume = resume
         self._resume_pending = resume is not None
         self.held_for_restart = False
@@ -183,7 +186,7 @@ class RunEngine:
     def status(self) -> dict[str, Any]:
         return build_status(self.rules, run_id=self.run_id, kiln=self.kiln.name,
                             now=self.clock.now(), started=self.started, last=self.last,
-                            watch_only=self.watch_only)
+                            watch_only=self.watch_only, forecast=self.forecast)
 
     # ----- the run -----
 
@@ -250,7 +253,8 @@ class RunEngine:
         if self.runlog is not None:
             p = self.profile
             load = {"material": p.load.material, "thickness_m": p.load.thickness_m,
-                    "pieces": p.load.pieces}
+                    "pieces": p.load.pieces, "width_m": p.load.width_m,
+                    "wrap": p.load.wrap}
             self._attach_recorder(self.runlog.start_run(
                 kiln=self.kiln.name, profile=p.name, started=self.started,
                 profile_path=p.path, profile_text=p.source, kiln_text=self.kiln.text,

@@ -14,6 +14,7 @@ from dataclasses import dataclass
 from typing import Any
 
 from tuikiln.engine.rules import RunRules
+from tuikiln.ovenmodel_plan import LiveForecast
 from tuikiln.plan import step_duration_s
 from tuikiln.profile import Cool, Pause, Ramp
 
@@ -50,16 +51,23 @@ def _equalization(eq: Any) -> dict[str, Any] | None:
     }
 
 
-def remaining_plan_s(rules: RunRules) -> tuple[float | None, float | None, float | None]:
+def remaining_plan_s(rules: RunRules, forecast: LiveForecast | None = None
+                     ) -> tuple[float | None, float | None, float | None]:
     """(time to the next step, to the next time the person is needed, to the end).
 
     Later steps count at their planned length (open-ended ones at their known minimum, as in
-    tuikiln.plan); None where the current step's end cannot be told.
+    tuikiln.plan); None where the current step's end cannot be told. With a learned oven
+    (`forecast`) ramps and cools count at what the oven can do, the current one from the
+    chamber's temperature now.
     """
     s = rules.stepper
     if s.ended:
         return 0.0, None, 0.0
     left = s.step_time_left_s()
+    step_now = s.step
+    if forecast is not None and isinstance(step_now, Ramp | Cool) and s.last_temp_c is not None:
+        oven_left = forecast.step_left_s(s.index, s.last_temp_c)
+        left = oven_left if left is None or oven_left is None else max(left, oven_left)
     if s.waiting_for_operator:
         return left, 0.0, None
     steps = s.steps
@@ -67,15 +75,21 @@ def remaining_plan_s(rules: RunRules) -> tuple[float | None, float | None, float
     to_end = left
     to_operator: float | None = None
     total_after = 0.0
-    for step in steps[s.index + 1:]:
+    unknown = False
+    for index, step in enumerate(steps[s.index + 1:], start=s.index + 1):
         if isinstance(step, Pause) and to_operator is None:
-            to_operator = None if left is None else left + total_after
-        duration, _ = step_duration_s(step, temp)
+            to_operator = None if left is None or unknown else left + total_after
+        if forecast is not None:
+            predicted = forecast.duration_s(index)
+            unknown = unknown or predicted is None
+            duration = predicted or 0.0
+        else:
+            duration, _ = step_duration_s(step, temp)
         total_after += duration
         if isinstance(step, Ramp | Cool):
             temp = step.to_c
     if to_end is not None:
-        to_end += total_after
+        to_end = None if unknown else to_end + total_after
     return left, to_operator, to_end
 
 
@@ -88,10 +102,11 @@ def build_status(
     started: float,
     last: LastReading,
     watch_only: bool,
+    forecast: LiveForecast | None = None,
 ) -> dict[str, Any]:
     s = rules.stepper
     step = s.step
-    to_next, to_operator, to_end = remaining_plan_s(rules)
+    to_next, to_operator, to_end = remaining_plan_s(rules, forecast)
     return {
         "run": run_id,
         "kiln": kiln,

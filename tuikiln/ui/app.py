@@ -6,6 +6,7 @@ from __future__ import annotations
 from collections.abc import Callable
 
 from textual.app import App
+from textual.binding import Binding
 from textual.reactive import reactive
 from textual.screen import Screen
 from textual.scrollbar import ScrollBar, ScrollBarRender
@@ -49,6 +50,10 @@ class TuikilnApp(App[str]):
 
     def on_unmount(self) -> None:
         ScrollBar.renderer = self._scrollbar_before
+
+    def get_key_display(self, binding: Binding) -> str:
+        # Textual names Enter and the arrows with symbols a console font may lack.
+        return self.glyphs.plain(super().get_key_display(binding))
 
     def leave(self, words: str) -> None:
         """Leave the current screen: back to the one below, or out of the app."""

@@ -1,7 +1,7 @@
 """Draw temperature traces as braille dots: a pure function from series to styled lines.
 
 Every terminal cell holds a 2 x 4 grid of braille dots, so a 100-column chart has 200 dot
-columns. Each trace is thinned to one min/max bucket per dot column (tuikiln.ui.thinning),
+columns. Each trace is thinned to one min/max bucket per dot column (tuikiln.thinning),
 so a one-sample overshoot still lights the top dot of its column. Where traces share a cell
 the first trace in the list gives the cell its colour; the dots of all traces are kept.
 
@@ -23,8 +23,8 @@ from rich.segment import Segment
 from rich.style import Style
 from textual.strip import Strip
 
+from tuikiln.thinning import min_max_buckets
 from tuikiln.ui.glyphs import BRAILLE_GLYPHS, Glyphs
-from tuikiln.ui.thinning import min_max_buckets
 
 BRAILLE = np.array([chr(0x2800 + bits) for bits in range(256)] + [" "])
 EMPTY = 256

@@ -47,11 +47,21 @@ class Glyphs:
     def mark(self, role: str) -> str:
         return self.marks.get(role, "*")
 
+    def plain(self, text: str) -> str:
+        """The screens' symbols (✔, …, ←) in characters this set has; braille: unchanged."""
+        return text if self.braille else text.translate(PLAIN_SYMBOLS)
+
 
 # Each mark its own shape, densest for the chamber (the reading that matters most), so lines
 # stay apart in a monochrome terminal. Every one of them is in code page 437.
 BLOCK_MARKS = {"chamber": "█", "load": "▒", "core": "░", "setpoint": "+", "plan": "·"}
 ASCII_MARKS = {"chamber": "#", "load": "o", "core": ":", "setpoint": "+", "plan": "."}
+
+# Symbols the screens use that code page 437 lacks, and what stands for each there.
+PLAIN_SYMBOLS = str.maketrans({"✔": "√", "✖": "x", "●": "*", "▲": "^", "▶": ">", "☛": ">>",
+                               "…": "...", "×": "x", "←": "<-", "→": "->", "⏎": "enter",
+                               "✎": "+", "┃": "║", "━": "─", "┄": "-", "“": '"', "”": '"',
+                               "‘": "'", "’": "'", "—": "-", "–": "-"})
 
 BRAILLE_GLYPHS = Glyphs("braille", True, BLOCK_MARKS)
 BLOCK_GLYPHS = Glyphs("block", False, BLOCK_MARKS, time_tick="'", cursor="║", solid="─",

@@ -55,6 +55,9 @@ def build_engine(kiln: Kiln, profile: Profile, data_dir: Path, speed: float | No
                                                         kiln.text),
                        limits=limits, runlog=RunLog.in_folder(data_dir), speed=shown,
                        sinks=sinks, tick_s=tick_s)
+    from tuikiln.ovenmodel_store import live_forecast
+
+    engine.forecast = live_forecast(data_dir, kiln.name, profile, limits)  # the model's ETA
     box.append(engine)
     return engine
 

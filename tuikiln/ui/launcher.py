@@ -66,7 +66,7 @@ class Launcher:
         self.kiln = load_kiln(self.kiln_path)
 
     def log(self) -> RunLog:
-        return RunLog.in_folder(self.data_dir)
+        return RunLog.in_folder(self.data_dir, read_only=True)
 
     def runs(self, limit: int = 50) -> list[RunInfo]:
         log = self.log()

@@ -35,7 +35,7 @@ class LogLink:
 
     def __init__(self, data_dir: str | Path, run_id: int, control: Control | None = None,
                  log: RunLog | None = None) -> None:
-        self.log = log or RunLog.in_folder(data_dir)
+        self.log = log or RunLog.in_folder(data_dir, read_only=True)
         self.run_id = run_id
         self.control = control
         self._header: RunHeader | None = None

@@ -8,6 +8,8 @@ from textual.containers import Vertical, VerticalScroll
 from textual.screen import ModalScreen
 from textual.widgets import Static
 
+from tuikiln.ui.glyphs import BRAILLE_GLYPHS
+
 
 class ConfirmScreen(ModalScreen[bool]):
     """A question answered with y (yes) or n / Escape (no)."""
@@ -35,11 +37,12 @@ class ConfirmScreen(ModalScreen[bool]):
         self.yes = yes
 
     def compose(self) -> ComposeResult:
+        plain = getattr(self.app, "glyphs", BRAILLE_GLYPHS).plain
         with Vertical():
-            yield Static(self.question, id="confirm-question")
+            yield Static(plain(self.question), id="confirm-question", markup=False)
             if self.details:
                 with VerticalScroll(id="confirm-scroll"):
-                    yield Static(self.details, id="confirm-details", markup=False)
+                    yield Static(plain(self.details), id="confirm-details", markup=False)
             yield Static(f"[y] {self.yes}    [n] no, go back", id="confirm-keys", markup=False)
 
     def action_answer(self, answer: bool) -> None:

@@ -2,6 +2,8 @@
 
 from __future__ import annotations
 
+from collections.abc import Callable
+
 from rich.text import Text
 from textual.app import ComposeResult
 from textual.binding import Binding
@@ -9,11 +11,13 @@ from textual.containers import VerticalScroll
 from textual.screen import ModalScreen, Screen
 from textual.widgets import Static
 
+from tuikiln.ui.glyphs import BRAILLE_GLYPHS
+
 SAFETY = ("tuikiln is not a safety device: the oven needs an independent over-temperature "
           "limit. Quench oil is a fire hazard: keep a lid and an extinguisher at hand.")
 
 
-def key_table(screen: Screen) -> Text:
+def key_table(screen: Screen, plain: Callable[[str], str] = str) -> Text:
     """Each key of `screen` and what it does, one a line (plain text: no colour needed)."""
     rows: list[tuple[str, str]] = []
     seen: set[str] = set()
@@ -28,8 +32,8 @@ def key_table(screen: Screen) -> Text:
     width = max((len(keys) for keys, _ in rows), default=4) + 3
     text = Text("\n")
     for keys, words in rows:
-        text.append(keys.ljust(width), style="bold")
-        text.append(words + "\n")
+        text.append(plain(keys).ljust(width), style="bold")
+        text.append(plain(words) + "\n")
     return text
 
 
@@ -52,9 +56,10 @@ class HelpScreen(ModalScreen[None]):
         self.about = about
 
     def compose(self) -> ComposeResult:
+        plain = getattr(self.app, "glyphs", BRAILLE_GLYPHS).plain
         with VerticalScroll():
-            yield Static(Text(self.about, style="bold"))
-            yield Static(key_table(self.below))
+            yield Static(Text(plain(self.about), style="bold"))
+            yield Static(key_table(self.below, plain))
             yield Static(Text("\nMouse: optional; every action has a key.  " + SAFETY,
                               style="dim"))
             yield Static(Text("Escape closes this help.", style="italic"))

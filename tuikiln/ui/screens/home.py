@@ -17,6 +17,9 @@ from textual.widgets import DataTable, Static
 
 from tuikiln.control import ActiveRun
 from tuikiln.errors import UserError
+from tuikiln.limits import Limits
+from tuikiln.ovenmodel_plan import predict
+from tuikiln.ovenmodel_store import quiet_saved_model
 from tuikiln.plan import plan_profile
 from tuikiln.profile import load_profile
 from tuikiln.runlog import RunInfo
@@ -108,7 +111,7 @@ class HomeScreen(Screen[None]):
         kiln = self.launcher.kiln
         text = Text()
         text.append(f"{kiln.name}", style="bold")
-        text.append(f" · {device_words(self.launcher)} · max "
+        text.append(f" · {self.app.glyphs.plain(device_words(self.launcher))} · max "
                     f"{format_temp(kiln.max_c, self.app.units)} · bell "
                     f"{'on' if self.app.bell_on else 'off'}\n")
         if going is not None:
@@ -148,19 +151,26 @@ class HomeScreen(Screen[None]):
             started = time.strftime("%d %b %H:%M", time.localtime(run.wall_started or
                                                                    run.started))
             runs_table.add_row(str(run.id), run.profile[:28], started, length,
-                               f"{OUTCOME_MARK.get(status, '·')} {status}")
+                               self.app.glyphs.plain(f"{OUTCOME_MARK.get(status, '·')} {status}"))
         self.show_kiln(await asyncio.to_thread(launcher.going_run))
 
     def profile_rows(self, paths: list[Path]) -> list[tuple[str, str, str, str]]:
         rows = []
         units = self.app.units
+        kiln = self.launcher.kiln
+        # With a learned oven the total is what this oven takes ("~"), as `plan` predicts.
+        model = quiet_saved_model(self.launcher.data_dir, kiln.name)
         for path in paths:
             try:
-                plan = plan_profile(load_profile(path, max_c=self.launcher.kiln.max_c))
+                plan = plan_profile(load_profile(path, max_c=kiln.max_c))
             except UserError:
                 rows.append((f"✖ {path.stem} (has mistakes)", "", "", path.name))
                 continue
             total = format_duration(plan.total_s) + ("+" if plan.open_ended else "")
+            if model is not None:
+                band = Limits().merged(kiln.alarms).merged(plan.profile.limits).band
+                predicted = predict(plan, model, band).total_s
+                total = "never" if predicted is None else "~" + format_duration(predicted)
             rows.append((plan.profile.name[:40], format_temp(plan.peak_c, units), total,
                          path.name))
         return rows

@@ -214,7 +214,8 @@ class LiveScreen(Screen[None]):
             self.waiting_since = None
             self.show_notice("")
             return
-        banner = f"☛ WAITING FOR YOU: {self.pause_message()}  [press {ACK_KEY}]"
+        banner = self.app.glyphs.plain(
+            f"☛ WAITING FOR YOU: {self.pause_message()}  [press {ACK_KEY}]")
         if self.auto_acknowledge_s is None:
             self.show_notice(banner)
             return

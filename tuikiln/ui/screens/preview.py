@@ -36,7 +36,7 @@ ABOUT = ("A profile before it runs. Steps marked … are open-ended: their lengt
 OPEN_MARK = "…"
 
 
-def summary_text(plan: Plan, units: str, now: float) -> Text:
+def summary_text(plan: Plan, units: str, now: float, open_mark: str = OPEN_MARK) -> Text:
     """Total, end clock time if started now, peak, and what 'open-ended' means here."""
     text = Text()
     total = format_duration(plan.total_s)
@@ -46,7 +46,7 @@ def summary_text(plan: Plan, units: str, now: float) -> Text:
                 f"now · peak {format_temp(plan.peak_c, units)}", style="bold")
     if plan.open_ended:
         count = sum(1 for s in plan.steps if s.open_ended)
-        text.append(f"\n{OPEN_MARK} {count} open-ended step(s): counted at their shortest.")
+        text.append(f"\n{open_mark} {count} open-ended step(s): counted at their shortest.")
     load = plan.profile.load
     if load.material or load.thickness_text:
         text.append(f"\nload: {load.material or '?'}, {load.thickness_text or '?'} thick")
@@ -109,12 +109,12 @@ class PreviewScreen(Screen[None]):
         title.update(f"Profile: {plan.profile.name}  ({self.path})")
         self.query_one(TemperatureChart).spec = preview_chart(plan, units)
         self.query_one("#preview-summary", Static).update(
-            summary_text(plan, units, time.time()))
+            summary_text(plan, units, time.time(), self.app.glyphs.plain(OPEN_MARK)))
         table = self.query_one(DataTable)
         table.clear(columns=True)
         table.add_columns("#", "step", "from", "to", "starts", "length")
         for step in plan.steps:
-            mark = f" {OPEN_MARK}" if step.open_ended else ""
+            mark = f" {self.app.glyphs.plain(OPEN_MARK)}" if step.open_ended else ""
             length = ("until you acknowledge" if step.kind == "pause" else
                       f"{format_duration(step.duration_s)}{mark}")
             table.add_row(str(step.index + 1), describe_step(step.step, units),
@@ -129,7 +129,8 @@ class PreviewScreen(Screen[None]):
             self.notify("Starting runs is not available here.", severity="warning")
             return
         units = self.app.units
-        details = summary_text(self.plan, units, time.time()).plain + "\n\n" + "\n".join(
+        details = summary_text(self.plan, units, time.time(),
+                               self.app.glyphs.plain(OPEN_MARK)).plain + "\n\n" + "\n".join(
             f"{s.index + 1}. {describe_step(s.step, units)}" for s in self.plan.steps
         ) + f"\n\n{SAFETY}"
         path, start = self.path, self.start

@@ -173,7 +173,7 @@ class ReplayScreen(Screen[None]):
             lines = ["(writing the verdicts in °" + units + " …)"]
             self.verdicts_in(units)
         self.query_one("#replay-verdicts", Static).update(
-            Text("Verdicts\n", style="bold") + Text("\n".join(lines)))
+            Text("Verdicts\n", style="bold") + Text(self.app.glyphs.plain("\n".join(lines))))
 
     @work(exclusive=True, group="replay-verdicts")
     async def verdicts_in(self, units: str) -> None:

@@ -2,7 +2,8 @@
 
 A 7-day run logged at 1 Hz has 604,800 samples; a chart has a few hundred dot columns.
 Each column (bucket) keeps the minimum and the maximum of the samples that fall in it, so an
-overshoot of a single sample still reaches the top of its column. Pure numpy, no Textual.
+overshoot of a single sample still reaches the top of its column. Pure numpy, no Textual:
+the screens' chart and the report's SVG both use it (analysis never imports ui).
 """
 
 from __future__ import annotations

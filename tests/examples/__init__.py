@@ -1,0 +1,1 @@
+"""Toy extensions, each built only by following a recipe in docs/CONTRIBUTING.md."""

@@ -1,0 +1,43 @@
+"""The home screen's profile totals come from the learned oven when the kiln has one.
+
+The model's numbers are invented (demo data): only the screen's use of it is tested here;
+the model's truth is tests/test_ovenmodel.py's and test_plan_model.py's.
+"""
+
+from __future__ import annotations
+
+import asyncio
+import time
+from pathlib import Path
+
+from tests.test_ui_fakes import screen_text
+from tuikiln.ovenmodel import OvenModel
+from tuikiln.ovenmodel_plan import predict
+from tuikiln.ovenmodel_store import save_model
+from tuikiln.plan import plan_profile
+from tuikiln.profile import load_profile
+from tuikiln.ui.app import TuikilnApp
+from tuikiln.ui.launcher import Launcher, find_profiles
+from tuikiln.ui.screens.home import HomeScreen
+from tuikiln.units import format_duration
+
+INVENTED = OvenModel(heat_c_per_s=0.45, loss_per_s=1.0e-4, radiation_per_s_k3=5e-14,
+                     lining_per_s=2e-4, lining_tau_s=2400.0, room_c=20.0, dead_time_s=6.0,
+                     rms_c_per_min=0.1, sim_rms_c=2.0, valid_from_c=20.0, valid_to_c=850.0,
+                     seconds=14000.0)
+
+
+async def test_home_totals_are_the_ovens(tmp_path: Path) -> None:
+    launcher = Launcher(tmp_path, None)
+    save_model(launcher.data_dir, launcher.kiln.name, INVENTED)
+    demo = next(p for p in find_profiles() if p.name == "demo-harden-temper.toml")
+    profile = load_profile(demo, max_c=launcher.kiln.max_c)
+    predicted = predict(plan_profile(profile), INVENTED, 15.0 * 5 / 9).total_s
+    assert predicted is not None
+    wanted = "~" + format_duration(predicted)
+    app = TuikilnApp(lambda: HomeScreen(launcher), units="F")
+    async with app.run_test(size=(120, 30)) as pilot:
+        deadline = time.monotonic() + 10.0
+        while wanted not in screen_text(pilot.app.screen) and time.monotonic() < deadline:
+            await asyncio.sleep(0.05)
+        assert wanted in screen_text(pilot.app.screen)
