@@ -48,6 +48,7 @@ LAYERS: dict[str, tuple[str, ...]] = {
     "core": (
         "tuikiln.profile", "tuikiln.plan", "tuikiln.coremodel", "tuikiln.equalize",
         "tuikiln.engine.stepper", "tuikiln.engine.alarms", "tuikiln.engine.rules",
+        "tuikiln.engine.stepper_arrays", "tuikiln.engine.alarm_arrays",
         "tuikiln.engine.status", "tuikiln.engine.checks",
         "tuikiln.analysis.csvlog", "tuikiln.analysis.csvsniff", "tuikiln.analysis.quench",
         "tuikiln.analysis.replay", "tuikiln.analysis.temper", "tuikiln.analysis.whatif",

@@ -63,6 +63,7 @@ from typing import Any
 
 import numpy as np
 
+from tuikiln.engine.states import Outcome, RunState
 from tuikiln.errors import UserError
 from tuikiln.events import Event
 from tuikiln.logqueue import BackgroundWriter, SpillFile
@@ -225,8 +226,8 @@ class RunInfo:
         if self.outcome:
             return self.outcome
         if self.pid and pid_alive(self.pid):
-            return "running"
-        return "unfinished"
+            return RunState.RUNNING
+        return Outcome.UNFINISHED
 
     def summary(self) -> dict[str, Any]:
         return {"id": self.id, "kiln": self.kiln, "profile": self.profile,
@@ -386,14 +387,6 @@ class RunLog:
         data = json.loads(row[1])
         data["t"] = row[0]
         return data
-
-    def unfinished_runs(self, kiln: str | None = None) -> list[RunInfo]:
-        """Runs with no end whose engine process is dead (killed, power cut), newest last."""
-        where = "outcome IS NULL" + (" AND kiln = ?" if kiln is not None else "")
-        params = (kiln,) if kiln is not None else ()
-        rows = self._conn.execute(f"SELECT {_RUN_FIELDS} FROM runs WHERE {where} ORDER BY id",
-                                  params).fetchall()
-        return [info for info in map(_run_info, rows) if info.status == "unfinished"]
 
     def end_mark(self, run_id: int) -> dict[str, Any] | None:
         """The end a run's engine wrote to its end mark when the database could not take it

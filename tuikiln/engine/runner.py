@@ -45,7 +45,8 @@ from tuikiln.engine import states as st
 from tuikiln.engine.recovery import ResumePlan
 from tuikiln.engine.rules import REMOTE_SOURCES, CommandResult, Decision, RunRules, TickInput
 from tuikiln.engine.safety import SafeResult, drive_safe
-from tuikiln.engine.status import LastReading, build_status
+from tuikiln.engine.states import RestartPolicy
+from tuikiln.engine.status import LastReading, Status, build_status
 from tuikiln.events import Event
 from tuikiln.limits import Limits
 from tuikiln.ovenmodel_plan import LiveForecast
@@ -183,7 +184,7 @@ class RunEngine:
         if self._suspend_request is None and self._stop_request is None:
             self._suspend_request = reason
 
-    def status(self) -> dict[str, Any]:
+    def status(self) -> Status:
         return build_status(self.rules, run_id=self.run_id, kiln=self.kiln.name,
                             now=self.clock.now(), started=self.started, last=self.last,
                             watch_only=self.watch_only, forecast=self.forecast)
@@ -577,12 +578,12 @@ class RunEngine:
                           "after_c": after, "policy": plan.policy, "asked": plan.asked,
                           "why": plan.why}))
         stepper = self.rules.stepper
-        if plan.policy == "end":
-            return self.rules.stop(now, plan.end_outcome or recovery.ENDED_AFTER_RESTART,
+        if plan.policy == RestartPolicy.END:
+            return self.rules.stop(now, plan.end_outcome or st.ENDED_AFTER_RESTART,
                                    "the kiln file says on_restart = \"end\"" if not plan.why
                                    else plan.why)
         words = recovery.restore_stepper(stepper, plan, now, after)
-        if plan.policy == "continue":
+        if plan.policy == RestartPolicy.CONTINUE:
             self._emit(Event(now, ev.COMMAND, f"Carrying on after the restart: {words}", "info",
                              {"name": "resume", "source": "restart"}))
             return None
