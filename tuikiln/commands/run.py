@@ -393,7 +393,7 @@ def _sinks(kiln: Any, out: Any, engine_box: list[Any], device: Any) -> list[Any]
 async def _serve_run(engine: Any, kiln: Any, data_dir: Path, sinks: list[Any], out: Any,
                      st: Any) -> int:
     from tuikiln import control
-    from tuikiln.engine.recovery import ENDED_AFTER_RESTART
+    from tuikiln.engine.states import ENDED_AFTER_RESTART
 
     loop = asyncio.get_running_loop()
     under_service = bool(os.environ.get("INVOCATION_ID"))
