@@ -76,7 +76,7 @@ COMMAND_HELP: dict[str, str] = {
     "runs": "list the logged runs (--json)",
     "export": "write a logged run's samples as CSV",
     "replay": "hold a logged run against its profile: verdict per step, alarms, what-if",
-    "report": "write a run's report as HTML (with its chart) or Markdown (.md)",
+    "report": "write a run's report: HTML (with its chart), Markdown (.md) or text (.txt)",
     "import": "replay another tool's CSV temperature log against a profile",
     "service": "print a systemd unit that resumes unfinished runs at boot and after a crash",
     "completion": "print a shell completion script (bash or zsh) for tuikiln's commands",
