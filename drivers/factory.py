@@ -35,7 +35,7 @@ from dataclasses import dataclass
 from typing import Any
 
 from tuikiln.drivers.base import Device
-from tuikiln.drivers.checking import KeyPath, Problems, Setting, check_table, check_value, keys_of
+from tuikiln.drivers.checking import KeyPath, Problems, Setting, check_table, check_value
 from tuikiln.drivers.errors import SettingsError
 from tuikiln.drivers.guard import DEFAULT_MIN_INTERVAL_S
 from tuikiln.drivers.lines import DEFAULT_OPEN, FORMATS, ChannelSpec, LineSettings, LineThermometer
@@ -87,8 +87,6 @@ CHANNEL: tuple[Setting, ...] = (
     Setting("field"), Setting("unit"), Setting("thermocouple"), Setting("cold_junction"),
     Setting("cold_junction_field"), Setting("cold_junction_unit"), Setting("open"),
 )
-SERIAL_KEYS, MODBUS_KEYS, LINES_KEYS, CHANNEL_KEYS = (
-    keys_of(SERIAL), keys_of(MODBUS), keys_of(LINES), keys_of(CHANNEL))
 
 
 class DeviceSettingsError(SettingsError):

@@ -93,7 +93,7 @@ import difflib
 import math
 import re
 from collections.abc import Mapping
-from dataclasses import dataclass, field, fields, replace
+from dataclasses import dataclass, field, replace
 from typing import Any
 
 WRAPS = ("none", "foil")
@@ -558,8 +558,3 @@ def _check_faults(
         if ok and kind is not None and times["at"] is not None:
             faults.append(Fault(kind=str(kind), at_s=times["at"], for_s=times["for"], **extra))
     return tuple(faults)
-
-
-def field_names(cls: type) -> list[str]:
-    """Names of a settings dataclass's fields (for documentation and tests)."""
-    return [f.name for f in fields(cls)]
