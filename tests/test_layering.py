@@ -63,8 +63,8 @@ LAYERS: dict[str, tuple[str, ...]] = {
     ),
     # The files the program keeps: the run log, the control socket, the one loader from a
     # log to a replay, learned oven models, its own log of messages.
-    "record": ("tuikiln.runlog", "tuikiln.control", "tuikiln.analysis.loading",
-               "tuikiln.ovenmodel_store", "tuikiln.logsetup"),
+    "record": ("tuikiln.runlog", "tuikiln.logqueue", "tuikiln.control",
+               "tuikiln.analysis.loading", "tuikiln.ovenmodel_store", "tuikiln.logsetup"),
     # The engine's host: the async loop, restart recovery, the safe state.
     "host": ("tuikiln.engine.runner", "tuikiln.engine.recovery", "tuikiln.engine.safety"),
     # Screens and what feeds them.
