@@ -19,8 +19,6 @@ from typing import Any
 
 from tuikiln.errors import UserError
 
-HELP = "learn the oven from a logged run: heating, losses, time constant, PID by SIMC"
-
 
 def add_arguments(parser: argparse.ArgumentParser) -> None:
     parser.add_argument("run", metavar="RUN", nargs="?", default="last",

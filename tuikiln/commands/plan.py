@@ -25,7 +25,6 @@ from tuikiln.units import (
 )
 
 MAX_CSV_ROWS = 10_000_000  # beyond this the CSV is a mistake (and would not fit in memory)
-HELP = "show the planned curve of a profile (table, --json or --csv)"
 
 
 def add_arguments(parser: argparse.ArgumentParser) -> None:

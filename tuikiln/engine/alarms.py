@@ -41,7 +41,6 @@ ALARMS.update({
     "paused-too-long": (WARNING, "paused too long"),
     "log-trouble": (WARNING, "cannot write the run log"),
 })
-CRITICAL_CODES = frozenset(code for code, (sev, _) in ALARMS.items() if sev == CRITICAL)
 
 BAD_READINGS_TO_ALARM = 3      # consecutive impossible / faulty readings before sensor-bad
 GOOD_READINGS_TO_CLEAR = 5

@@ -34,7 +34,7 @@ from __future__ import annotations
 
 from collections.abc import Callable
 from dataclasses import dataclass, field
-from typing import Any, Protocol
+from typing import Any
 
 from tuikiln import events as ev
 from tuikiln.engine import states as st
@@ -50,11 +50,6 @@ FREE_COOL_SETPOINT_C = 0.0
 BAND_DWELL_S = 20.0
 
 
-class EqualizeLike(Protocol):
-    """What tuikiln.equalize.EqualizeDetector gives back from `update` (duck-typed)."""
-
-    equalized: bool
-    words: str
 
 
 DetectorFactory = Callable[[float, float], Any]
