@@ -22,12 +22,11 @@ import sys
 import time
 from pathlib import Path
 
-from tests.test_alerts_engine import BASE, PUB, Watcher, kiln_file, watcher  # noqa: F401
+from tests.test_alerts_engine import BASE, PUB, kiln_file, watcher  # noqa: F401 - a fixture
 from tuikiln import control
 from tuikiln.engine import states as st
 from tuikiln.runlog import RunLog
 
-pytest_plugins = ["tests.mqtt_broker"]
 ROOT = Path(__file__).resolve().parent.parent
 LONG = """
 name = "Long soak"
