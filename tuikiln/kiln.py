@@ -14,7 +14,7 @@ from typing import Any
 
 import platformdirs
 
-from tuikiln.drivers.checking import Problems, Setting, check_table, keys_of
+from tuikiln.drivers.checking import Problems, Setting, check_table
 from tuikiln.engine.states import RestartPolicy
 from tuikiln.errors import FileProblems, Problem
 from tuikiln.limits import parse_limits
@@ -37,7 +37,6 @@ KILN: tuple[Setting, ...] = (
     Setting("on_restart", "choice", RestartPolicy.HOLD, choices=RESTART_POLICIES),
     Setting("bell", "flag", True),
 )
-KILN_KEYS = keys_of(KILN)
 
 
 @dataclass(frozen=True)

@@ -19,8 +19,6 @@ from typing import Any
 
 from tuikiln.errors import UserError
 
-HELP = "learn the oven from a logged run: heating, losses, time constant, PID by SIMC"
-
 
 def add_arguments(parser: argparse.ArgumentParser) -> None:
     parser.add_argument("run", metavar="RUN", nargs="?", default="last",
@@ -35,7 +33,7 @@ def add_arguments(parser: argparse.ArgumentParser) -> None:
     csv.add_argument("--time-column", metavar="NAME", help="header of the time column")
     csv.add_argument("--chamber-column", metavar="NAME", help="header of the chamber column")
     csv.add_argument("--output-column", metavar="NAME",
-                     help='header of the heater output column, in % (default: "output_pct", '
+                     help='header of the heater output column, in %% (default: "output_pct", '
                           '"output", "out", "power" or "mv")')
     csv.add_argument("--units", type=str.upper, choices=("C", "F"), default=None,
                      help="the CSV's temperature unit (default: from the header, else C)")

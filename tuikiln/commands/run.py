@@ -37,8 +37,6 @@ from typing import Any
 from tuikiln.errors import UserError
 from tuikiln.units import format_duration, format_temp
 
-HELP = "run a heat-treatment profile (in the background, or --headless in the foreground)"
-
 EXIT_COMPLETED = 0
 EXIT_ABORTED = 2
 EXIT_ALARM = 3
