@@ -48,6 +48,7 @@ LAYERS: dict[str, tuple[str, ...]] = {
     "core": (
         "tuikiln.profile", "tuikiln.plan", "tuikiln.coremodel", "tuikiln.equalize",
         "tuikiln.engine.stepper", "tuikiln.engine.alarms", "tuikiln.engine.rules",
+        "tuikiln.engine.stepper_arrays", "tuikiln.engine.alarm_arrays",
         "tuikiln.engine.status", "tuikiln.engine.checks",
         "tuikiln.analysis.csvlog", "tuikiln.analysis.csvsniff", "tuikiln.analysis.quench",
         "tuikiln.analysis.replay", "tuikiln.analysis.temper", "tuikiln.analysis.whatif",
@@ -58,12 +59,12 @@ LAYERS: dict[str, tuple[str, ...]] = {
     "setup": (
         "tuikiln.kiln", "tuikiln.alerts", "tuikiln.alerts.settings", "tuikiln.alerts.discovery",
         "tuikiln.alerts.fanout", "tuikiln.alerts.hooks", "tuikiln.alerts.mqtt",
-        "tuikiln.alerts.payloads", "tuikiln.alerts.remote",
+        "tuikiln.alerts.payloads", "tuikiln.alerts.remote", "tuikiln.alerts.channels",
     ),
     # The files the program keeps: the run log, the control socket, the one loader from a
     # log to a replay, learned oven models, its own log of messages.
-    "record": ("tuikiln.runlog", "tuikiln.control", "tuikiln.analysis.loading",
-               "tuikiln.ovenmodel_store", "tuikiln.logsetup"),
+    "record": ("tuikiln.runlog", "tuikiln.logqueue", "tuikiln.control",
+               "tuikiln.analysis.loading", "tuikiln.ovenmodel_store", "tuikiln.logsetup"),
     # The engine's host: the async loop, restart recovery, the safe state.
     "host": ("tuikiln.engine.runner", "tuikiln.engine.recovery", "tuikiln.engine.safety"),
     # Screens and what feeds them.
@@ -216,9 +217,9 @@ FOLDERS = {"tuikiln": "tuikiln", "drivers": "tuikiln.drivers",
            "simulator": "tuikiln.simulator", "profiles": "tuikiln.profiles"}
 LAYER_OF_MODULE = {module: layer for layer, modules in LAYERS.items() for module in modules}
 # Packages of plugins, one module each, that the package finds by itself (engine/checks: the
-# alarm rules; docs/CONTRIBUTING.md): a module there is in its package's layer, declared by
-# the package, so a new alarm rule needs no line here.
-PLUGIN_PACKAGES = ("tuikiln.engine.checks",)
+# alarm rules, alerts/channels: the alert channels; docs/CONTRIBUTING.md): a module there is
+# in its package's layer, declared by the package, so a new one needs no line here.
+PLUGIN_PACKAGES = ("tuikiln.engine.checks", "tuikiln.alerts.channels")
 
 
 def in_plugin_package(module: str) -> bool:

@@ -110,3 +110,10 @@ def test_a_wider_air_gap_is_slower() -> None:
     snug = _heat("foil", 1200.0, foil_gap_m=0.0005).truth.load_core_c
     loose = _heat("foil", 1200.0, foil_gap_m=0.003).truth.load_core_c
     assert snug is not None and loose is not None and loose < snug - 20.0
+
+
+def test_width_is_read_like_the_thickness() -> None:
+    profile = parse_profile(profile_text('thickness = "40 mm"\nwidth = "2 in"'), "a2.toml")
+    assert profile.load.width_m == pytest.approx(0.0508)
+    got = problems(profile_text('width = "wide"'))
+    assert got == [(4, '"width": "wide" is not a width such as "4 mm" or "0.16 in"')]

@@ -245,3 +245,21 @@ def test_nan_output_counts_as_none() -> None:
     t, temp, _ = _trace("no-cool")
     with pytest.raises(ModelError, match="no heater output"):
         identify(t, temp, np.full(t.size, math.nan))
+
+
+@pytest.mark.parametrize("change", [
+    {"valid_to_c": "hot"},
+    {"runs": "two"},
+    {"heat_c_per_s": True},
+    {"lining_tau_s": 0.0},
+    {"room_c": math.inf},
+    {"normals": [{"lining_tau_s": 600, "gram": [[1.0]], "moment": [1.0], "yy": 1, "n": 1}]},
+    {"normals": "none"},
+])
+def test_a_damaged_model_is_refused_in_words(big, change: dict) -> None:  # noqa: ANN001
+    model, _ = big
+    damaged = model.as_dict() | change
+    if "room_c" in change:  # JSON cannot hold inf; a hand-edited file could say 1e999
+        damaged["room_c"] = math.inf
+    with pytest.raises(ValueError, match="damaged|no oven has"):
+        OvenModel.from_dict(damaged)

@@ -335,8 +335,9 @@ class LoadWatch:
 
     def __init__(self, material: str | None, thickness_m: float | None, *, window_s: float,
                  slope_limit_c_per_s: float, confirm_s: float, resolution_c: float = 1.0,
-                 units: Units = "C", wrap: str = "none") -> None:
-        self.model = LoadModel.from_load(material, thickness_m, wrap)
+                 units: Units = "C", wrap: str = "none",
+                 width_m: float | None = None) -> None:
+        self.model = LoadModel.from_load(material, thickness_m, wrap, width_m)
         self.thickness_m = thickness_m
         self.window_s = window_s
         self.slope_limit = slope_limit_c_per_s

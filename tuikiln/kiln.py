@@ -14,13 +14,14 @@ from typing import Any
 
 import platformdirs
 
-from tuikiln.drivers.checking import Problems, Setting, check_table, keys_of
+from tuikiln.drivers.checking import Problems, Setting, check_table
+from tuikiln.engine.states import RestartPolicy
 from tuikiln.errors import FileProblems, Problem
 from tuikiln.limits import parse_limits
 from tuikiln.tomllines import LineMap, load_toml, read_text
 from tuikiln.units import UNITS, Units, finite, to_c
 
-RESTART_POLICIES = ("continue", "hold", "end")
+RESTART_POLICIES = tuple(RestartPolicy)
 SIMULATOR_MAX_C = 1200.0
 # The kiln file's top-level keys (tuikiln.drivers.checking checks them). `max` needs code:
 # its units, and whether a real device makes it required; the tables have their checkers.
@@ -33,10 +34,9 @@ KILN: tuple[Setting, ...] = (
     Setting("alarms", "any", {}),
     Setting("mqtt"),
     Setting("hook"),
-    Setting("on_restart", "choice", "hold", choices=RESTART_POLICIES),
+    Setting("on_restart", "choice", RestartPolicy.HOLD, choices=RESTART_POLICIES),
     Setting("bell", "flag", True),
 )
-KILN_KEYS = keys_of(KILN)
 
 
 @dataclass(frozen=True)
@@ -51,13 +51,15 @@ class Kiln:
     mqtt: Any = None
     """tuikiln.alerts MqttSettings, or None when there is no [mqtt] table."""
     hooks: tuple[Any, ...] = ()
-    on_restart: str = "hold"
+    on_restart: RestartPolicy = RestartPolicy.HOLD
     """After a crash or power cut: continue the run, hold safe for a person, or end it."""
     bell: bool = True
     path: str | None = None
     base_dir: str = "."
     text: str = ""
     """The file's text as loaded (stored with every run; secrets live in other files)."""
+    channels: Mapping[str, Mapping[str, Any]] = field(default_factory=dict)
+    """Checked values of each registered alert channel's table (tuikiln.alerts.channels)."""
 
     @property
     def is_simulator(self) -> bool:
@@ -92,8 +94,10 @@ def parse_kiln(text: str, file: str = "<kiln>") -> Kiln:
     def report(path: tuple, message: str) -> None:
         found.append(Problem(file, lines.line(path), message))
 
+    from tuikiln.alerts.channels import CHANNELS, check_channel
+
     settings: Problems = []
-    values = check_table(data, KILN, (), settings)
+    values = check_table(data, KILN, (), settings, also=CHANNELS)
     for key_path, message in settings:
         report(key_path, message)
     units = values["units"]
@@ -128,6 +132,14 @@ def parse_kiln(text: str, file: str = "<kiln>") -> Kiln:
         hooks, hook_problems = check_hooks(data["hook"], base_dir)
         for key_path, message in hook_problems:
             report(tuple(key_path), message)
+    channels: dict[str, Mapping[str, Any]] = {}
+    for table in CHANNELS:
+        if table in data:
+            checked, channel_problems = check_channel(table, data[table], base_dir)
+            for key_path, message in channel_problems:
+                report(tuple(key_path), message)
+            if checked is not None:
+                channels[table] = checked
     on_restart, bell = values["on_restart"], values["bell"]
     if found:
         raise FileProblems(sorted(found, key=lambda p: p.line or 0))
@@ -139,11 +151,12 @@ def parse_kiln(text: str, file: str = "<kiln>") -> Kiln:
         alarms=alarms,
         mqtt=mqtt,
         hooks=tuple(hooks),
-        on_restart=on_restart,
+        on_restart=RestartPolicy(on_restart),
         bell=bell,
         path=file,
         base_dir=base_dir,
         text=text,
+        channels=channels,
     )
 
 

@@ -250,20 +250,31 @@ class OvenModel:
         if not isinstance(d, Mapping) or d.get("version") != MODEL_VERSION:
             raise ValueError("not an oven model saved by this version of tuikiln")
         try:
-            values = {name: d[name] for name in _FIELDS
-                      if name in d and name not in ("normals", "sources")}
+            values: dict[str, Any] = {}
+            for name in _FIELDS:
+                if name not in d or name in ("normals", "sources"):
+                    continue
+                value = d[name]
+                if name == "operating_c" and value is None:
+                    values[name] = None
+                elif isinstance(value, bool) or not isinstance(value, int | float):
+                    raise ValueError(f'"{name}" is not a number')
+                else:
+                    values[name] = int(value) if name == "runs" else float(value)
             values["sources"] = tuple(str(x) for x in d.get("sources", ()))
             normals = tuple(
                 Normals(float(n["lining_tau_s"]),
                         tuple(tuple(float(x) for x in row) for row in n["gram"]),
                         tuple(float(x) for x in n["moment"]), float(n["yy"]), int(n["n"]))
                 for n in d.get("normals", ()))
+            if any(len(n.gram) != 4 or any(len(row) != 4 for row in n.gram)
+                   or len(n.moment) != 4 for n in normals):
+                raise ValueError("its least-squares sums have the wrong shape")
             model = cls(**values, normals=normals)
         except (TypeError, ValueError, KeyError) as exc:
             raise ValueError(f"the oven model is damaged ({exc})") from None
-        numbers = (model.heat_c_per_s, model.loss_per_s, model.radiation_per_s_k3,
-                   model.lining_per_s, model.lining_tau_s, model.room_c, model.dead_time_s)
-        if not all(isinstance(x, int | float) and math.isfinite(x) for x in numbers) \
+        numbers = [getattr(model, f) for f in _FIELDS if isinstance(getattr(model, f), float)]
+        if not all(math.isfinite(x) for x in numbers) \
                 or model.heat_c_per_s <= 0 or model.loss_per_s < 0 or model.lining_tau_s <= 0 \
                 or model.radiation_per_s_k3 < 0 or model.lining_per_s < 0 \
                 or model.dead_time_s < 0:

@@ -87,6 +87,9 @@ class Load:
     thickness_m: float | None = None
     pieces: int | None = None
     thickness_text: str | None = None
+    width_m: float | None = None
+    """The part's width (the next size up from the thickness): the estimate then counts the
+    heat taken in through the edges."""
     wrap: str = "none"
     """ "none", or "foil": the part is sealed in a stainless foil packet (the equalization
     estimate then allows for the foil's low emissivity and the air gap inside it)."""
@@ -111,7 +114,7 @@ class Profile:
 
 
 TOP_KEYS = ("name", "units", "about", "load", "limits", "step")
-LOAD_KEYS = ("material", "thickness", "pieces", "wrap")
+LOAD_KEYS = ("material", "thickness", "width", "pieces", "wrap")
 WRAPS = ("none", "foil")
 STEP_KEYS = {
     "ramp": ("ramp", "to", "label"),
@@ -180,7 +183,7 @@ class _Checker:
             about = ""
         load = self.load(data.get("load", {}))
         limits = parse_limits(data.get("limits", {}), self.units, self.report, ("limits",))
-        steps = self.steps(data.get("step"), start_c, limits.get("band"))
+        steps = self.steps(data.get("step"), start_c)
         if units is None or self.problems:
             return None
         return Profile(
@@ -212,6 +215,14 @@ class _Checker:
                 thickness_m = parse_thickness(thickness)
             except ValueError as exc:
                 self.report(("load", "thickness"), f'"thickness": {exc}')
+        width_m = None
+        width = table.get("width")
+        if width is not None:
+            try:
+                width_m = parse_thickness(width)
+            except ValueError as exc:
+                self.report(("load", "width"),
+                            f'"width": {str(exc).replace("thickness", "width")}')
         pieces = table.get("pieces")
         if pieces is not None and (isinstance(pieces, bool) or not isinstance(pieces, int)
                                    or pieces < 1):
@@ -223,9 +234,10 @@ class _Checker:
             self.report(("load", "wrap"), f'"wrap" must be "none" or "foil", not {shown}'
                         f"{suggest(wrap, WRAPS) if isinstance(wrap, str) else ''}")
             wrap = "none"
-        return Load(material, thickness_m, pieces, thickness if thickness_m else None, wrap)
+        return Load(material, thickness_m, pieces, thickness if thickness_m else None,
+                    width_m, wrap)
 
-    def steps(self, raw: Any, start_c: float, profile_band: float | None) -> list[Step]:
+    def steps(self, raw: Any, start_c: float) -> list[Step]:
         if raw is None or raw == []:
             self.report((), "the profile has no steps: add at least one [[step]] table")
             return []

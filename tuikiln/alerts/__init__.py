@@ -14,9 +14,10 @@ failures) and its command handler.
 from __future__ import annotations
 
 import time
-from collections.abc import Callable, Sequence
+from collections.abc import Callable, Mapping, Sequence
 from typing import Any, TextIO
 
+from tuikiln.alerts.channels import ChannelContext, build_channels
 from tuikiln.alerts.fanout import AlertFanout, TerminalSink
 from tuikiln.alerts.hooks import HookRunner
 from tuikiln.alerts.mqtt import CommandCallback, MqttPublisher
@@ -40,8 +41,11 @@ def build_alerts(
     terminal: TextIO | None = None,
     bell: bool = False,
     clock: Callable[[], float] = time.time,
+    channels: Mapping[str, Mapping[str, Any]] | None = None,
+    base_dir: str = ".",
 ) -> AlertFanout:
-    """The fan-out for one engine: terminal (when a stream is given), MQTT, hooks."""
+    """The fan-out for one engine: terminal (when a stream is given), MQTT, hooks, and the
+    registered channels (tuikiln.alerts.channels) the kiln file configures."""
     sinks: list[AlertSink] = []
     if terminal is not None:
         sinks.append(TerminalSink(terminal, bell=bell))
@@ -51,6 +55,10 @@ def build_alerts(
         secret = (mqtt.password_env,) if mqtt is not None else ()
         sinks.append(HookRunner(hooks, kiln_name=kiln_name, emit=emit, units=units, clock=clock,
                                 secret_env=secret))
+    if channels:
+        context = ChannelContext(kiln_name=kiln_name, units=units, base_dir=base_dir, emit=emit,
+                                 clock=clock)
+        sinks += build_channels(channels, context)
     return AlertFanout(sinks)
 
 
@@ -71,4 +79,6 @@ def alerts_for_engine(kiln: Any, engine_box: list[Any], *, terminal: TextIO | No
 
     return build_alerts(kiln_name=kiln.name, emit=emit, on_command=on_command,
                         mqtt=kiln.mqtt, hooks=kiln.hooks, units=kiln.units, terminal=terminal,
-                        bell=bool(getattr(kiln, "bell", False)), clock=clock)
+                        bell=bool(getattr(kiln, "bell", False)), clock=clock,
+                        channels=getattr(kiln, "channels", None),
+                        base_dir=getattr(kiln, "base_dir", "."))

@@ -23,7 +23,6 @@ from typing import Any
 from tuikiln.errors import FileProblems, UserError
 from tuikiln.limits import LIMIT_KEYS, LimitKey
 
-HELP = "hold a logged run (or another tool's CSV log) against its profile, step by step"
 # The report's form goes by the file's suffix.
 REPORT_FORMS = {".html": "html", ".htm": "html", ".md": "markdown", ".markdown": "markdown",
                 ".txt": "text"}
@@ -231,17 +230,23 @@ def _load_csv(args: argparse.Namespace, path: str) -> Any:
     return from_csv(path, layout, profile, kiln)
 
 
-def _load_run(args: argparse.Namespace) -> Any:
-    from tuikiln.analysis.loading import from_log
-    from tuikiln.profile import parse_profile
+def open_run_log(data: str | None, other: str = "") -> Any:
+    """The data folder's run log for reading; a UserError when there is none yet."""
     from tuikiln.runlog import RUNLOG_NAME, RunLog, default_data_dir
 
-    folder = default_data_dir(args.data)
+    folder = default_data_dir(data)
     path = folder / RUNLOG_NAME
     if not path.exists():
         raise UserError(f"no run log in {folder}: no run has been recorded there yet "
-                        "(or give --data DIR)")
-    log = RunLog.reader(path)
+                        f"(or give --data DIR{other})")
+    return RunLog.reader(path)
+
+
+def _load_run(args: argparse.Namespace) -> Any:
+    from tuikiln.analysis.loading import from_log
+    from tuikiln.profile import parse_profile
+
+    log = open_run_log(args.data)
     try:
         info = _find_run(log, args.run)
         against = _against(args) if args.against else None

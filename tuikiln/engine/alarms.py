@@ -20,9 +20,9 @@ from typing import Any
 from tuikiln import events as ev
 from tuikiln.engine import states as st
 from tuikiln.engine.checks import ALARM_KINDS, CRITICAL, WARNING, Check, judge_all, make_checks
-from tuikiln.events import Event
+from tuikiln.events import Event, Said, say
 from tuikiln.limits import Limits
-from tuikiln.units import Units, delta_from_c, format_duration, format_temp, symbol
+from tuikiln.units import Units
 
 # code -> (severity, short name for people). The same dict as engine/checks' ALARM_KINDS:
 # checks registered there (one module each) join these built-in ones.
@@ -41,7 +41,6 @@ ALARMS.update({
     "paused-too-long": (WARNING, "paused too long"),
     "log-trouble": (WARNING, "cannot write the run log"),
 })
-CRITICAL_CODES = frozenset(code for code, (sev, _) in ALARMS.items() if sev == CRITICAL)
 
 BAD_READINGS_TO_ALARM = 3      # consecutive impossible / faulty readings before sensor-bad
 GOOD_READINGS_TO_CLEAR = 5
@@ -66,6 +65,25 @@ SETPOINT_LAG_S = 600.0
 SLOW_EVERY_S = 5.0
 
 
+def raised_event(now: float, code: str, words: str, said: Said | None = None) -> Event:
+    """The event an alarm is raised with (the rules' and their array form's). With `said`
+    the detail carries the numbers: "template" for the message, "words_template" for the
+    words alone."""
+    severity = ALARMS[code][0]
+    prefix = "ALARM" if severity == CRITICAL else "Warning"
+    detail: dict[str, Any] = {"alarm": code, "severity": severity, "words": words}
+    if said is not None:
+        detail.update(said.after(f"{prefix}: ").as_detail())
+        detail["words_template"] = said.template
+    return Event(now, ev.ALARM_RAISED, f"{prefix}: {words}", severity, detail)
+
+
+def cleared_event(now: float, code: str, acknowledged: bool) -> Event:
+    severity, name = ALARMS[code]
+    return Event(now, ev.ALARM_CLEARED, f"Cleared: {name}", "info",
+                 {"alarm": code, "severity": severity, "acknowledged": acknowledged})
+
+
 @dataclass
 class Alarm:
     code: str
@@ -73,10 +91,15 @@ class Alarm:
     words: str
     since: float
     acknowledged: bool = False
+    said: Said | None = None
+    """The words with their numbers (the status carries them: screens show their units)."""
 
     def as_dict(self) -> dict[str, Any]:
-        return {"code": self.code, "severity": self.severity, "words": self.words,
-                "acknowledged": self.acknowledged, "since": self.since}
+        out = {"code": self.code, "severity": self.severity, "words": self.words,
+               "acknowledged": self.acknowledged, "since": self.since}
+        if self.said is not None:
+            out.update(self.said.as_detail())
+        return out
 
 
 @dataclass
@@ -170,13 +193,14 @@ class AlarmRules:
         out, self._pending = self._pending, []
         return out
 
-    def set_condition(self, code: str, active: bool, now: float, words: str = "") -> list[Event]:
+    def set_condition(self, code: str, active: bool, now: float,
+                      words: str | Said = "") -> list[Event]:
         """Raise or clear an alarm whose cause the rules cannot see (e.g. log-trouble)."""
         self._set(code, active, now, words)
         out, self._pending = self._pending, []
         return out
 
-    def set_alarm(self, code: str, active: bool, now: float, words: str = "") -> None:
+    def set_alarm(self, code: str, active: bool, now: float, words: str | Said = "") -> None:
         """Raise or clear `code` as part of this tick (the registered checks' way in)."""
         self._set(code, active, now, words)
 
@@ -201,32 +225,93 @@ class AlarmRules:
 
     # ----- raising and clearing -----
 
-    def _set(self, code: str, on: bool, now: float, words: str = "") -> None:
+    def _set(self, code: str, on: bool, now: float, words: str | Said = "") -> None:
         if not on and code not in self.active:
             return  # the common case, every tick: nothing to clear
         alarm = self.active.get(code)
+        said = words if isinstance(words, Said) else None
+        text = said.text(self.units) if said is not None else str(words)
         if on and alarm is None:
             if code in self.unjudged:
                 return
-            severity, _ = ALARMS[code]
-            self.active[code] = Alarm(code, severity, words, now)
-            prefix = "ALARM" if severity == CRITICAL else "Warning"
-            self._pending.append(Event(now, ev.ALARM_RAISED, f"{prefix}: {words}", severity,
-                                       {"alarm": code, "severity": severity, "words": words}))
-        elif on and alarm is not None and words:
-            alarm.words = words
+            self.active[code] = Alarm(code, ALARMS[code][0], text, now, said=said)
+            self._pending.append(raised_event(now, code, text, said))
+        elif on and alarm is not None and text:
+            alarm.words = text
+            alarm.said = said
         elif not on and alarm is not None:
             del self.active[code]
-            _, name = ALARMS[code]
-            self._pending.append(Event(now, ev.ALARM_CLEARED, f"Cleared: {name}", "info",
-                                       {"alarm": code, "severity": alarm.severity,
-                                        "acknowledged": alarm.acknowledged}))
+            self._pending.append(cleared_event(now, code, alarm.acknowledged))
 
-    def _t(self, celsius: float | None) -> str:
-        return format_temp(celsius, self.units)
+    # ----- the words (shared with the array forms in alarm_arrays.py) -----
+    # Each returns Said: the words with their numbers kept apart (tuikiln.events), so the
+    # screens and reports show them in their own units.
 
-    def _d(self, kelvin: float) -> str:
-        return f"{delta_from_c(kelvin, self.units):.0f} {symbol(self.units)}"
+    def no_link_words(self, silent_s: float) -> Said:
+        return say("No answer from the controller for {silent}: check the cable and its "
+                   "power", silent=(ev.DURATION, silent_s))
+
+    def no_link_too_long_words(self, silent_s: float) -> Said:
+        return say("The controller has been silent for {silent}: the run stops and the heat "
+                   "is turned off where the controller can still hear it",
+                   silent=(ev.DURATION, silent_s))
+
+    def bad_reading_words(self, why: str, chamber_c: float | None = None) -> Said:
+        """`why`: "fault" (the controller says so), "none" (no temperature), "impossible"."""
+        if why == "fault":
+            return say("Thermocouple fault: the controller reports the thermocouple open or "
+                       "out of range")
+        if why == "none":
+            return say("Thermocouple fault: the controller gives no temperature")
+        return say("Thermocouple fault: the reading {reading} is impossible",
+                   reading=(ev.TEMPERATURE, chamber_c))
+
+    def jumps_words(self) -> Said:
+        return say("Thermocouple fault: the reading jumps by more than {jump} from one second "
+                   "to the next", jump=(ev.DIFFERENCE, JUMP_C))
+
+    def frozen_words(self, temp_c: float) -> Said:
+        return say("Thermocouple fault: the reading has stayed at exactly {temp} for {frozen} "
+                   "while heating", temp=(ev.TEMPERATURE, temp_c), frozen=(ev.DURATION, FROZEN_S))
+
+    def over_max_words(self, temp_c: float) -> Said:
+        return say("{temp} is over the kiln's maximum of {max}", temp=(ev.TEMPERATURE, temp_c),
+                   max=(ev.TEMPERATURE, self.max_c))
+
+    def too_hot_words(self, temp_c: float, target_c: float | None) -> Said:
+        return say("Too hot: {temp} is {over} above the target {target}",
+                   temp=(ev.TEMPERATURE, temp_c),
+                   over=(ev.DIFFERENCE, temp_c - (target_c or 0.0)),
+                   target=(ev.TEMPERATURE, target_c))
+
+    def lagging_words(self, temp_c: float, gap_c: float, planned_c: float | None) -> Said:
+        return say("Falling behind the ramp: {temp} is {gap} below the planned {planned} — a "
+                   "heater failing, the door open, or a ramp too fast for this oven",
+                   temp=(ev.TEMPERATURE, temp_c), gap=(ev.DIFFERENCE, gap_c),
+                   planned=(ev.TEMPERATURE, planned_c))
+
+    def no_rise_words(self, temp_c: float) -> Said:
+        return say("Not heating: the heater is asked for full power but the temperature has "
+                   "not risen in {stall} ({temp}) — a heater or its fuse failing, or the door "
+                   "open", stall=(ev.DURATION, self.limits.stall_for),
+                   temp=(ev.TEMPERATURE, temp_c))
+
+    def stuck_on_words(self, temp_c: float, rising_off: bool, setpoint_c: float | None) -> Said:
+        how = ("while the heater output is off" if rising_off else "{above} above the setpoint")
+        return say(f"Heat stuck on: {{temp}} and rising {how} — a relay or contactor stuck "
+                   "closed", temp=(ev.TEMPERATURE, temp_c),
+                   above=(ev.DIFFERENCE, temp_c - (setpoint_c or 0.0)))
+
+    def slipped_words(self, target_c: float | None, out_s: float) -> Said:
+        return say("The hold at {target} has been out of its band for {out}: its clock is "
+                   "stopped", target=(ev.TEMPERATURE, target_c), out=(ev.DURATION, out_s))
+
+    def never_reached_words(self, in_hold: bool, target_c: float | None) -> Said:
+        what = "The hold at" if in_hold else "The target"
+        return say(f"{what} {{target}} has not been reached in {{within}}: the oven may not "
+                   "get that hot (elements, a heavy load, the door)",
+                   target=(ev.TEMPERATURE, target_c),
+                   within=(ev.DURATION, self.limits.reach_within))
 
     # ----- the checks -----
 
@@ -267,12 +352,9 @@ class AlarmRules:
         assert self._last_ok is not None
         silent = now - self._last_ok
         if silent >= self.limits.link_lost:
-            self._set("no-link", True, now, f"No answer from the controller for "
-                      f"{format_duration(silent)}: check the cable and its power")
+            self._set("no-link", True, now, self.no_link_words(silent))
         if silent >= self.limits.link_lost_safe:
-            self._set("no-link-too-long", True, now, f"The controller has been silent for "
-                      f"{format_duration(silent)}: the run stops and the heat is turned off "
-                      "where the controller can still hear it")
+            self._set("no-link-too-long", True, now, self.no_link_too_long_words(silent))
 
     def _check_sensor(self, obs: Observation, temp: float | None) -> None:
         now = obs.now
@@ -280,16 +362,16 @@ class AlarmRules:
             return
         why = ""
         if obs.sensor_fault:
-            why = "the controller reports the thermocouple open or out of range"
+            why = "fault"
         elif obs.chamber_c is None:
-            why = "the controller gives no temperature"
+            why = "none"
         elif temp is None:
-            why = f"the reading {self._t(obs.chamber_c)} is impossible"
+            why = "impossible"
         if why:
             self._bad_count += 1
             self._good_count = 0
             if self._bad_count >= BAD_READINGS_TO_ALARM:
-                self._set("sensor-bad", True, now, f"Thermocouple fault: {why}")
+                self._set("sensor-bad", True, now, self.bad_reading_words(why, obs.chamber_c))
             self._last_temp = None
             return
         assert temp is not None
@@ -304,11 +386,9 @@ class AlarmRules:
             jumps.popleft()
         frozen = self._frozen(obs, temp)
         if len(jumps) >= JUMPS_TO_ALARM:
-            self._set("sensor-bad", True, now, "Thermocouple fault: the reading jumps by more "
-                      f"than {self._d(JUMP_C)} from one second to the next")
+            self._set("sensor-bad", True, now, self.jumps_words())
         elif frozen:
-            self._set("sensor-bad", True, now, f"Thermocouple fault: the reading has stayed at "
-                      f"exactly {self._t(temp)} for {format_duration(FROZEN_S)} while heating")
+            self._set("sensor-bad", True, now, self.frozen_words(temp))
         elif (self._good_count >= GOOD_READINGS_TO_CLEAR and not jumps
               and "sensor-bad" in self.active):
             self._set("sensor-bad", False, now)
@@ -328,8 +408,7 @@ class AlarmRules:
         if temp > self.max_c:
             self._max_count += 1
             if self._max_count >= HOT_READINGS_TO_ALARM:
-                self._set("over-kiln-max", True, obs.now, f"{self._t(temp)} is over the kiln's "
-                          f"maximum of {self._t(self.max_c)}")
+                self._set("over-kiln-max", True, obs.now, self.over_max_words(temp))
         else:
             self._max_count = 0
             if temp < self.max_c - 5.0 and "over-kiln-max" in self.active:
@@ -342,8 +421,7 @@ class AlarmRules:
         if applies and temp > limit:
             self._hot_count += 1
             if self._hot_count >= HOT_READINGS_TO_ALARM:
-                self._set("too-hot", True, obs.now, f"Too hot: {self._t(temp)} is "
-                          f"{self._d(temp - (target or 0.0))} above the target {self._t(target)}")
+                self._set("too-hot", True, obs.now, self.too_hot_words(temp, target))
         else:
             self._hot_count = 0
             if (not applies or temp < limit - 2.0) and "too-hot" in self.active:
@@ -359,9 +437,7 @@ class AlarmRules:
             if self._lag_since is None:
                 self._lag_since = now
             if now - self._lag_since >= self.limits.behind_for:
-                self._set("lagging", True, now, f"Falling behind the ramp: {self._t(temp)} is "
-                          f"{self._d(gap)} below the planned {self._t(planned)} — a heater "
-                          "failing, the door open, or a ramp too fast for this oven")
+                self._set("lagging", True, now, self.lagging_words(temp, gap, planned))
         else:
             self._lag_since = None
             if not lagging or gap < self.limits.behind * 0.75:
@@ -387,10 +463,7 @@ class AlarmRules:
             return
         rise = temp - before
         if rise < NO_RISE_C:
-            self._set("no-rise", True, now, f"Not heating: the heater is asked for full power "
-                      f"but the temperature has not risen in "
-                      f"{format_duration(self.limits.stall_for)} ({self._t(temp)}) — a heater "
-                      "or its fuse failing, or the door open")
+            self._set("no-rise", True, now, self.no_rise_words(temp))
         elif rise > NO_RISE_C * 2:
             self._set("no-rise", False, now)
 
@@ -417,10 +490,7 @@ class AlarmRules:
         far_above = (sp is not None and temp > sp + self.limits.runaway
                      and rise is not None and rise >= NO_RISE_C and steady)
         if rising_off or far_above:
-            how = ("while the heater output is off" if rising_off else
-                   f"{self._d(temp - (sp or 0.0))} above the setpoint")
-            self._set("heat-stuck-on", True, now, f"Heat stuck on: {self._t(temp)} and rising "
-                      f"{how} — a relay or contactor stuck closed")
+            self._set("heat-stuck-on", True, now, self.stuck_on_words(temp, rising_off, sp))
         elif rise is not None and rise < NO_RISE_C and not far_above:
             self._set("heat-stuck-on", False, now)
 
@@ -440,9 +510,8 @@ class AlarmRules:
         in_hold = obs.step_kind == "hold"
         slipped = in_hold and obs.step_state == st.SLIPPED and obs.state_since is not None
         if slipped and now - (obs.state_since or now) >= self.limits.hold_grace:
-            self._set("hold-slipped", True, now, f"The hold at {self._t(obs.target_c)} has been "
-                      f"out of its band for {format_duration(now - (obs.state_since or now))}: "
-                      "its clock is stopped")
+            self._set("hold-slipped", True, now,
+                      self.slipped_words(obs.target_c, now - (obs.state_since or now)))
         elif not slipped:
             self._set("hold-slipped", False, now)
         # Waiting for the temperature to come into the band: a hold (from its start), a `max`
@@ -457,17 +526,16 @@ class AlarmRules:
             elif obs.step_kind == "ramp" and obs.step_state == st.REACHING:
                 since = obs.state_since
         if since is not None and now - since >= self.limits.reach_within:
-            what = "The hold at" if in_hold else "The target"
-            self._set("never-reached", True, now, f"{what} {self._t(obs.target_c)} has not "
-                      f"been reached in {format_duration(self.limits.reach_within)}: the oven "
-                      "may not get that hot (elements, a heavy load, the door)")
+            self._set("never-reached", True, now, self.never_reached_words(in_hold,
+                                                                            obs.target_c))
         elif since is None:
             self._set("never-reached", False, now)
 
     def _check_paused(self, obs: Observation) -> None:
         since = obs.paused_since
         if since is not None and obs.now - since >= self.limits.pause_too_long:
-            self._set("paused-too-long", True, obs.now, f"The run has been paused for "
-                      f"{format_duration(obs.now - since)}: resume it or abort it")
+            self._set("paused-too-long", True, obs.now, say(
+                "The run has been paused for {paused}: resume it or abort it",
+                paused=(ev.DURATION, obs.now - since)))
         elif since is None:
             self._set("paused-too-long", False, obs.now)

@@ -70,6 +70,7 @@ def make_load_watch(profile: Profile, limits: Limits, units: Units) -> Any:
         return None
     try:
         return LoadWatch(profile.load.material, profile.load.thickness_m, wrap=profile.load.wrap,
+                         width_m=profile.load.width_m,
                          window_s=limits.equalize_window,
                          slope_limit_c_per_s=limits.equalize_slope / 60.0,
                          confirm_s=limits.equalize_confirm, units=units)
@@ -127,7 +128,7 @@ class RunRules:
     # ----- state for people -----
 
     @property
-    def run_state(self) -> str:
+    def run_state(self) -> st.RunState:
         s = self.stepper
         if self.ended:
             return st.RUN_ENDED
