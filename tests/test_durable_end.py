@@ -14,10 +14,10 @@ from __future__ import annotations
 
 import contextlib
 import os
-import subprocess
 
 import pytest
 
+from tests.test_disk_trouble import tiny_disk  # noqa: F401 - a fixture (a 160 KiB tmpfs)
 from tests.test_recovery import Sink, dead_pid
 from tuikiln import events as ev
 from tuikiln.drivers.fake import FirstOrderOven, ManualClock, ScriptedDevice
@@ -141,22 +141,6 @@ async def test_an_end_the_database_refused_is_kept_and_the_restart_does_not_heat
     await restart_and_check(log, model, clock, engine.run_id)
 
 
-@pytest.fixture
-def tiny_disk(tmp_path):
-    folder = tmp_path / "tiny"
-    folder.mkdir()
-    if os.geteuid() != 0:
-        pytest.skip("mounting a tiny tmpfs needs root")
-    done = subprocess.run(["mount", "-t", "tmpfs", "-o", "size=256k", "tmpfs", str(folder)],
-                          capture_output=True, text=True)
-    if done.returncode != 0:
-        pytest.skip(f"cannot mount a tmpfs here: {done.stderr.strip()}")
-    try:
-        yield folder
-    finally:
-        subprocess.run(["umount", "-l", str(folder)], capture_output=True)
-
-
 def fill_to_the_last_byte(folder) -> None:
     fd = os.open(folder / "filler", os.O_WRONLY | os.O_CREAT | os.O_APPEND, 0o600)
     try:
@@ -168,7 +152,7 @@ def fill_to_the_last_byte(folder) -> None:
         os.close(fd)
 
 
-async def test_an_abort_on_a_really_full_disk_does_not_heat_again_on_restart(tiny_disk,
+async def test_an_abort_on_a_really_full_disk_does_not_heat_again_on_restart(tiny_disk,  # noqa: F811
                                                                              short_close):
     clock = ManualClock(1_000_000.0)
     model = FirstOrderOven(tau_s=300.0)
