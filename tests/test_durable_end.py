@@ -186,3 +186,35 @@ async def test_an_abort_on_a_really_full_disk_does_not_heat_again_on_restart(tin
     else:
         log._conn.execute("UPDATE runs SET pid = ? WHERE id = ?", (dead_pid(), engine.run_id))
         assert recovery.find_unfinished(log, "Test oven") is None  # nothing to carry on
+
+
+async def restart_on_a_log_that_refuses(tmp_path, refuse) -> None:
+    """kill -9 mid-hold (the controller left heating), then a restart whose run log cannot
+    take the run (`refuse(folder)`): one clear error, and the oven driven safe first. (On a
+    real full tmpfs the restart's one-page write often still fits in the WAL file, so the
+    refusal is made certain with SQLite's own error words.)"""
+    from tests.test_recovery import HOLD, crashed_run, engine_for, in_hold_for
+    from tuikiln.engine.runner import CannotLog
+
+    log, model, clock, _ = await crashed_run(tmp_path, HOLD, in_hold_for(60.0))
+    assert model.heating
+    refuse(tmp_path)
+    info = recovery.find_unfinished(log, "Test oven")
+    plan = recovery.plan_resume(log, info, "continue", now=clock.now())
+    device = ScriptedDevice(model=model, clock=clock)
+    with pytest.raises(CannotLog) as caught:
+        await engine_for(HOLD, device, log, Sink(), resume=plan).run()
+    assert caught.value.exit_code == 4
+    words = str(caught.value)
+    assert "full" in words and "driven safe" in words and "\n" not in words
+    assert not model.heating and not any(value > 0.0 for _, value in device.setpoint_writes)
+
+
+async def test_a_restart_the_log_cannot_take_drives_safe_and_says_so(tmp_path):
+    def refuse(folder) -> None:
+        RunLog.in_folder(folder)._conn.execute(
+            "CREATE TRIGGER full BEFORE UPDATE OF pid ON runs "
+            "BEGIN SELECT RAISE(FAIL, 'database or disk is full'); END")
+
+    await restart_on_a_log_that_refuses(tmp_path, refuse)
+
