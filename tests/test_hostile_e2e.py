@@ -19,10 +19,10 @@ import signal
 import socket
 import subprocess
 import sys
-import time
 from pathlib import Path
 
 from tests.test_alerts_engine import BASE, PUB, kiln_file, watcher  # noqa: F401 - a fixture
+from tests.waiting import wait_until
 from tuikiln import control
 from tuikiln.engine import states as st
 from tuikiln.runlog import RunLog
@@ -43,16 +43,6 @@ def tuikiln(*args: str | bytes, data: Path, **kw) -> subprocess.CompletedProcess
     env = dict(os.environ, TUIKILN_DATA=str(data))
     argv = [os.fsencode(a) for a in (sys.executable, "-m", "tuikiln", *args)]
     return subprocess.run(argv, capture_output=True, env=env, timeout=60, cwd=ROOT, **kw)
-
-
-def wait_until(condition, timeout: float, what: str):  # noqa: ANN001, ANN201
-    deadline = time.monotonic() + timeout
-    while time.monotonic() < deadline:
-        value = condition()
-        if value:
-            return value
-        time.sleep(0.05)
-    raise AssertionError(f"timed out waiting for {what}")
 
 
 def status(data: Path) -> dict | None:
