@@ -17,7 +17,11 @@ from pathlib import Path
 
 import numpy as np
 import pytest
+from hypothesis import HealthCheck, given, settings
+from hypothesis import strategies as hs
 
+from tests.test_hostile_files import examples
+from tests.trials import trials
 from tuikiln import events as ev
 from tuikiln.analysis.replay import Trace
 from tuikiln.analysis.whatif import rerun_rules
@@ -95,7 +99,8 @@ RUNS = [
 ]
 
 
-def record(log: RunLog, text: str, faults: tuple[Fault, ...], seed: int) -> int:
+def record(log: RunLog, text: str, faults: tuple[Fault, ...], seed: int,
+           limit_s: float = 20_000.0) -> int:
     """The engine's rules on the simulator, logged as tuikiln.engine.runner logs."""
     profile = parse_profile(text, "test.toml")
     rules = RunRules(profile, Limits().merged(profile.limits), max_c=1000.0)
@@ -105,7 +110,7 @@ def record(log: RunLog, text: str, faults: tuple[Fault, ...], seed: int) -> int:
     rec = log.start_run(kiln="Simulated bench oven", profile=profile.name, started=START_T,
                         profile_text=text, units="C", device="sim", speed="max")
     now = START_T
-    while not rules.ended and now - START_T < 20_000.0:
+    while not rules.ended and now - START_T < limit_s:
         r = kiln.read()
         chamber = r.chamber_c if r.line_answers else None
         decision = rules.tick(now, TickInput(chamber, None, r.output_pct if r.line_answers
@@ -258,3 +263,31 @@ def test_what_the_arrays_cannot_follow_goes_per_sample(logged, change: str) -> N
     result = rerun_rules(t, trace.chamber_c, trace.load_c, trace.output_pct, profile,
                          Limits().merged(profile.limits), flags=trace.flags, events=events)
     assert result.how == "per sample"
+
+
+# Random profiles (tests/trials.py: any order of max and rated ramps, holds with or without
+# their own band, rated and free cools, from room to near the kiln's maximum), each with a
+# random seed and perhaps a fault: pauses and `equalized` holds are taken out, since those
+# runs go per sample anyway (the test above).
+ARRAY_FAULTS = [(), (Fault("tc-open", 2000.0),), (Fault("relay-welded", 1500.0),),
+                (Fault("door-open", 1800.0, 300.0),), (Fault("link-drop", 1200.0, 150.0),),
+                (Fault("element-open", 900.0),)]
+
+
+@settings(max_examples=examples(12), deadline=None, database=None,
+          suppress_health_check=[HealthCheck.too_slow, HealthCheck.function_scoped_fixture])
+@given(trial=trials(max_steps=5), fault=hs.sampled_from(ARRAY_FAULTS),
+       tight=hs.sampled_from([{}, {"band": 3.0, "hold_grace": 20.0}, {"overshoot": 1.0}]))
+def test_arrays_decide_as_the_engine_on_random_profiles(tmp_path_factory, trial, fault,  # noqa: ANN001
+                                                        tight: dict) -> None:
+    trial.steps = [dict(s, start="reached") if "hold" in s else s for s in trial.steps
+                   if "pause" not in s]
+    if not trial.steps:
+        return
+    log = RunLog(Path(tmp_path_factory.mktemp("random")) / "runs.sqlite")
+    try:
+        run_id = record(log, trial.toml(), fault, seed=trial.seed, limit_s=8000.0)
+        profile = parse_profile(trial.toml(), "trial.toml")
+        _assert_same(*_both(log, run_id, Limits().merged(profile.limits).merged(tight)))
+    finally:
+        log.close()
