@@ -119,24 +119,12 @@ def test_width_is_read_like_the_thickness() -> None:
     assert got == [(4, '"width": "wide" is not a width such as "4 mm" or "0.16 in"')]
 
 
-FOIL_RUN = """
-name = "foil packet"
-units = "C"
-[load]
-material = "AISI A2"
-thickness = "6 mm"
-width = "50 mm"
-wrap = "foil"
-[[step]]
-ramp = "max"
-to = 300
-[[step]]
-hold = "5m"
-start = "equalized"
-[[step]]
-cool = "free"
-to = 150
-"""
+def foil_run() -> str:
+    """The engine tests' short profile (heat, equalized hold, two cools) on a foil packet."""
+    from tests.test_engine_sim import SHORT
+
+    load = '[load]\nmaterial = "AISI A2"\nthickness = "6 mm"\nwidth = "50 mm"\nwrap = "foil"\n'
+    return SHORT.replace('units = "C"\n', 'units = "C"\n' + load, 1)
 
 
 async def test_a_foil_run_on_the_simulator_records_the_wrap(tmp_path: Path) -> None:
@@ -146,7 +134,7 @@ async def test_a_foil_run_on_the_simulator_records_the_wrap(tmp_path: Path) -> N
     from tests.test_engine_sim import simulate
 
     outcome, _, engine, _, log = await simulate(
-        tmp_path, FOIL_RUN,
+        tmp_path, foil_run(),
         faults='[device.load]\nwrap = "foil"\nthermocouple = false\n')
     assert outcome == "completed"
     info = log.runs()[-1]
@@ -156,5 +144,5 @@ async def test_a_foil_run_on_the_simulator_records_the_wrap(tmp_path: Path) -> N
     core, chamber = samples["core_c"], samples["chamber_c"]
     logged = core == core
     assert logged.sum() > 100
-    cooling = logged & (samples["step"] == 2) & (chamber < core)
+    cooling = logged & (samples["step"] >= 2) & (chamber < core)
     assert cooling.sum() > 10
