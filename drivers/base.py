@@ -10,7 +10,6 @@ import time
 from abc import ABC, abstractmethod
 from collections.abc import Mapping
 from dataclasses import dataclass, field
-from types import TracebackType
 from typing import Protocol
 
 
@@ -110,10 +109,5 @@ class Device(ABC):
         await self.connect()
         return self
 
-    async def __aexit__(
-        self,
-        exc_type: type[BaseException] | None,
-        exc: BaseException | None,
-        tb: TracebackType | None,
-    ) -> None:
-        await self.close()
+    async def __aexit__(self, *_exc_info: object) -> None:
+        await self.close()  # whatever happened inside, the port is let go

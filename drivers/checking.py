@@ -147,7 +147,3 @@ def check_table(
             problems.append(((*where, setting.key), message))
         values[setting.key] = value
     return values
-
-
-def keys_of(settings: Sequence[Setting]) -> tuple[str, ...]:
-    return tuple(s.key for s in settings)

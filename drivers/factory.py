@@ -20,6 +20,8 @@ timeout and reconnect_max, plus format, pattern, separator, pair_separator, head
 [device.channels] (see drivers/lines.py). The simulator's keys are its own
 (simulator/config.py), checked by its own checker.
 
+Every kind is a `DriverKind` in `DRIVERS` (`register_driver`; `table_driver` makes one from
+a tuple of `Setting`s): the one place a driver is added (docs/CONTRIBUTING.md).
 `check_device_settings` never raises; `open_device` raises SettingsError listing the same
 problems.
 """
@@ -28,18 +30,18 @@ from __future__ import annotations
 
 import math
 import re
-from collections.abc import Mapping
+from collections.abc import Callable, Mapping
+from dataclasses import dataclass
 from typing import Any
 
 from tuikiln.drivers.base import Device
-from tuikiln.drivers.checking import KeyPath, Problems, Setting, check_table, check_value, keys_of
+from tuikiln.drivers.checking import KeyPath, Problems, Setting, check_table, check_value
 from tuikiln.drivers.errors import SettingsError
 from tuikiln.drivers.guard import DEFAULT_MIN_INTERVAL_S
 from tuikiln.drivers.lines import DEFAULT_OPEN, FORMATS, ChannelSpec, LineSettings, LineThermometer
 from tuikiln.drivers.maps import MapError, RegisterMap, load_map
 from tuikiln.drivers.modbus import ModbusDevice, ModbusSettings, parse_tcp
 
-KINDS = ("sim", "modbus", "lines")
 STANDARD_BAUDS = (300, 600, 1200, 2400, 4800, 9600, 14400, 19200, 38400, 57600, 115200)
 PARITIES = ("N", "E", "O")
 THERMOCOUPLES = ("B", "E", "J", "K", "N", "R", "S", "T")
@@ -85,8 +87,6 @@ CHANNEL: tuple[Setting, ...] = (
     Setting("field"), Setting("unit"), Setting("thermocouple"), Setting("cold_junction"),
     Setting("cold_junction_field"), Setting("cold_junction_unit"), Setting("open"),
 )
-SERIAL_KEYS, MODBUS_KEYS, LINES_KEYS, CHANNEL_KEYS = (
-    keys_of(SERIAL), keys_of(MODBUS), keys_of(LINES), keys_of(CHANNEL))
 
 
 class DeviceSettingsError(SettingsError):
@@ -247,11 +247,106 @@ def _check_lines(device: Mapping[str, Any]) -> tuple[LineSettings | None, float,
     return settings, poll, []
 
 
+@dataclass(frozen=True)
+class DriverKind:
+    """One `kind` of [device]: how its table is checked and how its device is built."""
+
+    kind: str
+    check: Callable[[Mapping[str, Any], str], Problems]
+    """(the [device] table, the kiln file's folder) -> problems; never raises."""
+    open: Callable[[Mapping[str, Any], str, float | None], Device]
+    """(table, folder, simulator speed) -> the device, not yet connected; raises
+    DeviceSettingsError with the problems `check` finds."""
+
+
+DRIVERS: dict[str, DriverKind] = {}
+"""kind -> DriverKind: every device the kiln file can name (the one place a driver is added)."""
+
+
+def register_driver(driver: DriverKind) -> DriverKind:
+    DRIVERS[driver.kind] = driver
+    return driver
+
+
+def forget_driver(kind: str) -> None:
+    """Unregister a driver (tests that register a toy one)."""
+    DRIVERS.pop(kind, None)
+
+
+def table_driver(kind: str, settings: tuple[Setting, ...],
+                 build: Callable[[dict[str, Any], str], Device]) -> DriverKind:
+    """A driver whose [device] keys are all declared: `build(values, folder)` makes it.
+
+    The device's `poll_s` is the table's `poll` when it declares one.
+    """
+    declared = (Setting("kind"), *settings)
+
+    def check(device: Mapping[str, Any], base_dir: str) -> Problems:
+        problems: Problems = []
+        check_table(device, declared, ("device",), problems)
+        return problems
+
+    def open_(device: Mapping[str, Any], base_dir: str, speed: float | None) -> Device:
+        problems: Problems = []
+        values = check_table(device, declared, ("device",), problems)
+        if problems:
+            raise DeviceSettingsError(problems)
+        built = build(values, base_dir)
+        if values.get("poll") is not None:
+            built.poll_s = values["poll"]
+        return built
+
+    return DriverKind(kind, check, open_)
+
+
+def _open_modbus(device: Mapping[str, Any], base_dir: str, speed: float | None) -> Device:
+    settings, register_map, poll, problems = _check_modbus(device, base_dir)
+    if problems or settings is None or register_map is None:
+        raise DeviceSettingsError(problems)
+    built = ModbusDevice(settings, register_map)
+    built.poll_s = poll
+    return built
+
+
+def _open_lines(device: Mapping[str, Any], base_dir: str, speed: float | None) -> Device:
+    line_settings, poll, problems = _check_lines(device)
+    if problems or line_settings is None:
+        raise DeviceSettingsError(problems)
+    built = LineThermometer(line_settings)
+    built.poll_s = poll
+    return built
+
+
+def _check_sim(device: Mapping[str, Any], base_dir: str) -> Problems:
+    from tuikiln.drivers.simdevice import check_sim_table
+
+    return check_sim_table(device)[1]
+
+
+def _open_sim(device: Mapping[str, Any], base_dir: str, speed: float | None) -> Device:
+    from tuikiln.drivers.simdevice import SimulatorDevice, check_sim_table
+
+    config, problems = check_sim_table(device)
+    if problems or config is None:
+        raise DeviceSettingsError(problems)
+    sim_speed = config.speed if speed is None else speed
+    if sim_speed is not None and (sim_speed <= 0 or math.isinf(sim_speed)):
+        sim_speed = None
+    built = SimulatorDevice.from_config(config, sim_speed)
+    built.poll_s = 1.0
+    return built
+
+
+register_driver(DriverKind("sim", _check_sim, _open_sim))
+register_driver(DriverKind("modbus", lambda d, b: _check_modbus(d, b)[3], _open_modbus))
+register_driver(DriverKind("lines", lambda d, b: _check_lines(d)[2], _open_lines))
+
+
 def _kind(device: Mapping[str, Any]) -> tuple[str | None, Problems]:
     kind = device.get("kind", "sim")
-    if kind in KINDS:
+    if isinstance(kind, str) and kind in DRIVERS:  # a list is unhashable
         return kind, []
-    _, message = check_value(Setting("kind", "choice", choices=KINDS), kind)
+    _, message = check_value(Setting("kind", "choice", choices=tuple(DRIVERS)), kind)
     return None, [(("device", "kind"), str(message))]
 
 
@@ -262,14 +357,8 @@ def check_device_settings(table: Mapping[str, Any], base_dir: str) -> Problems:
         if not isinstance(device, Mapping):
             return [(("device",), "[device] must be a table")]
         kind, problems = _kind(device)
-        if kind == "modbus":
-            problems += _check_modbus(device, base_dir)[3]
-        elif kind == "lines":
-            problems += _check_lines(device)[2]
-        elif kind == "sim":
-            from tuikiln.drivers.simdevice import check_sim_table
-
-            problems += check_sim_table(device)[1]
+        if kind is not None:
+            problems += DRIVERS[kind].check(device, base_dir)
         return problems
     except Exception as exc:  # noqa: BLE001 - a checker bug must not become a traceback
         return [(("device",), f"could not check the device settings ({exc})")]
@@ -284,29 +373,6 @@ def open_device(table: Mapping[str, Any], base_dir: str, *, speed: float | None 
     """
     device = _device_table(table) if table else {}
     kind, problems = _kind(device)
-    if problems:
+    if problems or kind is None:
         raise DeviceSettingsError(problems)
-    built: Device
-    if kind == "modbus":
-        settings, register_map, poll, problems = _check_modbus(device, base_dir)
-        if problems or settings is None or register_map is None:
-            raise DeviceSettingsError(problems)
-        built = ModbusDevice(settings, register_map)
-    elif kind == "lines":
-        line_settings, poll, problems = _check_lines(device)
-        if problems or line_settings is None:
-            raise DeviceSettingsError(problems)
-        built = LineThermometer(line_settings)
-    else:
-        from tuikiln.drivers.simdevice import SimulatorDevice, check_sim_table
-
-        config, problems = check_sim_table(device)
-        if problems or config is None:
-            raise DeviceSettingsError(problems)
-        sim_speed = config.speed if speed is None else speed
-        if sim_speed is not None and (sim_speed <= 0 or math.isinf(sim_speed)):
-            sim_speed = None
-        built = SimulatorDevice.from_config(config, sim_speed)
-        poll = 1.0
-    built.poll_s = poll
-    return built
+    return DRIVERS[kind].open(device, base_dir, speed)

@@ -9,7 +9,7 @@ array of the same shape, vectorised). Values outside the range NIST defines rais
 `OutOfRange`, whose message names the range in plain words; an unknown letter raises
 `UnknownType`. The inverse polynomials cover less than the reference functions for some
 types (K, E, N, T from -200 °C, B from 250 °C) and agree with them only to within the error
-NIST states for each piece (a few hundredths of a degree; see `inverse_error_c`).
+NIST states for each piece (a few hundredths of a degree: `error_c` of `inverse_pieces`).
 
 Coefficients live in drivers/its90_coefficients.py.
 """
@@ -163,12 +163,6 @@ def inverse_pieces(tc_type: str) -> tuple[InversePiece, ...]:
     return INVERSE[normal_type(tc_type)]
 
 
-def inverse_error_c(tc_type: str, temperature: float) -> tuple[float, float]:
-    """The error NIST states for the inverse piece that covers `temperature` (°C, low/high)."""
-    for piece in inverse_pieces(tc_type):
-        if temperature <= piece.t_max_c:
-            return piece.error_c
-    return inverse_pieces(tc_type)[-1].error_c
 
 
 def _g(value: float) -> str:

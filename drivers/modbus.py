@@ -106,7 +106,6 @@ class ModbusDevice(Device):
         self._run_on_written = False
         self.requests = 0
         self.garbled = 0
-        self.no_answer = 0
         self.reconnects = 0
 
     # ---- connection --------------------------------------------------------------
@@ -219,7 +218,6 @@ class ModbusDevice(Device):
                 self.garbled += 1
                 raise BadReply(f"damaged reply from the controller while {what}",
                                hint=GARBLED_HINT) from exc
-            self.no_answer += 1
             raise NoAnswer(
                 f"no answer from Modbus device {self.settings.address} on "
                 f"{self.settings.port} while {what}", hint=NO_ANSWER_HINT) from exc

@@ -93,7 +93,7 @@ import difflib
 import math
 import re
 from collections.abc import Mapping
-from dataclasses import dataclass, field, fields, replace
+from dataclasses import dataclass, field, replace
 from typing import Any
 
 WRAPS = ("none", "foil")
@@ -261,11 +261,16 @@ def _number_or_text(text: str) -> object:
         return text
 
 
+def suggest(word: str, choices: tuple[str, ...] | list[str], cutoff: float = 0.5) -> str:
+    """' (did you mean "door-open"?)' or ''. The simulator imports nothing of ours, so it
+    keeps this copy of tuikiln.drivers.checking.suggest (looser: its words are longer)."""
+    close = difflib.get_close_matches(word, list(choices), n=1, cutoff=cutoff)
+    return f' (did you mean "{close[0]}"?)' if close else ""
+
+
 def _unknown(what: str, name: str, choices: tuple[str, ...] | list[str]) -> str:
-    close = difflib.get_close_matches(name, list(choices), n=1, cutoff=0.5)
-    hint = f' (did you mean "{close[0]}"?)' if close else ""
-    if not close:
-        hint = " (choose one of " + ", ".join(f'"{c}"' for c in choices) + ")"
+    hint = suggest(name, choices) or (
+        " (choose one of " + ", ".join(f'"{c}"' for c in choices) + ")")
     return f'unknown {what} "{name}"{hint}'
 
 
@@ -558,8 +563,3 @@ def _check_faults(
         if ok and kind is not None and times["at"] is not None:
             faults.append(Fault(kind=str(kind), at_s=times["at"], for_s=times["for"], **extra))
     return tuple(faults)
-
-
-def field_names(cls: type) -> list[str]:
-    """Names of a settings dataclass's fields (for documentation and tests)."""
-    return [f.name for f in fields(cls)]

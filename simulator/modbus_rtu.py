@@ -17,7 +17,6 @@ time the bytes would take on a real line at the configured baud rate.
 from __future__ import annotations
 
 import random
-from collections.abc import Callable
 
 from tuikiln.simulator.kiln import RegisterError, SimulatedKiln
 from tuikiln.simulator.layouts import COILS, DISCRETE, HOLDING, INPUT, Layout
@@ -213,5 +212,3 @@ class RtuResponder:
 def _exception(function: int, code: int) -> bytes:
     return bytes([function | 0x80, code])
 
-
-Writer = Callable[[bytes], None]

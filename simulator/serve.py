@@ -9,7 +9,6 @@ from __future__ import annotations
 
 import argparse
 import asyncio
-import difflib
 import os
 import signal
 import sys
@@ -19,7 +18,7 @@ import tty
 from dataclasses import replace
 from pathlib import Path
 
-from tuikiln.simulator.config import SimConfig, check_sim_settings, parse_fault
+from tuikiln.simulator.config import SimConfig, check_sim_settings, parse_fault, suggest
 from tuikiln.simulator.kiln import SimulatedKiln
 from tuikiln.simulator.layouts import LAYOUTS
 from tuikiln.simulator.modbus_rtu import RtuResponder
@@ -304,8 +303,7 @@ def main(args: argparse.Namespace, prog: str = "sim") -> int:
     layout = getattr(args, "layout", "sim") or "sim"
     try:
         if layout not in LAYOUTS:
-            close = difflib.get_close_matches(layout, list(LAYOUTS), n=1)
-            maybe = f' (did you mean "{close[0]}"?)' if close else ""
+            maybe = suggest(layout, list(LAYOUTS), cutoff=0.6)
             raise ServeError(f'--layout "{layout}" is not known{maybe}; '
                              f"choose one of {', '.join(LAYOUTS)}")
         config = load_config(args)

@@ -6,8 +6,8 @@ database; recovery (tuikiln/engine/recovery.py) ends a run whose end is marked, 
 modules' docstrings); no published source applies.
 
 The real case: the run log on a tiny tmpfs filled to the last byte (root only; skipped with
-the reason otherwise). The same path without root: a temporary SQLite trigger that fails the
-run's end as a full disk does (SQLite's own error words), as tests/test_runlog.py does.
+the reason otherwise). The same path without root: an SQLite trigger that fails the run's end as
+a full disk does (SQLite's own error words), as tests/test_runlog.py does.
 """
 
 from __future__ import annotations
@@ -111,7 +111,15 @@ async def test_a_crash_leaves_a_mark_without_an_end_that_changes_nothing(tmp_pat
     recorder.close()
 
 
-async def test_an_end_the_database_refused_is_kept_and_the_restart_does_not_heat(tmp_path):
+@pytest.fixture
+def short_close(monkeypatch):
+    """The end of a run waits for a refusing log (runlog.CLOSE_WAIT_S, 60 s) before it
+    spills; these tests need not wait that long."""
+    monkeypatch.setattr("tuikiln.runlog.CLOSE_WAIT_S", 1.0)
+
+
+async def test_an_end_the_database_refused_is_kept_and_the_restart_does_not_heat(
+        tmp_path, short_close):
     clock = ManualClock(1_000_000.0)
     model = FirstOrderOven(tau_s=300.0)
     log = RunLog.in_folder(tmp_path)
@@ -119,10 +127,9 @@ async def test_an_end_the_database_refused_is_kept_and_the_restart_does_not_heat
     def fail_the_end(sink: Sink) -> bool:
         if not in_hold(sink):
             return False
-        # SQLite's own words for a full disk, on the engine's own connection.
-        sink.engine.recorder.conn.execute(
-            "CREATE TEMP TRIGGER full BEFORE UPDATE OF outcome ON runs "
-            "BEGIN SELECT RAISE(FAIL, 'database or disk is full'); END")
+        # SQLite's own words for a full disk, for every connection to the file.
+        log._conn.execute("CREATE TRIGGER full BEFORE UPDATE OF outcome ON runs "
+                          "BEGIN SELECT RAISE(FAIL, 'database or disk is full'); END")
         return True
 
     sink = AbortWhen(fail_the_end)
@@ -130,6 +137,7 @@ async def test_an_end_the_database_refused_is_kept_and_the_restart_does_not_heat
     assert await engine.run() == st.ABORTED
     assert log.run(engine.run_id).outcome is None  # the database did not take the end
     assert log.end_mark(engine.run_id)["outcome"] == st.ABORTED
+    log._conn.execute("DROP TRIGGER full")  # room again
     await restart_and_check(log, model, clock, engine.run_id)
 
 
@@ -160,7 +168,8 @@ def fill_to_the_last_byte(folder) -> None:
         os.close(fd)
 
 
-async def test_an_abort_on_a_really_full_disk_does_not_heat_again_on_restart(tiny_disk):
+async def test_an_abort_on_a_really_full_disk_does_not_heat_again_on_restart(tiny_disk,
+                                                                             short_close):
     clock = ManualClock(1_000_000.0)
     model = FirstOrderOven(tau_s=300.0)
     log = RunLog.in_folder(tiny_disk)

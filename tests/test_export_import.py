@@ -37,4 +37,4 @@ def test_bad_report_suffix_and_unwritable_export(tmp_path: Path, data_folder: Pa
     assert main(["--data", data, "export", "1", "--csv", "-o",
                  str(tmp_path / "missing" / "x.csv")]) == 1
     err = capsys.readouterr().err
-    assert "HTML or Markdown" in err and "cannot write" in err
+    assert "HTML, Markdown or text" in err and "cannot write" in err

@@ -48,6 +48,7 @@ LAYERS: dict[str, tuple[str, ...]] = {
     "core": (
         "tuikiln.profile", "tuikiln.plan", "tuikiln.coremodel", "tuikiln.equalize",
         "tuikiln.engine.stepper", "tuikiln.engine.alarms", "tuikiln.engine.rules",
+        "tuikiln.engine.stepper_arrays", "tuikiln.engine.alarm_arrays",
         "tuikiln.engine.status", "tuikiln.engine.checks",
         "tuikiln.analysis.csvlog", "tuikiln.analysis.csvsniff", "tuikiln.analysis.quench",
         "tuikiln.analysis.replay", "tuikiln.analysis.temper", "tuikiln.analysis.whatif",
@@ -62,8 +63,8 @@ LAYERS: dict[str, tuple[str, ...]] = {
     ),
     # The files the program keeps: the run log, the control socket, the one loader from a
     # log to a replay, learned oven models, its own log of messages.
-    "record": ("tuikiln.runlog", "tuikiln.control", "tuikiln.analysis.loading",
-               "tuikiln.ovenmodel_store", "tuikiln.logsetup"),
+    "record": ("tuikiln.runlog", "tuikiln.logqueue", "tuikiln.control",
+               "tuikiln.analysis.loading", "tuikiln.ovenmodel_store", "tuikiln.logsetup"),
     # The engine's host: the async loop, restart recovery, the safe state.
     "host": ("tuikiln.engine.runner", "tuikiln.engine.recovery", "tuikiln.engine.safety"),
     # Screens and what feeds them.

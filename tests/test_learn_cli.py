@@ -155,3 +155,10 @@ def test_fahrenheit_csv_keeps_the_output_as_percent(tmp_path: Path, data: Path,
     fahrenheit = _json(data, capsys, "learn", str(csv), "--json")["model"]
     assert fahrenheit["holding_output_pct"] == pytest.approx(celsius["holding_output_pct"],
                                                              rel=0.03)
+
+
+def test_help_is_printed(capsys: pytest.CaptureFixture[str]) -> None:
+    with pytest.raises(SystemExit) as done:
+        main(["learn", "--help"])
+    assert done.value.code == 0
+    assert "--output-column" in capsys.readouterr().out

@@ -20,6 +20,8 @@ from tuikiln.cli import main
 from tuikiln.runlog import RUNLOG_NAME, RunLog
 from tuikiln.simulator import OvenConfig
 
+ROOT_PROFILES = Path(__file__).resolve().parent.parent / "profiles"
+
 # Hardening then tempering, with a rate the big oven cannot follow at the top (900 °C/h
 # above ~520 °C): the issue's "done when" profile.
 HARDEN = """
@@ -245,3 +247,13 @@ def test_the_live_eta_uses_the_model(big: Oven) -> None:
         print(index, f"actual {actual:.0f} s, model {with_model} s, plain {plain} s")
         assert with_model == pytest.approx(actual, rel=0.10)
         assert plain is None or plain < 0.8 * actual  # None: "cannot be told"
+
+
+def test_the_temper_warning_sees_through_a_load_pause(big: Oven,
+                                                      capsys: pytest.CaptureFixture[str]) -> None:
+    # The shipped A2 profile takes the parts out at the quench and asks for them back once
+    # the oven is at the temper: they wait out of the oven while it cools from 1750 °F.
+    planned = big.plan((ROOT_PROFILES / "a2-harden-temper.toml").read_text(), capsys)
+    temper = [w for w in planned["warnings"] if "waits for the oven to cool" in w["text"]]
+    assert [w["step"] for w in temper] == [7], planned["warnings"]
+    assert "from 1750 °F" in temper[0]["text"]

@@ -247,9 +247,9 @@ async def test_end_drives_safe_and_ends_the_run(tmp_path):
     log, model, clock, first = await crashed_run(tmp_path, HOLD, in_hold_for(60.0))
     outcome, engine, device, sink, _ = await resume_run(tmp_path, log, model, clock, HOLD,
                                                         "end", now_shift=30.0)
-    assert outcome == recovery.ENDED_AFTER_RESTART
+    assert outcome == st.ENDED_AFTER_RESTART
     assert device.stop_calls and not device.setpoint_writes
-    assert log.run(first.run_id).outcome == recovery.ENDED_AFTER_RESTART
+    assert log.run(first.run_id).outcome == st.ENDED_AFTER_RESTART
     assert recovery.find_unfinished(log, "Test oven") is None
 
 

@@ -126,3 +126,34 @@ def test_bad_option_is_refused(capsys) -> None:  # noqa: ANN001
         main(["review", "--glyphs", "fancy"])
     assert exit_info.value.code == 1
     assert "--glyphs" in capsys.readouterr().err
+
+
+async def test_alarm_banner_on_the_linux_console_keeps_to_its_font() -> None:
+    from textual.app import ComposeResult
+    from textual.screen import Screen
+
+    from tests.test_ui_fakes import screen_text
+    from tuikiln.ui.app import TuikilnApp
+    from tuikiln.ui.widgets.alarm_banner import AlarmBanner
+
+    class BannerScreen(Screen[None]):
+        def compose(self) -> ComposeResult:
+            yield AlarmBanner()
+
+    alarms = [{"code": "too-hot", "severity": "critical", "words": "chamber 1530 °F",
+               "acknowledged": False},
+              {"code": "hold-slipped", "severity": "warning", "words": "out of band",
+               "acknowledged": True}]
+    for glyphs in (BRAILLE_GLYPHS, BLOCK_GLYPHS):
+        app = TuikilnApp(BannerScreen, units="F", glyphs=glyphs)
+        async with app.run_test(size=(80, 24)) as pilot:
+            banner = pilot.app.screen.query_one(AlarmBanner)
+            banner.units = "F"
+            banner.alarms = alarms
+            await pilot.pause(0.05)
+            text = screen_text(pilot.app.screen)
+        assert "CRITICAL ALARM: chamber 1530 °F" in text and "WARNING ALARM" in text
+        if glyphs is BLOCK_GLYPHS:
+            text.encode("cp437")  # code page 437: the Linux console's font (from memory)
+        else:
+            assert "✖ CRITICAL" in text

@@ -191,6 +191,8 @@ def test_every_screen_keys_at_80x24(tmux: Tmux, tmp_path: Path, term: str) -> No
     if term:
         console_font_has(screen)
     tmux("send-keys", "-t", "demo", "n")
+    # A key sent while the question is still closing would go to it, not to the preview.
+    wait_until(lambda: "[n] no, go back" not in tmux.screen(), 15, "the question to close")
     footer_has(PreviewScreen)
     # q rather than Escape: an Escape followed at once by Tab reads as Alt+Tab.
     tmux("send-keys", "-t", "demo", "q")

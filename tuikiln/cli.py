@@ -1,8 +1,9 @@
 """The `tuikiln` command line.
 
 Each command lives in its own module under `tuikiln.commands`; that module has
-`HELP` (one line), `add_arguments(parser)` and `run(args) -> int`. Modules are
-imported only when their command runs, so `tuikiln check` never loads Textual.
+`add_arguments(parser)` and `run(args) -> int`, and its one line of help is in
+COMMAND_HELP here. Modules are imported only when their command runs, so `tuikiln check`
+never loads Textual (and `tuikiln --help` loads none of them).
 """
 
 from __future__ import annotations
@@ -51,7 +52,7 @@ COMMANDS: dict[str, str] = {
 # Commands that draw a screen: Textual draws on the standard error, so their log goes to a file.
 SCREEN_COMMANDS = frozenset({"demo", "home", "watch", "review"})
 
-# Shown in `tuikiln --help`; the modules' HELP lines are read lazily.
+# Shown in `tuikiln --help` and each command's own --help; here, so no module is imported.
 COMMAND_HELP: dict[str, str] = {
     "demo": "watch a whole harden-and-temper cycle on the built-in simulator, sped up",
     "home": "the home screen: kiln, profiles and recent runs; start, watch or replay a run",
@@ -75,7 +76,7 @@ COMMAND_HELP: dict[str, str] = {
     "runs": "list the logged runs (--json)",
     "export": "write a logged run's samples as CSV",
     "replay": "hold a logged run against its profile: verdict per step, alarms, what-if",
-    "report": "write a run's report as HTML (with its chart) or Markdown (.md)",
+    "report": "write a run's report: HTML (with its chart), Markdown (.md) or text (.txt)",
     "import": "replay another tool's CSV temperature log against a profile",
     "service": "print a systemd unit that resumes unfinished runs at boot and after a crash",
     "completion": "print a shell completion script (bash or zsh) for tuikiln's commands",

@@ -135,18 +135,6 @@ class SlopeWindow:
             return None
         return self._y_ref + self._sy / self._w
 
-    def mean_time(self) -> float | None:
-        if not self._samples:
-            return None
-        return self._t_ref + self._sx / self._w
-
-    def intercept_at(self, t: float) -> float | None:
-        """The fitted line's value at time t."""
-        slope = self.slope()
-        if slope is None:
-            return None
-        return self.mean() + slope * (t - self.mean_time())  # type: ignore[operator]
-
     def noise_sd(self) -> float:
         """Sample-to-sample noise from successive differences (von Neumann): a trend of a
         few degrees per minute hardly touches it, unlike the residual of the line."""
@@ -155,8 +143,3 @@ class SlopeWindow:
             return 0.0
         return math.sqrt(max(0.0, self._diff2) / (2.0 * (n - 1)))
 
-    def newest(self) -> tuple[float, float] | None:
-        if not self._samples:
-            return None
-        t, y, _, _ = self._samples[-1]
-        return t, y

@@ -30,6 +30,7 @@ SAFE_STATE = "safe-state"                # the device was driven safe; detail: r
 GAP = "gap"                              # the engine was away; detail: seconds, before_c, after_c
 DEVICE = "device"                        # link lost/back, device rebooted; detail: words
 ALERT_FAILED = "alert-failed"            # a hook or publisher failed; detail: channel, words
+LOG_QUEUE = "log-queue"                  # samples wait for the run log; detail: queued, bound
 
 SEVERITIES = ("info", "warning", "critical")
 

@@ -14,13 +14,14 @@ from typing import Any
 
 import platformdirs
 
-from tuikiln.drivers.checking import Problems, Setting, check_table, keys_of
+from tuikiln.drivers.checking import Problems, Setting, check_table
+from tuikiln.engine.states import RestartPolicy
 from tuikiln.errors import FileProblems, Problem
 from tuikiln.limits import parse_limits
 from tuikiln.tomllines import LineMap, load_toml, read_text
 from tuikiln.units import UNITS, Units, finite, to_c
 
-RESTART_POLICIES = ("continue", "hold", "end")
+RESTART_POLICIES = tuple(RestartPolicy)
 SIMULATOR_MAX_C = 1200.0
 # The kiln file's top-level keys (tuikiln.drivers.checking checks them). `max` needs code:
 # its units, and whether a real device makes it required; the tables have their checkers.
@@ -33,10 +34,9 @@ KILN: tuple[Setting, ...] = (
     Setting("alarms", "any", {}),
     Setting("mqtt"),
     Setting("hook"),
-    Setting("on_restart", "choice", "hold", choices=RESTART_POLICIES),
+    Setting("on_restart", "choice", RestartPolicy.HOLD, choices=RESTART_POLICIES),
     Setting("bell", "flag", True),
 )
-KILN_KEYS = keys_of(KILN)
 
 
 @dataclass(frozen=True)
@@ -51,7 +51,7 @@ class Kiln:
     mqtt: Any = None
     """tuikiln.alerts MqttSettings, or None when there is no [mqtt] table."""
     hooks: tuple[Any, ...] = ()
-    on_restart: str = "hold"
+    on_restart: RestartPolicy = RestartPolicy.HOLD
     """After a crash or power cut: continue the run, hold safe for a person, or end it."""
     bell: bool = True
     path: str | None = None
@@ -151,7 +151,7 @@ def parse_kiln(text: str, file: str = "<kiln>") -> Kiln:
         alarms=alarms,
         mqtt=mqtt,
         hooks=tuple(hooks),
-        on_restart=on_restart,
+        on_restart=RestartPolicy(on_restart),
         bell=bell,
         path=file,
         base_dir=base_dir,

@@ -216,9 +216,9 @@ def temper_warnings(plan: Plan, model: OvenModel | None,
             continue
         if not any(isinstance(s.step, Hold) for s in steps[:p]):
             continue
+        # A pause between ("the oven is at the temper temperature: put the parts in") does
+        # not end the wait: the parts wait out of the oven instead of in it.
         for h in range(p + 1, len(steps)):
-            if isinstance(steps[h].step, Pause):
-                break
             if not isinstance(steps[h].step, Hold):
                 continue
             temper_c = steps[h].from_c
@@ -226,9 +226,9 @@ def temper_warnings(plan: Plan, model: OvenModel | None,
                 break
             words = (f"the temper at {format_temp(temper_c, u)} waits for the oven to cool "
                      f"from {format_temp(planned.from_c, u)} after the quench")
-            advice = ("; parts left untempered that long risk cracking: temper promptly once "
-                      "they are hand-warm (common practice), e.g. in a second oven, or cool "
-                      "this one first")
+            advice = ("; parts waiting untempered that long risk cracking: temper promptly "
+                      "once they are hand-warm (common practice), for instance in a second "
+                      "oven already at the temper temperature")
             if model is None or predicted is None:
                 found.append(PlanWarning(h, words + " (how long is unknown without an oven "
                                          "model: `tuikiln learn`)" + advice))

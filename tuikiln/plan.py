@@ -102,11 +102,4 @@ def plan_profile(profile: Profile, start_c: float = ROOM_C) -> Plan:
     return Plan(profile, start_c, tuple(steps), np.array(times), np.array(temps))
 
 
-def remaining_s(plan: Plan, step_index: int, elapsed_in_step_s: float) -> float:
-    """Planned time left from `elapsed_in_step_s` into step `step_index` to the end."""
-    if step_index >= len(plan.steps):
-        return 0.0
-    current = plan.steps[step_index]
-    left = max(0.0, current.duration_s - elapsed_in_step_s)
-    return left + sum(s.duration_s for s in plan.steps[step_index + 1 :])
 

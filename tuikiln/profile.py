@@ -184,7 +184,7 @@ class _Checker:
             about = ""
         load = self.load(data.get("load", {}))
         limits = parse_limits(data.get("limits", {}), self.units, self.report, ("limits",))
-        steps = self.steps(data.get("step"), start_c, limits.get("band"))
+        steps = self.steps(data.get("step"), start_c)
         if units is None or self.problems:
             return None
         return Profile(
@@ -238,7 +238,7 @@ class _Checker:
         return Load(material, thickness_m, pieces, thickness if thickness_m else None,
                     width_m, width if width_m else None, wrap)
 
-    def steps(self, raw: Any, start_c: float, profile_band: float | None) -> list[Step]:
+    def steps(self, raw: Any, start_c: float) -> list[Step]:
         if raw is None or raw == []:
             self.report((), "the profile has no steps: add at least one [[step]] table")
             return []

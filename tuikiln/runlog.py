@@ -54,6 +54,7 @@ import contextlib
 import json
 import os
 import sqlite3
+import threading
 import time
 from collections.abc import Callable, Mapping
 from dataclasses import dataclass
@@ -62,8 +63,10 @@ from typing import Any
 
 import numpy as np
 
+from tuikiln.engine.states import Outcome, RunState
 from tuikiln.errors import UserError
 from tuikiln.events import Event
+from tuikiln.logqueue import BackgroundWriter, SpillFile
 from tuikiln.plaintext import plain, plain_tree
 
 RUNLOG_NAME = "runs.sqlite"
@@ -87,6 +90,11 @@ _BLOCK_TYPES: tuple[tuple[str, str], ...] = (
     ("flags", "<i4"),
 )
 MARK_BYTES = 512  # an end mark's fixed size: written at the start, overwritten in place
+MEMORY_QUEUE_ROWS = 100_000  # about 28 h at 1 s (some 30 MB) queued in memory, then spilled
+QUEUE_WARN_FRACTION = 0.8  # the engine warns when the memory queue is this full
+BACKGROUND_RETRY_S = 1.0  # the writer thread retries a locked or full log this often
+FLUSH_WAIT_S = 15.0  # flush() waits this long for the writer thread
+CLOSE_WAIT_S = 60.0  # the end of a run waits this long for a locked or full log, then spills
 MAX_KEPT_SAMPLES = 5_000_000  # a week at 1 s is 604,800: this is the memory cap while failing
 
 _SCHEMA = """
@@ -218,8 +226,8 @@ class RunInfo:
         if self.outcome:
             return self.outcome
         if self.pid and pid_alive(self.pid):
-            return "running"
-        return "unfinished"
+            return RunState.RUNNING
+        return Outcome.UNFINISHED
 
     def summary(self) -> dict[str, Any]:
         return {"id": self.id, "kiln": self.kiln, "profile": self.profile,
@@ -380,14 +388,6 @@ class RunLog:
         data["t"] = row[0]
         return data
 
-    def unfinished_runs(self, kiln: str | None = None) -> list[RunInfo]:
-        """Runs with no end whose engine process is dead (killed, power cut), newest last."""
-        where = "outcome IS NULL" + (" AND kiln = ?" if kiln is not None else "")
-        params = (kiln,) if kiln is not None else ()
-        rows = self._conn.execute(f"SELECT {_RUN_FIELDS} FROM runs WHERE {where} ORDER BY id",
-                                  params).fetchall()
-        return [info for info in map(_run_info, rows) if info.status == "unfinished"]
-
     def end_mark(self, run_id: int) -> dict[str, Any] | None:
         """The end a run's engine wrote to its end mark when the database could not take it
         ({"outcome", "ended"}), or None (no mark, or a mark with no end in it)."""
@@ -427,6 +427,7 @@ class RunLog:
              json.dumps(dict(load)) if load is not None else None, units, device, speed,
              int(watch_only), started, time.time(), os.getpid()))
         run_id = int(cursor.lastrowid or 0)
+        self._take_in_spills(conn)
         recorder = RunRecorder(conn, run_id, batch=batch, path=self.path)
         if recorder.mark is not None:
             recorder.mark.reserve()
@@ -436,10 +437,24 @@ class RunLog:
         """A writer that appends to an unfinished run (after a crash or power cut)."""
         conn = _connect(self.path, writer=True)
         conn.execute("UPDATE runs SET pid = ? WHERE id = ?", (os.getpid(), run_id))
+        self._take_in_spills(conn)  # older than anything this engine will write
         recorder = RunRecorder(conn, run_id, batch=batch, path=self.path)
         if recorder.mark is not None:
             recorder.mark.reserve()  # keeps an end already in it (see EndMark.reserve)
         return recorder
+
+    def _take_in_spills(self, conn: sqlite3.Connection) -> None:
+        """Samples an earlier engine left in spill files (the log was locked or full when
+        its run ended) are written now, before anything new."""
+        for path in sorted(self.path.parent.glob(f"{self.path.name}.run-*.spill")):
+            try:
+                run_id = int(path.name.rsplit(".run-", 1)[1].split(".")[0])
+            except ValueError:
+                continue
+            late = RunRecorder(conn, run_id)
+            late.spill = SpillFile(self.path, run_id)
+            with contextlib.suppress(sqlite3.Error):
+                late._write_spill_back()
 
 
 _RUN_FIELDS = ("id, kiln, profile, started, ended, outcome, units, device, speed, watch_only,"
@@ -596,7 +611,12 @@ class _WalCheckpointer:
 
 
 class RunRecorder:
-    """Buffered writer for one run. Never raises from `sample`, `event` or `flush`."""
+    """Buffered writer for one run. Never raises from `sample`, `event` or `flush`.
+
+    Two ways to write: in the caller's thread (`flush` does the SQL; tools and tests), or,
+    after `write_in_background()` (the engine), from a thread of its own
+    (tuikiln/logqueue.py): then `sample`, `event` and `maybe_flush` only queue rows and wake
+    the thread, so a locked database or a slow disk never holds up the engine's loop."""
 
     def __init__(self, conn: sqlite3.Connection, run_id: int, *, batch: int = 250,
                  every_s: float = 1.0, path: Path | None = None) -> None:
@@ -609,11 +629,14 @@ class RunRecorder:
         self.run_id = run_id
         self.batch = batch
         self.every_s = every_s
+        self._lock = threading.Lock()
+        """Guards the queues below: the loop appends, the writer thread takes."""
         self._samples: list[tuple[Any, ...]] = []
         self._block: list[tuple[Any, ...]] = []
         """Rows of the last, still growing block (already written)."""
         self._block_id: int | None = None
         self._events: list[tuple[Any, ...]] = []
+        self._end_request: tuple[str, float] | None = None
         self._last_flush = time.monotonic()
         self._retry_at = 0.0
         self.trouble: str | None = None
@@ -624,109 +647,207 @@ class RunRecorder:
         self.end_marked = False
         """The run's end reached the end mark (EndMark.write) when the run ended."""
         self.dropped = 0
+        self.queue_bound = MEMORY_QUEUE_ROWS
+        """Samples kept in memory while the log cannot be written; beyond, they spill."""
+        self.queued_peak = 0
+        self.spilled = 0
+        """Samples that went to the spill file (all written back later, in order)."""
         self._closed = False
         self.mark = EndMark(path, run_id) if path is not None else None
         """The run's end mark (see EndMark): reserved by RunLog when the run starts."""
+        self.spill = SpillFile(path, run_id) if path is not None else None
+        self._writer: BackgroundWriter | None = None
+
+    def write_in_background(self) -> None:
+        """From now on the SQL runs in a thread of its own (see the class docstring)."""
+        if self._writer is None:
+            self._writer = BackgroundWriter(self._write_turn, f"run-log-{self.run_id}",
+                                            retry_s=BACKGROUND_RETRY_S)
 
     def sample(self, t: float, chamber_c: float | None, load_c: float | None,
                core_c: float | None, setpoint_c: float | None, output_pct: float | None,
                step: int, state: int, flags: int) -> None:
         # x == x is False only for NaN, which SQLite would store as NULL anyway; kept explicit.
-        self._samples.append((
-            self.run_id, t,
-            chamber_c if chamber_c == chamber_c else None,
-            load_c if load_c == load_c else None,
-            core_c if core_c == core_c else None,
-            setpoint_c if setpoint_c == setpoint_c else None,
-            output_pct if output_pct == output_pct else None,
-            step, state, flags))
-        if len(self._samples) >= self.batch:
-            self.flush()
-        elif len(self._samples) & 63 == 0:
+        row = (self.run_id, t,
+               chamber_c if chamber_c == chamber_c else None,
+               load_c if load_c == load_c else None,
+               core_c if core_c == core_c else None,
+               setpoint_c if setpoint_c == setpoint_c else None,
+               output_pct if output_pct == output_pct else None,
+               step, state, flags)
+        with self._lock:
+            self._samples.append(row)
+            queued = len(self._samples)
+        if queued > self.queued_peak:
+            self.queued_peak = queued
+        if queued >= self.batch:
+            if self._writer is not None:
+                if queued % self.batch == 0:  # not a wake per sample while the log is stuck
+                    self._writer.wake()
+            else:
+                self.flush()
+        elif queued & 63 == 0:
             self.maybe_flush()
 
     def event(self, event: Event, *, urgent: bool = False) -> None:
         # plain: one unencodable character in a message would fail every later commit.
-        self._events.append((self.run_id, event.time, event.kind, event.severity,
-                             plain(event.message, lines=True),
-                             json.dumps(plain_tree(dict(event.detail)), default=str)))
+        row = (self.run_id, event.time, event.kind, event.severity,
+               plain(event.message, lines=True),
+               json.dumps(plain_tree(dict(event.detail)), default=str))
+        with self._lock:
+            self._events.append(row)
         if urgent or event.severity == "critical":
-            self.flush()
+            if self._writer is not None:
+                self._writer.wake()
+            else:
+                self.flush()
 
     def resume_point(self, t: float, state: Mapping[str, Any]) -> None:
         """What a restarted engine needs to carry on (written with the next commit)."""
-        self._resume_point = (t, json.dumps(dict(state), default=str))
+        with self._lock:
+            self._resume_point = (t, json.dumps(dict(state), default=str))
 
     def maybe_flush(self) -> None:
         """Commit when `every_s` of wall time has passed since the last commit. The engine
         calls this every tick; a real-time run (one tick a second) commits every tick."""
-        if time.monotonic() - self._last_flush >= self.every_s:
+        if time.monotonic() - self._last_flush < self.every_s:
+            return
+        if self._writer is None:
             self.flush()
+            return
+        self._last_flush = time.monotonic()
+        self._take_resume_point()  # here, in the loop's thread: the rules are not shared
+        self._writer.wake()
+
+    def _take_resume_point(self) -> None:
+        if self.resume_source is not None:
+            t, state = self.resume_source()
+            self.resume_point(t, state)
 
     def flush(self, force: bool = False) -> bool:
-        """Write what is kept; False (and `trouble` set) when the write failed."""
-        if self._closed or (not self._samples and not self._events
-                            and self._resume_point is None):
-            self._last_flush = time.monotonic()
+        """Write what is kept; False (and `trouble` set) when the write failed. With the
+        writer thread running, waits for it (up to FLUSH_WAIT_S): call it off the loop."""
+        if self._closed:
             return True
-        start = time.monotonic()
-        if not force and self.trouble is not None and start < self._retry_at:
+        if self._writer is not None:
+            self._take_resume_point()
+            return self._writer.drain(FLUSH_WAIT_S)
+        if not force and self.trouble is not None and time.monotonic() < self._retry_at:
             return False
+        if self.resume_source is not None and (self._samples or self._events):
+            self._take_resume_point()
+        return self._write_turn()
+
+    def _write_turn(self) -> bool:
+        """One write of everything queued (the spill first, then memory, then the end);
+        True when nothing is left. Runs in the writer thread, or in the caller's."""
+        with self._lock:
+            samples, self._samples = self._samples, []
+            events, self._events = self._events, []
+            point, self._resume_point = self._resume_point, None
+            end = self._end_request
+        start = time.monotonic()
+        ok = True
         try:
-            self.conn.execute("BEGIN")
-            if self._samples:
-                self.conn.executemany(
-                    "INSERT INTO samples (run_id, t, chamber_c, load_c, core_c, setpoint_c,"
-                    " output_pct, step, state, flags) VALUES (?, ?, ?, ?, ?, ?, ?, ?, ?, ?)",
-                    self._samples)
-                block, block_id = self._write_blocks()
-            if self._events:
-                self.conn.executemany(
-                    "INSERT INTO events (run_id, t, kind, severity, message, detail)"
-                    " VALUES (?, ?, ?, ?, ?, ?)", self._events)
-            if self.resume_source is not None:
-                t, state = self.resume_source()
-                self._resume_point = (t, json.dumps(dict(state), default=str))
-            point = self._resume_point
-            if point is not None:
-                self.conn.execute("INSERT OR REPLACE INTO resume_points (run_id, t, data)"
-                                  " VALUES (?, ?, ?)", (self.run_id, *point))
-            self.conn.execute("COMMIT")
-            if point is self._resume_point:
-                self._resume_point = None
-            if self._samples:
-                self._block, self._block_id = block, block_id
+            self._write_spill_back()
+            if samples or events or point is not None:
+                self._commit(samples, events, point)
         except sqlite3.Error as exc:
-            try:
+            with contextlib.suppress(sqlite3.Error):
                 self.conn.execute("ROLLBACK")
-            except sqlite3.Error:
-                pass
-            self.trouble = f"{exc} ({len(self._samples)} samples kept in memory)"
+            with self._lock:
+                self._samples[:0] = samples
+                self._events[:0] = events
+                if self._resume_point is None:
+                    self._resume_point = point
+                kept = len(self._samples)
+            self._spill_over_bound()
+            spilled = f", {self.spilled} in {self.spill.path.name}" if (
+                self.spill is not None and self.spilled) else ""
+            self.trouble = f"{exc} ({kept} samples kept in memory{spilled})"
             self._retry_at = start + RETRY_AFTER_S
+            ok = False
+        else:
+            elapsed = time.monotonic() - start
+            self.longest_commit_s = max(self.longest_commit_s, elapsed)
+            self.samples_written += len(samples)
+            self.events_written += len(events)
+            self._rows_since_checkpoint += len(samples)
+            if (self._checkpointer is not None
+                    and self._rows_since_checkpoint >= CHECKPOINT_EVERY_ROWS):
+                self._rows_since_checkpoint = 0
+                self._checkpointer.nudge()
+            self.trouble = None
+        self._last_flush = time.monotonic()
+        if end is not None:  # tried even when the samples failed: the end matters most
+            ok = self._write_end(*end) and ok
+        return ok
+
+    def _commit(self, samples: list[tuple[Any, ...]], events: list[tuple[Any, ...]],
+                point: tuple[float, str] | None, spill_progress: str | None = None) -> None:
+        self.conn.execute("BEGIN")
+        if samples:
+            self.conn.executemany(
+                "INSERT INTO samples (run_id, t, chamber_c, load_c, core_c, setpoint_c,"
+                " output_pct, step, state, flags) VALUES (?, ?, ?, ?, ?, ?, ?, ?, ?, ?)",
+                samples)
+            block, block_id = self._write_blocks(samples)
+        if events:
+            self.conn.executemany(
+                "INSERT INTO events (run_id, t, kind, severity, message, detail)"
+                " VALUES (?, ?, ?, ?, ?, ?)", events)
+        if point is not None:
+            self.conn.execute("INSERT OR REPLACE INTO resume_points (run_id, t, data)"
+                              " VALUES (?, ?, ?)", (self.run_id, *point))
+        if spill_progress is not None and self.spill is not None:
+            self.conn.execute("INSERT OR REPLACE INTO meta VALUES (?, ?)",
+                              (self.spill.progress_key, spill_progress))
+        self.conn.execute("COMMIT")
+        if samples:
+            self._block, self._block_id = block, block_id
+
+    def _spill_over_bound(self) -> None:
+        """Past the memory bound, the oldest queued samples go to the spill file (older
+        than everything still in memory, so the order holds). If the disk refuses that too,
+        memory keeps them up to MAX_KEPT_SAMPLES, then the oldest are dropped (counted)."""
+        with self._lock:
+            over = len(self._samples) - self.queue_bound
+            if over <= 0:
+                return
+            cut = len(self._samples) - self.queue_bound // 2
+            oldest = self._samples[:cut]
+            del self._samples[:cut]
+        if self.spill is not None and self.spill.append(oldest):
+            self.spilled += len(oldest)
+            return
+        with self._lock:
+            self._samples[:0] = oldest
             if len(self._samples) > MAX_KEPT_SAMPLES:
                 # Keep the newest: the end of a run matters most when it went wrong.
-                cut = len(self._samples) - MAX_KEPT_SAMPLES
-                del self._samples[:cut]
-                self.dropped += cut
-            self._last_flush = time.monotonic()
-            return False
-        elapsed = time.monotonic() - start
-        self.longest_commit_s = max(self.longest_commit_s, elapsed)
-        self.samples_written += len(self._samples)
-        self.events_written += len(self._events)
-        self._rows_since_checkpoint += len(self._samples)
-        if self._checkpointer is not None and self._rows_since_checkpoint >= CHECKPOINT_EVERY_ROWS:
-            self._rows_since_checkpoint = 0
-            self._checkpointer.nudge()
-        self._samples.clear()
-        self._events.clear()
-        self.trouble = None
-        self._last_flush = time.monotonic()
-        return True
+                drop = len(self._samples) - MAX_KEPT_SAMPLES
+                del self._samples[:drop]
+                self.dropped += drop
 
-    def _write_blocks(self) -> tuple[list[tuple[Any, ...]], int | None]:
-        """Append the kept samples to the growing block; returns the new growing block."""
-        rows = self._block + self._samples
+    def _write_spill_back(self) -> None:
+        """Write the spill file's rows (oldest first), a chunk a transaction, each with how
+        far it got; then remove the file. Raises sqlite3.Error when the log still refuses."""
+        spill = self.spill
+        if spill is None or not spill.exists():
+            return
+        row = self.conn.execute("SELECT value FROM meta WHERE key = ?",
+                                (spill.progress_key,)).fetchone()
+        try:
+            for rows, progress in spill.chunks(row[0] if row else None):
+                self._commit(rows, [], None, spill_progress=progress)
+                self.samples_written += len(rows)
+        except (OSError, ValueError, KeyError, TypeError):
+            return  # unreadable: left in place for a person; memory goes on being written
+        spill.remove()  # a later spill has another name: the progress left here is inert
+
+    def _write_blocks(self, samples: list[tuple[Any, ...]]
+                      ) -> tuple[list[tuple[Any, ...]], int | None]:
+        """Append samples to the growing block; returns the new growing block."""
+        rows = self._block + samples
         block_id = self._block_id
         while rows:
             chunk, rows = rows[:BLOCK_ROWS], rows[BLOCK_ROWS:]
@@ -749,13 +870,27 @@ class RunRecorder:
     def pending(self) -> int:
         return len(self._samples) + len(self._events)
 
+    @property
+    def queued(self) -> int:
+        """Samples waiting in memory to be written."""
+        return len(self._samples)
+
     def end(self, outcome: str, ended: float) -> bool:
+        """The run's end: into the end mark at once, then the database (with the writer
+        thread, queued: True then means it is on its way; `close` waits for it)."""
         # The mark first: if the database cannot take the end (a full disk), a restart must
         # still see that the run is over and must not heat again.
         self.end_marked = self.mark is not None and self.mark.write(outcome, ended)
+        with self._lock:
+            self._end_request = (outcome, ended)
+        if self._writer is not None:
+            self._writer.wake()
+            return True
         with contextlib.suppress(sqlite3.Error):
             self.conn.execute(f"PRAGMA busy_timeout={READER_BUSY_MS}")
-        ok = self.flush(force=True)
+        return self.flush(force=True)
+
+    def _write_end(self, outcome: str, ended: float) -> bool:
         try:
             self.conn.execute("UPDATE runs SET outcome = ?, ended = ? WHERE id = ?",
                               (outcome, ended, self.run_id))
@@ -764,17 +899,31 @@ class RunRecorder:
                     else "; the end could not be kept anywhere else either")
             self.trouble = f"{exc}{kept}"
             return False
+        with self._lock:
+            if self._end_request == (outcome, ended):
+                self._end_request = None
         if self.mark is not None:
             self.mark.remove()
-        return ok
+        return True
 
-    def close(self) -> None:
-        if not self._closed:
-            self.flush(force=True)
-            self._closed = True
-            if self._checkpointer is not None:
-                self._checkpointer.stop()
-            try:
-                self.conn.close()
-            except sqlite3.Error:
-                pass
+    def close(self, wait_s: float | None = None) -> bool:
+        """Write what is left and close; True when everything reached the log. With the
+        writer thread, waits up to `wait_s` (CLOSE_WAIT_S) for a locked or full log, then
+        puts the samples still queued into the spill file, which the next engine to open
+        this log writes back (RunLog.start_run, resume_run)."""
+        if self._closed:
+            return True
+        if self._writer is not None:
+            self._take_resume_point()
+            ok = self._writer.stop(CLOSE_WAIT_S if wait_s is None else wait_s)
+            if not ok:
+                self.queue_bound = 0
+                self._spill_over_bound()  # what memory holds would die with the process
+        else:
+            ok = self.flush(force=True)
+        self._closed = True
+        if self._checkpointer is not None:
+            self._checkpointer.stop()
+        with contextlib.suppress(sqlite3.Error):
+            self.conn.close()
+        return ok

@@ -22,7 +22,6 @@ UNITS = ("C", "F")
 
 ABSOLUTE_ZERO_C = -273.15
 ROOM_C = 20.0  # the plan starts here unless told otherwise
-ROOM_F = 68.0
 
 
 def c_to_f(celsius: FloatOrArray) -> FloatOrArray:

@@ -28,6 +28,7 @@ MODULES = [
     "engine_speed",
     "runlog_write",
     "replay_speed",
+    "whatif_speed",
     "chart_redraw",
     "modbus_rate",
     "watch_cost",

@@ -12,14 +12,12 @@ from collections.abc import Callable, Iterable, Mapping
 from typing import Any, TextIO
 
 from tuikiln import events as ev
-from tuikiln.alerts.settings import HOOK_GROUPS
+from tuikiln.engine.states import TERMINAL_BELL
 from tuikiln.events import AlertSink, Event
 from tuikiln.plaintext import plain
 
 log = logging.getLogger(__name__)
 
-# Events that ring the terminal bell when the bell is on: something needs a person.
-BELL_KINDS = HOOK_GROUPS["alarm"] | HOOK_GROUPS["operator"]
 
 
 class AlertFanout:
@@ -94,7 +92,7 @@ class TerminalSink:
             return
         stream = self._stream or sys.stdout
         mark = {"critical": "!!", "warning": "! "}.get(event.severity, "  ")
-        ring = "\a" if self.bell and event.kind in BELL_KINDS else ""
+        ring = "\a" if self.bell and event.kind in TERMINAL_BELL else ""
         try:
             stream.write(f"{ring}{self._format_time(event.time)} {mark} {plain(event.message)}\n")
             stream.flush()

@@ -20,7 +20,7 @@ from dataclasses import dataclass
 from typing import Any
 
 from tuikiln import events as ev
-from tuikiln.drivers.checking import Setting, check_table, keys_of, suggest
+from tuikiln.drivers.checking import Setting, check_table, suggest
 from tuikiln.units import parse_duration
 
 Problems = list[tuple[tuple, str]]
@@ -50,11 +50,9 @@ MQTT: tuple[Setting, ...] = (
     Setting("commands", "flag", False),
     Setting("keepalive", "whole", 30, 2, 3600),
 )
-MQTT_KEYS = keys_of(MQTT)
 # Keys people reach for that would put a secret into the kiln file (and so into run logs).
 _SECRET_KEYS = ("password", "passwd", "pass", "pw", "secret", "token")
 HOOK: tuple[Setting, ...] = (Setting("on"), Setting("run"), Setting("timeout"))
-HOOK_KEYS = keys_of(HOOK)
 
 # Groups a hook's `on` may name besides single event kinds.
 ALL_KINDS: tuple[str, ...] = (

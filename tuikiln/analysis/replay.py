@@ -645,7 +645,7 @@ class _Analysis:
 
     def _ending(self) -> str:
         outcome = self.outcome
-        if outcome in (None, st.UNFINISHED, "running", st.COMPLETED):
+        if outcome in (None, st.UNFINISHED, st.RUN_RUNNING, st.COMPLETED):
             return "the log ends"
         return f"the run ended ({outcome})"
 

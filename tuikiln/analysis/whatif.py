@@ -6,7 +6,9 @@
     compare_alarms(logged_events, result.events)   # what would have fired, what would not
 
 The stepper, the alarm rules and the equalization detector are `tuikiln.engine.rules.RunRules`
-itself, fed one logged sample at a time: nothing is implemented twice. What cannot be
+itself: its array forms over the whole log where they can follow the run (a 7-day log in well
+under a second), else fed one logged sample at a time. Both share the rules' thresholds,
+decisions and words, and are held equal by tests/test_whatif_arrays.py. What cannot be
 replayed is the oven's answer to a different setpoint: the readings stay the ones logged.
 
 The person's commands (pause, resume, skip, abort) are applied again at their logged times.
@@ -26,9 +28,11 @@ import numpy as np
 
 from tuikiln import events as ev
 from tuikiln.engine import states as st
+from tuikiln.engine.alarm_arrays import KINDS, Seen, alarm_events
 from tuikiln.engine.rules import RunRules, TickInput
+from tuikiln.engine.stepper_arrays import NotInArrays, follow
 from tuikiln.limits import Limits
-from tuikiln.profile import Hold, Profile
+from tuikiln.profile import Hold, Profile, Ramp
 from tuikiln.units import Units
 
 REPLAYED_COMMANDS = ("pause", "resume", "skip", "abort")
@@ -49,6 +53,8 @@ class Rerun:
     outcome: str | None = None
     end_reason: str = ""
     ended_at: float | None = None
+    how: str = "per sample"
+    """"arrays" when the rules' array forms decided, "per sample" when RunRules did."""
 
 
 def _finite_or_none(value: float) -> float | None:
@@ -93,6 +99,7 @@ def rerun_rules(
     same_profile: bool = True,
     sample_s: float = 0.0,
     unjudged: frozenset[str] = frozenset(),
+    per_sample: bool = False,
 ) -> Rerun:
     """Feed the samples to a fresh RunRules; `load_c` is the load thermocouple (NaN: none;
     the rules keep their own core estimate, as in a live run).
@@ -101,11 +108,26 @@ def rerun_rules(
     tool's, or a thinned export). The rules count a hold's clock from the first sample in
     band to the last, which falls short of the real hold by up to one interval, so each hold
     is taken as done one interval early: a 10 s log that ends at the last sample of a hold
-    finished it. `unjudged`: alarm codes about signals the log does not have."""
+    finished it. `unjudged`: alarm codes about signals the log does not have.
+
+    The rules' array forms (tuikiln.engine.stepper_arrays, alarm_arrays) decide where they
+    can follow the run: no pause steps, no `equalized` holds, no replayed commands, times
+    that never go backwards. Otherwise, or with `per_sample`, the samples go to RunRules one
+    at a time. Both give the same steps, states, setpoints, alarms and outcome (tests/
+    test_whatif_arrays.py); the array forms leave out the step-state words."""
     if sample_s > 0.0:
         profile = dataclasses.replace(profile, steps=tuple(
             dataclasses.replace(s, duration_s=max(0.0, s.duration_s - sample_s))
             if isinstance(s, Hold) else s for s in profile.steps))
+    if not per_sample:
+        rules = RunRules(profile, limits, max_c=max_c, units=units)
+        rules.alarms.unjudged = frozenset(unjudged)
+        commands, _ = _logged_commands(events, with_skips=same_profile)
+        if not commands:
+            try:
+                return rerun_arrays(rules, t, chamber_c, output_pct, flags)
+            except NotInArrays:
+                pass
     n = t.size
     step = np.full(n, -1, dtype=np.int64)
     state = np.zeros(n, dtype=np.int64)
@@ -159,6 +181,58 @@ def rerun_rules(
             state[i + 1:] = _DONE_CODE
             break
     return Rerun(step, state, setpoints, out, rules.outcome, rules.end_reason, ended_at)
+
+
+def _finite(values: np.ndarray) -> np.ndarray:
+    values = np.asarray(values, dtype=float)
+    return np.where(np.isfinite(values), values, np.nan)
+
+
+def rerun_arrays(rules: RunRules, t: np.ndarray, chamber_c: np.ndarray,
+                 output_pct: np.ndarray, flags: np.ndarray | None) -> Rerun:
+    """What `rules` (fresh) decide over the samples, by the rules' array forms; raises
+    NotInArrays where only the per-sample rules can follow the run."""
+    t = np.asarray(t, dtype=float)
+    n = t.size
+    if not np.isfinite(t).all() or (n > 1 and bool((np.diff(t) < 0).any())):
+        raise NotInArrays("sample times go backwards")
+    chamber = _finite(chamber_c)
+    output = _finite(output_pct)
+    bits = np.zeros(n, dtype=np.int64) if flags is None else np.asarray(flags, dtype=np.int64)
+    sensor = (bits & st.FLAG_SENSOR_FAULT) != 0
+    link_ok = ((bits & st.FLAG_NO_READING) == 0) & (np.isfinite(chamber) | sensor)
+    # The stepper is given the reading whenever the device answered without a fault.
+    given = np.where(link_ok & ~sensor, chamber, np.nan)
+    profile = rules.profile
+    steps = follow(profile, rules.limits, rules.units, t, given,
+                   watched_equalize=rules.load_watch is not None)
+    count = len(profile.steps)
+    kind_of = np.array([KINDS.index(s.kind) for s in profile.steps] + [-1], dtype=np.int64)
+    rated_of = np.array([isinstance(s, Ramp) and s.rate_c_per_s is not None
+                         for s in profile.steps] + [False])
+    index = np.minimum(steps.step, count)
+    seen = Seen(t, link_ok, chamber, sensor, output, steps.setpoint, steps.target,
+                kind_of[index], steps.state, steps.state_since, steps.started, rated_of[index],
+                steps.heat_off)
+    found = alarm_events(rules.alarms, seen)
+    ends = [i for i in (steps.done_at, found.first_critical) if i is not None]
+    end = min(ends) if ends else None
+    merged = [(i, -1, k, e) for k, (i, e) in enumerate(steps.events)]
+    merged += [(i, rank, 0, e) for i, rank, e in found.events]
+    merged.sort(key=lambda m: (m[0], m[1], m[2]))
+    out = [_as_dict(e) for i, _, _, e in merged if end is None or i <= end]
+    step, state, setpoint = steps.step, steps.state, steps.setpoint
+    outcome, reason, ended_at = None, "", None
+    if end is not None:
+        step[end + 1:] = step[end]
+        state[end + 1:] = _DONE_CODE
+        setpoint[end + 1:] = np.nan
+        ended_at = float(t[end])
+        if found.first_critical == end:
+            outcome, reason = st.STOPPED_BY_ALARM, found.critical_words
+        else:
+            outcome, reason = st.COMPLETED, "every step is done"
+    return Rerun(step, state, setpoint, out, outcome, reason, ended_at, how="arrays")
 
 
 @dataclass(frozen=True)

@@ -11,8 +11,6 @@ from tuikiln.plan import plan_profile
 from tuikiln.profile import load_profile
 from tuikiln.units import format_duration, format_temp
 
-HELP = "check profile files and print a one-line summary of each"
-
 
 def add_arguments(parser: argparse.ArgumentParser) -> None:
     parser.add_argument("files", nargs="+", metavar="FILE", help="profile files (TOML)")

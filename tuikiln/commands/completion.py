@@ -17,7 +17,6 @@ import shlex
 import sys
 from dataclasses import dataclass, field
 
-HELP = "print a shell completion script (bash or zsh) for tuikiln's commands and options"
 SHELLS = ("bash", "zsh")
 
 

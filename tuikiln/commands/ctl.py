@@ -11,9 +11,6 @@ from typing import Any
 from tuikiln.plaintext import plain
 from tuikiln.units import format_duration, format_temp
 
-HELP = "steer or watch the run going on"
-
-
 
 def add_arguments(parser: argparse.ArgumentParser) -> None:
     name = parser.prog.split()[-1]

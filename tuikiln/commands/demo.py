@@ -24,7 +24,6 @@ from tuikiln.kiln import Kiln, load_kiln
 from tuikiln.profile import load_profile
 from tuikiln.ui.glyphs import add_glyphs_option, glyphs_from_args
 
-HELP = "watch a whole harden-and-temper cycle on the built-in simulator, sped up"
 # Inside the package (tuikiln.profiles), so the demo finds it after any install.
 DEMO_PROFILE = Path(str(resources.files("tuikiln.profiles") / "demo-harden-temper.toml"))
 DEFAULT_SPEED = 200.0

@@ -8,8 +8,6 @@ import sys
 
 from tuikiln.ui.glyphs import add_glyphs_option, glyphs_from_args
 
-HELP = "the home screen: kiln, profiles and recent runs; start, watch or replay a run"
-
 
 def add_arguments(parser: argparse.ArgumentParser) -> None:
     parser.add_argument("--units", type=str.upper, choices=("C", "F"),

@@ -19,8 +19,6 @@ from typing import Any
 
 from tuikiln.errors import UserError
 
-HELP = "learn the oven from a logged run: heating, losses, time constant, PID by SIMC"
-
 
 def add_arguments(parser: argparse.ArgumentParser) -> None:
     parser.add_argument("run", metavar="RUN", nargs="?", default="last",
@@ -35,7 +33,7 @@ def add_arguments(parser: argparse.ArgumentParser) -> None:
     csv.add_argument("--time-column", metavar="NAME", help="header of the time column")
     csv.add_argument("--chamber-column", metavar="NAME", help="header of the chamber column")
     csv.add_argument("--output-column", metavar="NAME",
-                     help='header of the heater output column, in % (default: "output_pct", '
+                     help='header of the heater output column, in %% (default: "output_pct", '
                           '"output", "out", "power" or "mv")')
     csv.add_argument("--units", type=str.upper, choices=("C", "F"), default=None,
                      help="the CSV's temperature unit (default: from the header, else C)")
@@ -129,8 +127,8 @@ def describe(model: Any, pid: dict[str, Any], source: str, units: str) -> str:
         f"  highest it can hold: about {format_temp(model.top_c, units)} at full output",
         f"  to hold {format_temp(f.at_c, units)} it needs about {f.output_pct:.0f} % output "
         "once the lining has soaked through",
-        f"  free cooling: {format_rate(model.loss_c_per_s(f.at_c), units)} at "
-        f"{format_temp(f.at_c, units)}, "
+        f"  free cooling: {format_rate(model.loss_c_per_s(model.valid_to_c), units)} at "
+        f"{format_temp(model.valid_to_c, units)}, "
         f"{format_rate(model.loss_c_per_s(model.room_c + 200.0), units)} at "
         f"{format_temp(model.room_c + 200.0, units)}",
         f"  the lining soaks up heat over about {format_duration(model.lining_tau_s)}; "

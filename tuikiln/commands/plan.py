@@ -25,7 +25,6 @@ from tuikiln.units import (
 )
 
 MAX_CSV_ROWS = 10_000_000  # beyond this the CSV is a mistake (and would not fit in memory)
-HELP = "show the planned curve of a profile (table, --json or --csv)"
 
 
 def add_arguments(parser: argparse.ArgumentParser) -> None:
@@ -55,7 +54,7 @@ def run(args: argparse.Namespace) -> int:
         except ValueError as exc:
             raise UserError(f"--from: {exc}") from None
     plan = plan_profile(profile, start_c)
-    forecast = _forecast(args, plan, kiln)
+    forecast = _forecast(args, plan, kiln, units)
     if args.json:
         json.dump(plan_as_json(plan, units, forecast), sys.stdout, indent=2,
                   ensure_ascii=False)
@@ -67,7 +66,7 @@ def run(args: argparse.Namespace) -> int:
     return 0
 
 
-def _forecast(args: argparse.Namespace, plan: Plan, kiln: Any) -> Forecast:
+def _forecast(args: argparse.Namespace, plan: Plan, kiln: Any, units: str) -> Forecast:
     """The oven's prediction (`--model`, else the kiln's saved model), or the reason why
     there is none."""
     from pathlib import Path
@@ -87,12 +86,12 @@ def _forecast(args: argparse.Namespace, plan: Plan, kiln: Any) -> Forecast:
         path = model_path(data_dir, kiln.name)
         model = saved_model(data_dir, kiln.name)
     if model is None:
-        return Forecast(None, None, temper_warnings(plan, None, None, plan.profile.units),
+        return Forecast(None, None, temper_warnings(plan, None, None, units),
                         f'no oven model for "{kiln.name}": the times of "max" ramps, free '
                         "cools and the waits to reach temperature are unknown (counted as "
                         "nothing); learn the oven from a run with `tuikiln learn RUN --save`")
     band = Limits().merged(kiln.alarms).merged(plan.profile.limits).band
-    prediction = predict(plan, model, band, plan.profile.units)
+    prediction = predict(plan, model, band, units)
     return Forecast(prediction, str(path), list(prediction.warnings), "")
 
 

@@ -19,8 +19,6 @@ from tuikiln.drivers.errors import BadReply, DeviceError, LinkLost, NoAnswer, Se
 from tuikiln.errors import UserError
 from tuikiln.units import Units, format_temp
 
-HELP = "connect to the kiln's device and print readings, to check wiring and settings"
-
 # Readings outside this band mean the map's scale or decimal places are wrong, not the
 # oven (a heat-treat oven runs between room temperature and about 1300 °C; common
 # practice, no source).

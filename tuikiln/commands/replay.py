@@ -23,7 +23,6 @@ from typing import Any
 from tuikiln.errors import FileProblems, UserError
 from tuikiln.limits import LIMIT_KEYS, LimitKey
 
-HELP = "hold a logged run (or another tool's CSV log) against its profile, step by step"
 # The report's form goes by the file's suffix.
 REPORT_FORMS = {".html": "html", ".htm": "html", ".md": "markdown", ".markdown": "markdown",
                 ".txt": "text"}

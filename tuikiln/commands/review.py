@@ -13,7 +13,6 @@ from tuikiln.ui.glyphs import add_glyphs_option, glyphs_from_args
 if TYPE_CHECKING:
     from tuikiln.runlog import RunInfo
 
-HELP = "look back at a past run on screen: chart against the plan, cursor, verdicts, notes"
 
 
 def add_arguments(parser: argparse.ArgumentParser) -> None:

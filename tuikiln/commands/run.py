@@ -37,8 +37,6 @@ from typing import Any
 from tuikiln.errors import UserError
 from tuikiln.units import format_duration, format_temp
 
-HELP = "run a heat-treatment profile (in the background, or --headless in the foreground)"
-
 EXIT_COMPLETED = 0
 EXIT_ABORTED = 2
 EXIT_ALARM = 3
@@ -393,7 +391,7 @@ def _sinks(kiln: Any, out: Any, engine_box: list[Any], device: Any) -> list[Any]
 async def _serve_run(engine: Any, kiln: Any, data_dir: Path, sinks: list[Any], out: Any,
                      st: Any) -> int:
     from tuikiln import control
-    from tuikiln.engine.recovery import ENDED_AFTER_RESTART
+    from tuikiln.engine.states import ENDED_AFTER_RESTART
 
     loop = asyncio.get_running_loop()
     under_service = bool(os.environ.get("INVOCATION_ID"))

@@ -14,8 +14,6 @@ from typing import Any
 
 from tuikiln.errors import UserError
 
-HELP = "list logged runs, or export one"
-
 CSV_COLUMNS = ("t_s", "utc", "chamber_c", "load_c", "core_c", "setpoint_c", "output_pct",
                "step", "state", "flags")
 

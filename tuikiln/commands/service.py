@@ -31,7 +31,6 @@ import sys
 from importlib import resources
 from pathlib import Path
 
-HELP = "print a systemd unit that resumes unfinished runs at boot and after a crash"
 UNIT_NAME = "tuikiln.service"
 SYSTEM_ONLY = "@SYSTEM@"
 # Debian, Ubuntu, Fedora and Raspberry Pi OS give serial ports to "dialout", Arch to "uucp".

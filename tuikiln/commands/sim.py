@@ -7,8 +7,6 @@ from __future__ import annotations
 
 import argparse
 
-HELP = "the built-in software oven: `sim serve` answers Modbus RTU on a pty or TCP"
-
 
 def add_arguments(parser: argparse.ArgumentParser) -> None:
     from tuikiln.simulator.serve import add_serve_arguments

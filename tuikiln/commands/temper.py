@@ -15,8 +15,6 @@ from tuikiln.analysis.temper import DEFAULT_C, equivalent_hours, parameter
 from tuikiln.errors import UserError
 from tuikiln.units import UNITS, c_to_f, format_duration, parse_duration, parse_temperature, symbol
 
-HELP = "tempering parameter (Hollomon-Jaffe) and the equivalent time at another temperature"
-
 # Iron-carbon diagram: the eutectoid (A1) line is at 727 °C in plain carbon steel (textbook
 # value); alloying moves it. Above it the steel starts to turn back into austenite.
 _LOWER_CRITICAL_C = 727.0

@@ -16,8 +16,6 @@ from tuikiln.drivers import its90
 from tuikiln.errors import UserError
 from tuikiln.units import c_to_f, parse_temperature
 
-HELP = "convert thermocouple millivolts to temperature and back (NIST ITS-90)"
-
 _NUMBER = r"[+-]?(?:\d+(?:\.\d*)?|\.\d+)"
 _MILLIVOLTS_RE = re.compile(rf"^\s*({_NUMBER})\s*mv\s*$", re.IGNORECASE)
 _BARE_NUMBER_RE = re.compile(rf"^\s*{_NUMBER}\s*$")

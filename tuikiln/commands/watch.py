@@ -11,8 +11,6 @@ import sys
 from tuikiln.errors import UserError
 from tuikiln.ui.glyphs import add_glyphs_option, glyphs_from_args
 
-HELP = "watch the run going on in the live screen (leaving it leaves the run going)"
-
 
 def add_arguments(parser: argparse.ArgumentParser) -> None:
     parser.add_argument("--units", type=str.upper, choices=("C", "F"),

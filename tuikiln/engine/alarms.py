@@ -41,7 +41,6 @@ ALARMS.update({
     "paused-too-long": (WARNING, "paused too long"),
     "log-trouble": (WARNING, "cannot write the run log"),
 })
-CRITICAL_CODES = frozenset(code for code, (sev, _) in ALARMS.items() if sev == CRITICAL)
 
 BAD_READINGS_TO_ALARM = 3      # consecutive impossible / faulty readings before sensor-bad
 GOOD_READINGS_TO_CLEAR = 5
@@ -64,6 +63,20 @@ HISTORY_EVERY_S = 10.0
 # judged against the highest setpoint of this long ago, so that coast is not a stuck relay.
 SETPOINT_LAG_S = 600.0
 SLOW_EVERY_S = 5.0
+
+
+def raised_event(now: float, code: str, words: str) -> Event:
+    """The event an alarm is raised with (the rules' and their array form's)."""
+    severity = ALARMS[code][0]
+    prefix = "ALARM" if severity == CRITICAL else "Warning"
+    return Event(now, ev.ALARM_RAISED, f"{prefix}: {words}", severity,
+                 {"alarm": code, "severity": severity, "words": words})
+
+
+def cleared_event(now: float, code: str, acknowledged: bool) -> Event:
+    severity, name = ALARMS[code]
+    return Event(now, ev.ALARM_CLEARED, f"Cleared: {name}", "info",
+                 {"alarm": code, "severity": severity, "acknowledged": acknowledged})
 
 
 @dataclass
@@ -208,25 +221,73 @@ class AlarmRules:
         if on and alarm is None:
             if code in self.unjudged:
                 return
-            severity, _ = ALARMS[code]
-            self.active[code] = Alarm(code, severity, words, now)
-            prefix = "ALARM" if severity == CRITICAL else "Warning"
-            self._pending.append(Event(now, ev.ALARM_RAISED, f"{prefix}: {words}", severity,
-                                       {"alarm": code, "severity": severity, "words": words}))
+            self.active[code] = Alarm(code, ALARMS[code][0], words, now)
+            self._pending.append(raised_event(now, code, words))
         elif on and alarm is not None and words:
             alarm.words = words
         elif not on and alarm is not None:
             del self.active[code]
-            _, name = ALARMS[code]
-            self._pending.append(Event(now, ev.ALARM_CLEARED, f"Cleared: {name}", "info",
-                                       {"alarm": code, "severity": alarm.severity,
-                                        "acknowledged": alarm.acknowledged}))
+            self._pending.append(cleared_event(now, code, alarm.acknowledged))
 
     def _t(self, celsius: float | None) -> str:
         return format_temp(celsius, self.units)
 
     def _d(self, kelvin: float) -> str:
         return f"{delta_from_c(kelvin, self.units):.0f} {symbol(self.units)}"
+
+    # ----- the words (shared with the array forms in alarm_arrays.py) -----
+
+    def no_link_words(self, silent_s: float) -> str:
+        return (f"No answer from the controller for {format_duration(silent_s)}: check the "
+                "cable and its power")
+
+    def no_link_too_long_words(self, silent_s: float) -> str:
+        return (f"The controller has been silent for {format_duration(silent_s)}: the run "
+                "stops and the heat is turned off where the controller can still hear it")
+
+    def impossible_why(self, chamber_c: float | None) -> str:
+        return f"the reading {self._t(chamber_c)} is impossible"
+
+    def jumps_words(self) -> str:
+        return (f"Thermocouple fault: the reading jumps by more than {self._d(JUMP_C)} from "
+                "one second to the next")
+
+    def frozen_words(self, temp_c: float) -> str:
+        return (f"Thermocouple fault: the reading has stayed at exactly {self._t(temp_c)} for "
+                f"{format_duration(FROZEN_S)} while heating")
+
+    def over_max_words(self, temp_c: float) -> str:
+        return f"{self._t(temp_c)} is over the kiln's maximum of {self._t(self.max_c)}"
+
+    def too_hot_words(self, temp_c: float, target_c: float | None) -> str:
+        return (f"Too hot: {self._t(temp_c)} is {self._d(temp_c - (target_c or 0.0))} above "
+                f"the target {self._t(target_c)}")
+
+    def lagging_words(self, temp_c: float, gap_c: float, planned_c: float | None) -> str:
+        return (f"Falling behind the ramp: {self._t(temp_c)} is {self._d(gap_c)} below the "
+                f"planned {self._t(planned_c)} — a heater failing, the door open, or a ramp "
+                "too fast for this oven")
+
+    def no_rise_words(self, temp_c: float) -> str:
+        return (f"Not heating: the heater is asked for full power but the temperature has "
+                f"not risen in {format_duration(self.limits.stall_for)} ({self._t(temp_c)}) "
+                "— a heater or its fuse failing, or the door open")
+
+    def stuck_on_words(self, temp_c: float, rising_off: bool, setpoint_c: float | None) -> str:
+        how = ("while the heater output is off" if rising_off else
+               f"{self._d(temp_c - (setpoint_c or 0.0))} above the setpoint")
+        return (f"Heat stuck on: {self._t(temp_c)} and rising {how} — a relay or contactor "
+                "stuck closed")
+
+    def slipped_words(self, target_c: float | None, out_s: float) -> str:
+        return (f"The hold at {self._t(target_c)} has been out of its band for "
+                f"{format_duration(out_s)}: its clock is stopped")
+
+    def never_reached_words(self, in_hold: bool, target_c: float | None) -> str:
+        what = "The hold at" if in_hold else "The target"
+        return (f"{what} {self._t(target_c)} has not been reached in "
+                f"{format_duration(self.limits.reach_within)}: the oven may not get that hot "
+                "(elements, a heavy load, the door)")
 
     # ----- the checks -----
 
@@ -267,12 +328,9 @@ class AlarmRules:
         assert self._last_ok is not None
         silent = now - self._last_ok
         if silent >= self.limits.link_lost:
-            self._set("no-link", True, now, f"No answer from the controller for "
-                      f"{format_duration(silent)}: check the cable and its power")
+            self._set("no-link", True, now, self.no_link_words(silent))
         if silent >= self.limits.link_lost_safe:
-            self._set("no-link-too-long", True, now, f"The controller has been silent for "
-                      f"{format_duration(silent)}: the run stops and the heat is turned off "
-                      "where the controller can still hear it")
+            self._set("no-link-too-long", True, now, self.no_link_too_long_words(silent))
 
     def _check_sensor(self, obs: Observation, temp: float | None) -> None:
         now = obs.now
@@ -284,7 +342,7 @@ class AlarmRules:
         elif obs.chamber_c is None:
             why = "the controller gives no temperature"
         elif temp is None:
-            why = f"the reading {self._t(obs.chamber_c)} is impossible"
+            why = self.impossible_why(obs.chamber_c)
         if why:
             self._bad_count += 1
             self._good_count = 0
@@ -304,11 +362,9 @@ class AlarmRules:
             jumps.popleft()
         frozen = self._frozen(obs, temp)
         if len(jumps) >= JUMPS_TO_ALARM:
-            self._set("sensor-bad", True, now, "Thermocouple fault: the reading jumps by more "
-                      f"than {self._d(JUMP_C)} from one second to the next")
+            self._set("sensor-bad", True, now, self.jumps_words())
         elif frozen:
-            self._set("sensor-bad", True, now, f"Thermocouple fault: the reading has stayed at "
-                      f"exactly {self._t(temp)} for {format_duration(FROZEN_S)} while heating")
+            self._set("sensor-bad", True, now, self.frozen_words(temp))
         elif (self._good_count >= GOOD_READINGS_TO_CLEAR and not jumps
               and "sensor-bad" in self.active):
             self._set("sensor-bad", False, now)
@@ -328,8 +384,7 @@ class AlarmRules:
         if temp > self.max_c:
             self._max_count += 1
             if self._max_count >= HOT_READINGS_TO_ALARM:
-                self._set("over-kiln-max", True, obs.now, f"{self._t(temp)} is over the kiln's "
-                          f"maximum of {self._t(self.max_c)}")
+                self._set("over-kiln-max", True, obs.now, self.over_max_words(temp))
         else:
             self._max_count = 0
             if temp < self.max_c - 5.0 and "over-kiln-max" in self.active:
@@ -342,8 +397,7 @@ class AlarmRules:
         if applies and temp > limit:
             self._hot_count += 1
             if self._hot_count >= HOT_READINGS_TO_ALARM:
-                self._set("too-hot", True, obs.now, f"Too hot: {self._t(temp)} is "
-                          f"{self._d(temp - (target or 0.0))} above the target {self._t(target)}")
+                self._set("too-hot", True, obs.now, self.too_hot_words(temp, target))
         else:
             self._hot_count = 0
             if (not applies or temp < limit - 2.0) and "too-hot" in self.active:
@@ -359,9 +413,7 @@ class AlarmRules:
             if self._lag_since is None:
                 self._lag_since = now
             if now - self._lag_since >= self.limits.behind_for:
-                self._set("lagging", True, now, f"Falling behind the ramp: {self._t(temp)} is "
-                          f"{self._d(gap)} below the planned {self._t(planned)} — a heater "
-                          "failing, the door open, or a ramp too fast for this oven")
+                self._set("lagging", True, now, self.lagging_words(temp, gap, planned))
         else:
             self._lag_since = None
             if not lagging or gap < self.limits.behind * 0.75:
@@ -387,10 +439,7 @@ class AlarmRules:
             return
         rise = temp - before
         if rise < NO_RISE_C:
-            self._set("no-rise", True, now, f"Not heating: the heater is asked for full power "
-                      f"but the temperature has not risen in "
-                      f"{format_duration(self.limits.stall_for)} ({self._t(temp)}) — a heater "
-                      "or its fuse failing, or the door open")
+            self._set("no-rise", True, now, self.no_rise_words(temp))
         elif rise > NO_RISE_C * 2:
             self._set("no-rise", False, now)
 
@@ -417,10 +466,7 @@ class AlarmRules:
         far_above = (sp is not None and temp > sp + self.limits.runaway
                      and rise is not None and rise >= NO_RISE_C and steady)
         if rising_off or far_above:
-            how = ("while the heater output is off" if rising_off else
-                   f"{self._d(temp - (sp or 0.0))} above the setpoint")
-            self._set("heat-stuck-on", True, now, f"Heat stuck on: {self._t(temp)} and rising "
-                      f"{how} — a relay or contactor stuck closed")
+            self._set("heat-stuck-on", True, now, self.stuck_on_words(temp, rising_off, sp))
         elif rise is not None and rise < NO_RISE_C and not far_above:
             self._set("heat-stuck-on", False, now)
 
@@ -440,9 +486,8 @@ class AlarmRules:
         in_hold = obs.step_kind == "hold"
         slipped = in_hold and obs.step_state == st.SLIPPED and obs.state_since is not None
         if slipped and now - (obs.state_since or now) >= self.limits.hold_grace:
-            self._set("hold-slipped", True, now, f"The hold at {self._t(obs.target_c)} has been "
-                      f"out of its band for {format_duration(now - (obs.state_since or now))}: "
-                      "its clock is stopped")
+            self._set("hold-slipped", True, now,
+                      self.slipped_words(obs.target_c, now - (obs.state_since or now)))
         elif not slipped:
             self._set("hold-slipped", False, now)
         # Waiting for the temperature to come into the band: a hold (from its start), a `max`
@@ -457,10 +502,8 @@ class AlarmRules:
             elif obs.step_kind == "ramp" and obs.step_state == st.REACHING:
                 since = obs.state_since
         if since is not None and now - since >= self.limits.reach_within:
-            what = "The hold at" if in_hold else "The target"
-            self._set("never-reached", True, now, f"{what} {self._t(obs.target_c)} has not "
-                      f"been reached in {format_duration(self.limits.reach_within)}: the oven "
-                      "may not get that hot (elements, a heavy load, the door)")
+            self._set("never-reached", True, now, self.never_reached_words(in_hold,
+                                                                            obs.target_c))
         elif since is None:
             self._set("never-reached", False, now)
 

@@ -47,14 +47,13 @@ from dataclasses import dataclass
 from typing import Any
 
 from tuikiln.engine import states as st
+from tuikiln.engine.states import RestartPolicy
 from tuikiln.engine.stepper import within_band
 from tuikiln.profile import Hold, Pause
 from tuikiln.runlog import RunInfo, RunLog
 
-ENDED_AFTER_RESTART = "ended-after-restart"
 CONTINUE_WITHIN_S = 12 * 3600.0
 END_AFTER_S = 7 * 86400.0
-POLICIES = ("continue", "hold", "end")
 
 
 @dataclass(frozen=True)
@@ -62,8 +61,8 @@ class ResumePlan:
     """What a restarted engine needs: which run, where it was, and what to do now."""
 
     run: RunInfo
-    policy: str
-    """The policy that applies ("continue", "hold", "end"), after the guards."""
+    policy: RestartPolicy
+    """The policy that applies, after the guards."""
     asked: str
     """The kiln file's `on_restart`."""
     point: dict[str, Any] | None
@@ -74,7 +73,7 @@ class ResumePlan:
     why: str = ""
     """Why the policy differs from the one asked, in plain words ("" when it does not)."""
     end_outcome: str | None = None
-    """The outcome to log when the policy is "end" (None: ENDED_AFTER_RESTART)."""
+    """The outcome to log when the policy is "end" (None: Outcome.ENDED_AFTER_RESTART)."""
 
     @property
     def away_since(self) -> float:
@@ -118,7 +117,7 @@ def find_unfinished(runlog: RunLog, kiln_name: str) -> RunInfo | None:
     if not runs:
         return None
     latest = runs[-1]
-    return latest if latest.status == "unfinished" else None
+    return latest if latest.status == st.Outcome.UNFINISHED else None
 
 
 def plan_resume(runlog: RunLog, run: RunInfo, asked: str, *, now: float) -> ResumePlan:
@@ -127,22 +126,26 @@ def plan_resume(runlog: RunLog, run: RunInfo, asked: str, *, now: float) -> Resu
     since = (float(last["t"]) if last is not None else
              float(point["t"]) if point is not None else float(run.started))
     away = max(0.0, now - since)
-    policy, why = asked if asked in POLICIES else "hold", ""
+    policy = RestartPolicy(asked) if asked in tuple(RestartPolicy) else RestartPolicy.HOLD
+    why = ""
     mark = runlog.end_mark(run.id)
     if mark is not None:
         outcome = mark["outcome"]
-        return ResumePlan(run, "end", asked, point, last, away,
+        return ResumePlan(run, RestartPolicy.END, asked, point, last, away,
                           f"the run had already ended ({outcome.replace('-', ' ')}) before "
                           "the restart; the run log could not take it then", outcome)
     if away > END_AFTER_S:
-        policy, why = "end", (f"the engine was away more than {END_AFTER_S / 86400:.0f} days")
-    elif policy == "continue" and away > CONTINUE_WITHIN_S:
-        policy, why = "hold", (f"the engine was away more than {CONTINUE_WITHIN_S / 3600:.0f} h"
-                               ": a person decides whether to carry on")
-    elif policy == "continue" and point is not None and point.get("paused"):
-        policy, why = "hold", "the run was paused when the engine went away"
-    elif policy == "continue" and point is not None and point.get("held_for_restart"):
-        policy, why = "hold", "the run was holding safe for a person after an earlier restart"
+        policy = RestartPolicy.END
+        why = f"the engine was away more than {END_AFTER_S / 86400:.0f} days"
+    elif policy == RestartPolicy.CONTINUE and away > CONTINUE_WITHIN_S:
+        policy = RestartPolicy.HOLD
+        why = (f"the engine was away more than {CONTINUE_WITHIN_S / 3600:.0f} h"
+               ": a person decides whether to carry on")
+    elif policy == RestartPolicy.CONTINUE and point is not None and point.get("paused"):
+        policy, why = RestartPolicy.HOLD, "the run was paused when the engine went away"
+    elif policy == RestartPolicy.CONTINUE and point is not None and point.get("held_for_restart"):
+        policy = RestartPolicy.HOLD
+        why = "the run was holding safe for a person after an earlier restart"
     return ResumePlan(run, policy, asked, point, last, away, why)
 
 

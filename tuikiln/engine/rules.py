@@ -128,7 +128,7 @@ class RunRules:
     # ----- state for people -----
 
     @property
-    def run_state(self) -> str:
+    def run_state(self) -> st.RunState:
         s = self.stepper
         if self.ended:
             return st.RUN_ENDED

@@ -45,12 +45,13 @@ from tuikiln.engine import states as st
 from tuikiln.engine.recovery import ResumePlan
 from tuikiln.engine.rules import REMOTE_SOURCES, CommandResult, Decision, RunRules, TickInput
 from tuikiln.engine.safety import SafeResult, drive_safe
-from tuikiln.engine.status import LastReading, build_status
+from tuikiln.engine.states import RestartPolicy
+from tuikiln.engine.status import LastReading, Status, build_status
 from tuikiln.events import Event
 from tuikiln.limits import Limits
 from tuikiln.ovenmodel_plan import LiveForecast
 from tuikiln.profile import Profile
-from tuikiln.runlog import RunLog, RunRecorder
+from tuikiln.runlog import QUEUE_WARN_FRACTION, RunLog, RunRecorder
 from tuikiln.units import format_duration, format_temp
 
 log = logging.getLogger(__name__)
@@ -131,6 +132,7 @@ class RunEngine:
         self._drift_ticks = 0
         self._status_at = 0.0
         self._log_trouble = False
+        self._log_queue_near = False
         self.ticks = 0
         self.forecast: LiveForecast | None = None
         """The learned oven's times for the status (tuikiln.ovenmodel_store.live_forecast)."""
@@ -182,7 +184,7 @@ class RunEngine:
         if self._suspend_request is None and self._stop_request is None:
             self._suspend_request = reason
 
-    def status(self) -> dict[str, Any]:
+    def status(self) -> Status:
         return build_status(self.rules, run_id=self.run_id, kiln=self.kiln.name,
                             now=self.clock.now(), started=self.started, last=self.last,
                             watch_only=self.watch_only, forecast=self.forecast)
@@ -223,7 +225,8 @@ class RunEngine:
             if watchdog is not None:
                 watchdog.cancel()
             if self.recorder is not None:
-                self.recorder.close()
+                # Waits for a locked or full log (up to runlog.CLOSE_WAIT_S), off the loop.
+                await asyncio.shield(asyncio.to_thread(self.recorder.close))
         return self.outcome or st.COMPLETED
 
     def _attach_recorder(self, recorder: RunRecorder) -> None:
@@ -231,6 +234,7 @@ class RunEngine:
         self.run_id = recorder.run_id
         recorder.every_s = COMMIT_EVERY_S
         recorder.resume_source = self._resume_point
+        recorder.write_in_background()  # SQL off the loop: a locked log never stalls a tick
 
     def _resume_point(self) -> tuple[float, dict[str, Any]]:
         stepper = self.rules.stepper
@@ -459,6 +463,16 @@ class RunEngine:
             self._log_trouble = trouble
             words = f"Cannot write the run log ({rec.trouble}): the run goes on" if trouble else ""
             self._emit_all(self.rules.alarms.set_condition("log-trouble", trouble, now, words))
+        near = rec.queued >= rec.queue_bound * QUEUE_WARN_FRACTION
+        if near != self._log_queue_near:
+            self._log_queue_near = near
+            if near:
+                spill = rec.spill.path if rec.spill is not None else "a spill file"
+                self._emit(Event(now, ev.LOG_QUEUE, f"{rec.queued:,} samples wait in memory for "
+                                 f"the run log ({rec.queued * 100 // rec.queue_bound} % of the "
+                                 f"{rec.queue_bound:,} kept there); past that the oldest go to "
+                                 f"{spill}, in order, and are written when the log can be",
+                                 "warning", {"queued": rec.queued, "bound": rec.queue_bound}))
 
     # ----- endings -----
 
@@ -543,7 +557,7 @@ class RunEngine:
         self.outcome = SUSPENDED
         self.end_words = f"Run suspended: {reason}"
         if self.recorder is not None:
-            self.recorder.flush(force=True)
+            await asyncio.to_thread(self.recorder.flush, True)
         self._publish_status(force=True)
 
     # ----- after a restart -----
@@ -565,12 +579,12 @@ class RunEngine:
                           "after_c": after, "policy": plan.policy, "asked": plan.asked,
                           "why": plan.why}))
         stepper = self.rules.stepper
-        if plan.policy == "end":
-            return self.rules.stop(now, plan.end_outcome or recovery.ENDED_AFTER_RESTART,
+        if plan.policy == RestartPolicy.END:
+            return self.rules.stop(now, plan.end_outcome or st.ENDED_AFTER_RESTART,
                                    "the kiln file says on_restart = \"end\"" if not plan.why
                                    else plan.why)
         words = recovery.restore_stepper(stepper, plan, now, after)
-        if plan.policy == "continue":
+        if plan.policy == RestartPolicy.CONTINUE:
             self._emit(Event(now, ev.COMMAND, f"Carrying on after the restart: {words}", "info",
                              {"name": "resume", "source": "restart"}))
             return None

@@ -1,29 +1,68 @@
 """The status object: what `tuikiln status --json` prints, the MQTT `state` payload and what
-the live screen shows. Keep these keys (other programs read them):
+the live screen shows. `Status` below is its shape; keep its keys (other programs read them):
 
     run, kiln, profile, units, state, step, step_count, step_kind, step_state, step_words,
     chamber_c, load_c, core_c, setpoint_c, target_c, output_pct, equalization,
     time_to_next_step_s, time_to_operator_s, time_to_end_s, alarms, time, started, watch_only
 
-Temperatures are °C (None when unknown); `units` says how to show them.
+Temperatures are °C (None when unknown); `units` says how to show them. The states are the
+StrEnums of engine/states.py, which serialize as their strings.
 """
 
 from __future__ import annotations
 
 from dataclasses import dataclass
-from typing import Any
+from typing import Any, TypedDict
 
 from tuikiln.engine.rules import RunRules
+from tuikiln.engine.states import RunState, StepState
 from tuikiln.ovenmodel_plan import LiveForecast
 from tuikiln.plan import step_duration_s
 from tuikiln.profile import Cool, Pause, Ramp
 
-STATUS_KEYS = (
-    "run", "kiln", "profile", "units", "state", "step", "step_count", "step_kind",
-    "step_state", "step_words", "chamber_c", "load_c", "core_c", "setpoint_c", "target_c",
-    "output_pct", "equalization", "time_to_next_step_s", "time_to_operator_s",
-    "time_to_end_s", "alarms", "time", "started", "watch_only",
-)
+
+class Equalization(TypedDict):
+    """The status's `equalization` while the load evens out (None otherwise)."""
+
+    state: str | None
+    words: str
+    slope_c_per_min: float | None
+    eta_s: float | None
+    eta_sigma_s: float | None
+    rule_of_thumb_s: float | None
+
+
+class Status(TypedDict):
+    """The status object, key by key (the order is the order `--json` prints)."""
+
+    run: int | None
+    kiln: str
+    profile: str
+    units: str
+    state: RunState
+    step: int
+    step_count: int
+    step_kind: str | None
+    step_state: StepState
+    step_words: str
+    chamber_c: float | None
+    load_c: float | None
+    core_c: float | None
+    setpoint_c: float | None
+    target_c: float | None
+    output_pct: float | None
+    equalization: Equalization | None
+    time_to_next_step_s: float | None
+    time_to_operator_s: float | None
+    time_to_end_s: float | None
+    alarms: list[dict[str, Any]]
+    """The active alarms (engine/alarms.py `Alarm.as_dict`)."""
+    time: float
+    started: float
+    watch_only: bool
+
+
+STATUS_KEYS: tuple[str, ...] = tuple(Status.__annotations__)
 
 
 @dataclass
@@ -38,7 +77,7 @@ def _round(value: float | None, digits: int = 2) -> float | None:
     return None if value is None else round(float(value), digits)
 
 
-def _equalization(eq: Any) -> dict[str, Any] | None:
+def _equalization(eq: Any) -> Equalization | None:
     if eq is None:
         return None
     return {
@@ -103,7 +142,7 @@ def build_status(
     last: LastReading,
     watch_only: bool,
     forecast: LiveForecast | None = None,
-) -> dict[str, Any]:
+) -> Status:
     s = rules.stepper
     step = s.step
     to_next, to_operator, to_end = remaining_plan_s(rules, forecast)
@@ -124,7 +163,7 @@ def build_status(
         "setpoint_c": _round(s.setpoint_c),
         "target_c": _round(s.target_c),
         "output_pct": _round(last.output_pct, 1),
-        "equalization": _equalization(s.equalize) if s.state == "evening" else None,
+        "equalization": _equalization(s.equalize) if s.state == StepState.EVENING else None,
         "time_to_next_step_s": _round(to_next, 0),
         "time_to_operator_s": _round(to_operator, 0),
         "time_to_end_s": _round(to_end, 0),

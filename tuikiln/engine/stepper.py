@@ -34,7 +34,7 @@ from __future__ import annotations
 
 from collections.abc import Callable
 from dataclasses import dataclass, field
-from typing import Any, Protocol
+from typing import Any
 
 from tuikiln import events as ev
 from tuikiln.engine import states as st
@@ -50,11 +50,6 @@ FREE_COOL_SETPOINT_C = 0.0
 BAND_DWELL_S = 20.0
 
 
-class EqualizeLike(Protocol):
-    """What tuikiln.equalize.EqualizeDetector gives back from `update` (duck-typed)."""
-
-    equalized: bool
-    words: str
 
 
 DetectorFactory = Callable[[float, float], Any]
@@ -86,6 +81,32 @@ def planned_temperature_before(steps: tuple[Step, ...], index: int) -> float | N
             return step.to_c
     return None
 
+def step_start_event(now: float, steps: tuple[Step, ...], index: int, units: Units) -> Event:
+    """The event a step's start is logged as (the stepper's and its array form's)."""
+    step = steps[index]
+    description = describe_step(step, units)
+    label = f" ({step.label})" if step.label else ""
+    return Event(now, ev.STEP_START, f"Step {index + 1} of {len(steps)}{label}: {description}",
+                 "info", {"index": index, "kind": step.kind, "description": description,
+                          "label": step.label})
+
+
+def step_end_event(now: float, steps: tuple[Step, ...], index: int, started_at: float | None,
+                   skipped: bool, hold_clock_s: float, out_of_band_s: float) -> Event:
+    """The event a step's end is logged as; a hold's carries its clock and time out of band."""
+    step = steps[index]
+    detail: dict[str, Any] = {"index": index, "kind": step.kind, "skipped": skipped,
+                              "seconds": 0.0 if started_at is None else now - started_at}
+    extra = ""
+    if isinstance(step, Hold):
+        detail["out_of_band_s"] = out_of_band_s
+        detail["hold_clock_s"] = hold_clock_s
+        if out_of_band_s >= 1.0:
+            extra = f" ({format_duration(out_of_band_s)} out of the band)"
+    how = "skipped" if skipped else "done"
+    return Event(now, ev.STEP_END, f"Step {index + 1} {how}{extra}", "info", detail)
+
+
 class Stepper:
     def __init__(
         self,
@@ -102,7 +123,7 @@ class Stepper:
         self.units: Units = units or profile.units
         self.detector_factory = detector_factory
         self.index = start_index
-        self.state = st.STARTING
+        self.state: st.StepState = st.STARTING
         self.setpoint_c: float | None = None
         self.target_c: float | None = None
         self.heat_off = False
@@ -227,8 +248,8 @@ class Stepper:
         out, self._pending = self._pending, []
         return out
 
-    def _set_state(self, now: float, state: str) -> None:
-        if state != self.state:
+    def _set_state(self, now: float, state: st.StepState, *, force: bool = False) -> None:
+        if force or state != self.state:
             self.state = state
             self.state_since = now
             self._emit(now, ev.STEP_STATE, self.words(), state=state, index=self.index,
@@ -290,13 +311,8 @@ class Stepper:
             if self.setpoint_c is None:
                 self.setpoint_c = self.target_c if self.target_c is not None else temp
             new_state = st.WAITING_YOU
-        description = describe_step(step, self.units)
-        label = f" ({step.label})" if step.label else ""
-        self._emit(now, ev.STEP_START, f"Step {self.index + 1} of {len(self.steps)}{label}: "
-                   f"{description}", index=self.index, kind=step.kind, description=description,
-                   label=step.label)
-        self.state = ""  # force the state event
-        self._set_state(now, new_state)
+        self._pending.append(step_start_event(now, self.steps, self.index, self.units))
+        self._set_state(now, new_state, force=True)  # a new step always tells its state
         if isinstance(step, Hold) and temp_c is not None:
             self._hold(now, 0.0, temp_c, None)
         if isinstance(step, Pause):
@@ -416,20 +432,10 @@ class Stepper:
         return self.acknowledged
 
     def _finish_step(self, now: float, skipped: bool = False) -> None:
-        step = self.step
-        if step is None:
+        if self.step is None:
             return
-        detail: dict[str, Any] = {"index": self.index, "kind": step.kind, "skipped": skipped,
-                                  "seconds": 0.0 if self.step_started_at is None
-                                  else now - self.step_started_at}
-        if isinstance(step, Hold):
-            detail["out_of_band_s"] = self.out_of_band_s
-            detail["hold_clock_s"] = self.hold_clock_s
-        how = "skipped" if skipped else "done"
-        extra = ""
-        if isinstance(step, Hold) and self.out_of_band_s >= 1.0:
-            extra = f" ({format_duration(self.out_of_band_s)} out of the band)"
-        self._emit(now, ev.STEP_END, f"Step {self.index + 1} {how}{extra}", **detail)
+        self._pending.append(step_end_event(now, self.steps, self.index, self.step_started_at,
+                                            skipped, self.hold_clock_s, self.out_of_band_s))
 
     def _advance(self, now: float, temp: float | None) -> None:
         self.index += 1

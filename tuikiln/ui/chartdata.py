@@ -19,7 +19,6 @@ from tuikiln.units import Units
 
 WHOLE_RUN = "whole run"
 LAST_HOUR = "last hour"
-ZOOMS = (WHOLE_RUN, LAST_HOUR)
 AHEAD_IN_LAST_HOUR_S = 900.0  # how much of the plan ahead the last-hour view shows
 ROOM_AXIS_C = 0.0
 

@@ -27,7 +27,6 @@ from tuikiln.thinning import min_max_buckets
 from tuikiln.ui.glyphs import BRAILLE_GLYPHS, Glyphs
 
 BRAILLE = np.array([chr(0x2800 + bits) for bits in range(256)] + [" "])
-EMPTY = 256
 # Bit of each dot in a braille cell, by (row 0-3, column 0-1) (Unicode braille patterns).
 DOT_BITS = np.array([[0x01, 0x08], [0x02, 0x10], [0x04, 0x20], [0x40, 0x80]], dtype=np.int32)
 AXIS_WIDTH = 6  # room for 5-character temperature labels and the axis line

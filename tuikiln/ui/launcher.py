@@ -19,7 +19,7 @@ import platformdirs
 
 from tuikiln import control
 from tuikiln.control import ActiveRun
-from tuikiln.errors import FileProblems, UserError
+from tuikiln.errors import UserError
 from tuikiln.kiln import Kiln, load_kiln
 from tuikiln.runlog import RunInfo, RunLog, default_data_dir, open_private, private_folder
 from tuikiln.ui.loglink import Control, LogLink
@@ -111,12 +111,3 @@ class Launcher:
         raise UserError("the run did not start: " + (" / ".join(words) or "no words from it"))
 
 
-def check_profile(path: Path, max_c: float | None) -> str | None:
-    """None when the profile reads, else its first problem in words."""
-    from tuikiln.profile import load_profile
-
-    try:
-        load_profile(path, max_c=max_c)
-    except FileProblems as exc:
-        return str(exc.problems[0]) if exc.problems else "it does not read"
-    return None

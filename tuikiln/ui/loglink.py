@@ -12,6 +12,7 @@ from typing import Any, Protocol
 
 import numpy as np
 
+from tuikiln.engine.states import RunState
 from tuikiln.errors import FileProblems, UserError
 from tuikiln.plan import plan_profile
 from tuikiln.profile import parse_profile
@@ -52,7 +53,7 @@ class LogLink:
         self._header = RunHeader(
             run_id=run.id, profile=profile, plan=plan_profile(profile, ROOM_C),
             started=run.started, kiln_name=run.kiln, units=run.units or profile.units,
-            outcome=run.outcome if run.outcome else (None if run.status == "running"
+            outcome=run.outcome if run.outcome else (None if run.status == RunState.RUNNING
                                                       else run.status),
             ended=run.ended, extra={"device": run.device, "speed": run.speed,
                                     "watch_only": run.watch_only,

@@ -9,6 +9,7 @@ from __future__ import annotations
 from collections.abc import Mapping
 from typing import Any
 
+from tuikiln.engine.states import RunState, StepState
 from tuikiln.plan import Plan
 from tuikiln.profile import Cool, Hold, Pause, Ramp
 from tuikiln.ui.runfeed import convert_temperatures, finite
@@ -16,12 +17,12 @@ from tuikiln.units import Units, format_duration, format_rate, format_temp
 
 ACK_KEY = "a"
 
-RUN_STATE_WORDS = {
-    "starting": "starting",
-    "running": "running",
-    "paused": "PAUSED by you",
-    "waiting-for-you": "WAITING FOR YOU",
-    "ended": "ended",
+RUN_STATE_WORDS: dict[str, str] = {
+    RunState.STARTING: "starting",
+    RunState.RUNNING: "running",
+    RunState.PAUSED: "PAUSED by you",
+    RunState.WAITING: "WAITING FOR YOU",
+    RunState.ENDED: "ended",
 }
 
 
@@ -41,42 +42,42 @@ def step_words(status: Mapping[str, Any], plan: Plan | None, units: Units) -> st
         target = step.to_c
     to_next = finite(status.get("time_to_next_step_s"))
     eq = status.get("equalization") or {}
-    if status.get("state") == "paused":
+    if status.get("state") == RunState.PAUSED:
         return f"paused by you at {format_temp(finite(status.get('setpoint_c')), units)}: " \
                "press r to resume"
-    if state == "heating":
+    if state == StepState.HEATING:
         rate = format_rate(step.rate_c_per_s, units) if isinstance(step, Ramp) else ""
         return f"heating to {format_temp(target, units)}" + (f" at {rate}" if rate else "")
-    if state == "heating-full":
+    if state == StepState.HEATING_FULL:
         return f"heating as fast as the oven goes to {format_temp(target, units)}"
-    if state == "reaching":
+    if state == StepState.REACHING:
         return f"waiting for the oven to reach {format_temp(target, units)}"
-    if state == "evening":
+    if state == StepState.EVENING:
         eta = finite(eq.get("eta_s"))
         return f"waiting for the load to even out: {about(eta)}"
-    if state == "holding":
+    if state == StepState.HOLDING:
         total = step.duration_s if isinstance(step, Hold) else None
         left = format_duration(to_next)
         of = f" of {format_duration(total)}" if total else ""
         return f"holding at {format_temp(target, units)}, {left}{of} left"
-    if state == "slipped":
+    if state == StepState.SLIPPED:
         return f"out of band at {format_temp(target, units)}: the hold clock is stopped"
-    if state == "cooling":
+    if state == StepState.COOLING:
         rate = format_rate(step.rate_c_per_s, units) if isinstance(step, Cool) else ""
         return f"cooling to {format_temp(target, units)}" + (f" at {rate}" if rate else "")
-    if state == "settling":
+    if state == StepState.SETTLING:
         return f"waiting for the oven to come down to {format_temp(target, units)}"
-    if state == "coasting":
+    if state == StepState.COASTING:
         return f"cooling with the heater off to {format_temp(target, units)}"
-    if state == "waiting-you":
+    if state == StepState.WAITING_YOU:
         # The pause's own words are in the full-width band above: here a short reminder.
         kind = "the quench" if isinstance(step, Pause) and "quench" in step.message.lower() \
             else "you"
         return f"WAITING FOR {kind.upper()}: press {ACK_KEY} when done"
-    if state == "done":
+    if state == StepState.DONE:
         return "every step is done"
     words = status.get("step_words")
-    return convert_temperatures(str(words), units) if words else str(state or "starting")
+    return convert_temperatures(str(words), units) if words else str(state or StepState.STARTING)
 
 
 def step_title(status: Mapping[str, Any], plan: Plan | None) -> str:
@@ -97,7 +98,8 @@ def times_ahead(status: Mapping[str, Any]) -> list[tuple[str, str]]:
     """(label, value) rows: next step, next time the person is needed, the end."""
     rows = [("next step", format_duration(finite(status.get("time_to_next_step_s"))))]
     operator = finite(status.get("time_to_operator_s"))
-    if status.get("step_state") == "waiting-you" or status.get("state") == "waiting-for-you":
+    if (status.get("step_state") == StepState.WAITING_YOU
+            or status.get("state") == RunState.WAITING):
         rows.append(("you're needed", "NOW"))
     else:
         rows.append(("you're needed", format_duration(operator) if operator is not None

@@ -16,6 +16,7 @@ from textual.screen import Screen
 from textual.widgets import DataTable, Static
 
 from tuikiln.control import ActiveRun
+from tuikiln.engine.states import Outcome, RunState
 from tuikiln.errors import UserError
 from tuikiln.limits import Limits
 from tuikiln.ovenmodel_plan import predict
@@ -39,8 +40,10 @@ if TYPE_CHECKING:
 ABOUT = ("Home. Pick a profile and press Enter to see its plan (s there starts it), or pick a "
          "past run and press Enter to replay it. Tab moves between the lists.")
 GOING_REFRESH_S = 3.0
-OUTCOME_MARK = {"completed": "✔", "running": "●", "aborted": "✖", "stopped-by-alarm": "✖",
-                "unfinished": "?", "engine-failed": "✖", "stopped-by-signal": "■"}
+OUTCOME_MARK: dict[str, str] = {Outcome.COMPLETED: "✔", RunState.RUNNING: "●", Outcome.ABORTED: "✖",
+                Outcome.STOPPED_BY_ALARM: "✖", Outcome.UNFINISHED: "?",
+                Outcome.ENGINE_FAILED: "✖", Outcome.STOPPED_BY_SIGNAL: "■",
+                Outcome.ENDED_AFTER_RESTART: "■"}
 
 
 def device_words(launcher: Launcher) -> str:
@@ -147,7 +150,7 @@ class HomeScreen(Screen[None]):
         for run in runs:
             status = run.status
             length = format_duration((run.ended or time.time()) - run.started) if (
-                run.ended or status == "running") else "--"
+                run.ended or status == RunState.RUNNING) else "--"
             started = time.strftime("%d %b %H:%M", time.localtime(run.wall_started or
                                                                    run.started))
             runs_table.add_row(str(run.id), run.profile[:28], started, length,
@@ -181,7 +184,7 @@ class HomeScreen(Screen[None]):
             if not self.run_list:
                 return
             run = self.run_list[focused.cursor_row]
-            if run.status == "running":
+            if run.status == RunState.RUNNING:
                 self.open_live(run.id)
             else:
                 self.app.push_screen(ReplayScreen(self.launcher.link(run.id, live=False)))

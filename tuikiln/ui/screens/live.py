@@ -20,6 +20,7 @@ from textual.css.query import NoMatches
 from textual.screen import Screen
 from textual.widgets import Static
 
+from tuikiln.engine.states import SCREEN_BELL, RunState, StepState
 from tuikiln.profile import Pause
 from tuikiln.ui.chartdata import LAST_HOUR, WHOLE_RUN, live_chart
 from tuikiln.ui.runfeed import RunHeader, RunLink, SampleBuffer, finite
@@ -43,7 +44,6 @@ if TYPE_CHECKING:
 ABOUT = ("The live run. The chart shows the chamber, the load (or its estimated core), the "
          "setpoint so far and the plan ahead of now (dashed). Leaving with q leaves the run "
          "going; come back with `tuikiln watch`.")
-BELL_KINDS = ("alarm-raised", "operator-needed")
 
 
 class LiveScreen(Screen[None]):
@@ -145,7 +145,7 @@ class LiveScreen(Screen[None]):
         if events:
             self.last_event_id = max(int(e.get("id", 0)) for e in events)
             self.query_one(EventLog).add_events(events)
-            if any(e.get("kind") in BELL_KINDS for e in events):
+            if any(e.get("kind") in SCREEN_BELL for e in events):
                 self.ring()
         self.status = status
         for alarm in unacknowledged(status):
@@ -192,13 +192,13 @@ class LiveScreen(Screen[None]):
     def last_reading_status(self) -> dict[str, Any]:
         """For a run with no engine: its last sample as a status object."""
         if not len(self.samples):
-            return {"state": "ended"}
+            return {"state": RunState.ENDED}
         last = {name: float(self.samples.column(name)[-1]) for name in
                 ("chamber_c", "load_c", "core_c", "setpoint_c", "output_pct")}
         step = int(self.samples.column("step")[-1])
         outcome = self.header.outcome if self.header else None
-        return {**last, "state": "ended", "step": step if step >= 0 else None,
-                "step_state": outcome or "ended", "step_words": outcome or "no engine"}
+        return {**last, "state": RunState.ENDED, "step": step if step >= 0 else None,
+                "step_state": outcome or RunState.ENDED, "step_words": outcome or "no engine"}
 
     def units_changed(self, units: str) -> None:
         self.query_one(EventLog).units = units
@@ -209,7 +209,7 @@ class LiveScreen(Screen[None]):
             self.app.bell()
 
     def maybe_auto_acknowledge(self) -> None:
-        waiting = self.status is not None and self.status.get("step_state") == "waiting-you"
+        waiting = self.status is not None and self.status.get("step_state") == StepState.WAITING_YOU
         if not waiting:
             self.waiting_since = None
             self.show_notice("")
@@ -314,7 +314,7 @@ class LiveScreen(Screen[None]):
 
     def action_leave(self) -> None:
         words = self.leave_words
-        if (self.status is not None and self.status.get("state") == "ended"
+        if (self.status is not None and self.status.get("state") == RunState.ENDED
                 and "goes on" in words):  # the words for a run that is still going
             words = f"Run {self.status.get('run')} has ended: see it with `tuikiln replay last`."
         leave: Callable[[str], None] | None = getattr(self.app, "leave", None)

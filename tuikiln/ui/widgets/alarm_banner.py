@@ -9,6 +9,7 @@ from rich.text import Text
 from textual.reactive import reactive
 from textual.widgets import Static
 
+from tuikiln.ui.glyphs import BRAILLE_GLYPHS
 from tuikiln.ui.words import alarm_line
 from tuikiln.units import Units
 
@@ -48,7 +49,8 @@ class AlarmBanner(Static):
         for index, alarm in enumerate(alarms):
             if index:
                 text.append("\n")
-            text.append(alarm_line(alarm, self.units))
+            text.append(getattr(self.app, "glyphs", BRAILLE_GLYPHS).plain(
+                alarm_line(alarm, self.units)))
         if text.plain != getattr(self, "_shown", None):  # an update costs a layout pass
             self._shown = text.plain
             self.update(text)

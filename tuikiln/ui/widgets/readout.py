@@ -11,6 +11,7 @@ from textual.containers import Horizontal, Vertical
 from textual.reactive import reactive
 from textual.widgets import Digits, Static
 
+from tuikiln.engine.states import StepState
 from tuikiln.plan import Plan
 from tuikiln.ui.glyphs import BRAILLE_GLYPHS
 from tuikiln.ui.runfeed import finite
@@ -100,7 +101,7 @@ class Readout(Vertical):
         output = finite(status.get("output_pct"))
         lines.append(f"heater  {output:.0f} %" if output is not None else "heater  --")
         setpoint = finite(status.get("setpoint_c"))
-        if status.get("step_state") == "coasting" and (setpoint is None or setpoint <= 1.0):
+        if status.get("step_state") == StepState.COASTING and (setpoint is None or setpoint <= 1.0):
             lines.append(" · heat off")  # a free cool: the setpoint is only "as low as it goes"
         else:
             lines.append(f" · set {format_temp(setpoint, units)}")

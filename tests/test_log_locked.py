@@ -1,0 +1,148 @@
+"""Issue 20: a run log another program holds locked neither stalls the engine nor loses a
+sample. The engine's log writes run in a thread of their own (tuikiln/logqueue.py); the
+samples queue in memory (bounded, with a warning near the bound), the oldest past the bound
+spill to a file beside the log, and everything is written, in order, once the lock goes.
+
+A real second sqlite3 connection holds `BEGIN EXCLUSIVE` on the real file while the real
+engine runs drivers/fake.py's first-order oven on a manual clock. The rules checked are
+tuikiln's own (tuikiln/runlog.py's docstring); no published source applies.
+"""
+
+from __future__ import annotations
+
+import asyncio
+import sqlite3
+
+import numpy as np
+import pytest
+
+from tests.test_recovery import Sink
+from tuikiln import events as ev
+from tuikiln.drivers.fake import FirstOrderOven, ManualClock, ScriptedDevice
+from tuikiln.engine import states as st
+from tuikiln.engine.runner import KilnInfo, RunEngine
+from tuikiln.limits import Limits
+from tuikiln.profile import parse_profile
+from tuikiln.runlog import RunLog
+
+LONG_HOLD = """
+name = "long hold"
+units = "C"
+[[step]]
+ramp = "300/h"
+to = 500
+[[step]]
+hold = "5h"
+"""
+LOCKED_TICKS = 1500  # readings taken while the other program holds the lock (at least)
+
+
+class Locker(Sink):
+    """Takes the write lock at the 50th reading, counts what the engine does while it is
+    held, lowers the queue bound so that the spill is reached, and aborts the run (a local
+    command) while the lock is still held (once the writer has said it cannot write), so
+    the run's end must wait for it too."""
+
+    def __init__(self, db_path, device: ScriptedDevice, bound: int) -> None:
+        super().__init__()
+        self.holder = sqlite3.connect(db_path, isolation_level=None)
+        self.device = device
+        self.bound = bound
+        self.readings = 0
+        self.locked_at: int | None = None
+        self.writes_before = 0
+        self.ticks_locked = 0
+        self.logged_when_aborted = -1
+        self.aborted = False
+
+    def reading(self, sample) -> None:
+        self.readings += 1
+        engine = self.engine
+        if self.readings == 50:
+            engine.recorder.queue_bound = self.bound
+            self.holder.execute("BEGIN EXCLUSIVE")  # another program writing, for a long time
+            self.locked_at = self.readings
+            self.writes_before = len(self.device.setpoint_writes)
+        elif self.locked_at is not None and self.holder.in_transaction:
+            self.ticks_locked += 1
+            troubled = (ev.ALARM_RAISED, "log-trouble") in [
+                (e.kind, e.detail.get("alarm")) for e in self.events]
+            if self.ticks_locked >= LOCKED_TICKS and troubled and not self.aborted:
+                self.aborted = True
+                self.logged_when_aborted = engine.runlog.sample_count(engine.run_id)
+                engine.command("abort", "test over", "socket")
+
+    def release(self) -> None:
+        self.holder.rollback()
+        self.holder.close()
+
+
+async def release_when(condition, action) -> None:
+    while not condition():
+        await asyncio.sleep(0.02)  # polls a condition; the engine's thread does the waiting
+    action()
+
+
+@pytest.mark.parametrize("bound", [1_000_000, 400], ids=["in memory", "spilled"])
+async def test_a_locked_log_keeps_the_engine_going_and_loses_no_sample(tmp_path, bound):
+    log = RunLog.in_folder(tmp_path)
+    device = ScriptedDevice(model=FirstOrderOven(tau_s=300.0), clock=ManualClock(1e6))
+    sink = Locker(log.path, device, bound)
+    profile = parse_profile(LONG_HOLD, "p.toml", max_c=1100.0)
+    engine = RunEngine(device, profile, kiln=KilnInfo("Test oven", "C", 1100.0),
+                       limits=Limits(), runlog=log, sinks=[sink], tick_s=2.0)
+    sink.engine = engine
+
+    def end_waits_for_the_lock() -> bool:  # the run has ended; its writer still retries
+        rec = engine.recorder
+        return engine.outcome is not None and rec is not None and rec.trouble is not None
+
+    releaser = asyncio.create_task(release_when(end_waits_for_the_lock, sink.release))
+    try:
+        outcome = await engine.run()
+    finally:
+        if not releaser.done():
+            releaser.cancel()
+            sink.release()
+    assert outcome == st.ABORTED
+    # While the lock was held the engine kept reading, deciding and commanding the oven ...
+    assert sink.ticks_locked >= LOCKED_TICKS
+    assert len(device.setpoint_writes) - sink.writes_before >= 10  # a 300/h ramp moves it
+    kinds = [(e.kind, e.detail.get("alarm")) for e in sink.events]
+    assert (ev.ALARM_RAISED, "log-trouble") in kinds  # ... and its alarms were evaluated
+    assert sink.logged_when_aborted <= 50  # nothing got past the lock meanwhile
+    if bound < LOCKED_TICKS:
+        warning = next(e for e in sink.events if e.kind == ev.LOG_QUEUE)
+        assert warning.detail["bound"] == bound and warning.detail["queued"] >= 0.8 * bound
+        assert engine.recorder.spilled > 0
+    else:
+        assert not any(e.kind == ev.LOG_QUEUE for e in sink.events)
+    # Once the lock went, everything was written: every tick's sample, in order, and every
+    # event, the run's end included.
+    reader = RunLog.in_folder(tmp_path)
+    samples = reader.samples(engine.run_id)
+    assert reader.sample_count(engine.run_id) == len(samples["t"]) == engine.ticks + 1
+    assert np.all(np.diff(samples["t"]) > 0)
+    assert len(reader.events(engine.run_id)) == len(sink.events)
+    assert reader.run(engine.run_id).outcome == st.ABORTED
+    assert not engine.recorder.spill.exists() and not engine.recorder.mark.path.exists()
+
+
+def test_samples_left_in_a_spill_are_written_by_the_next_engine(tmp_path):
+    log = RunLog.in_folder(tmp_path)
+    recorder = log.start_run(kiln="k", profile="p", started=0.0)
+    recorder.write_in_background()
+    holder = sqlite3.connect(log.path, isolation_level=None)
+    holder.execute("BEGIN EXCLUSIVE")
+    for i in range(300):
+        recorder.sample(float(i), 100.0 + i, None, None, 100.0, 10.0, 0, 1, 0)
+    assert not recorder.close(wait_s=0.5)  # still locked: the queue goes to the spill
+    assert recorder.spill.exists()
+    holder.rollback()
+    holder.close()
+    assert log.sample_count(recorder.run_id) == 0
+    later = log.start_run(kiln="k", profile="p", started=400.0)  # the next run's engine
+    assert not recorder.spill.exists()
+    chamber = log.samples(recorder.run_id)["chamber_c"]
+    assert len(chamber) == 300 and np.array_equal(chamber, 100.0 + np.arange(300))
+    later.close()
