@@ -14,10 +14,10 @@ from __future__ import annotations
 
 import contextlib
 import os
-import subprocess
 
 import pytest
 
+from tests.test_disk_trouble import tiny_disk  # noqa: F401 - a fixture (a 160 KiB tmpfs)
 from tests.test_recovery import Sink, dead_pid
 from tuikiln import events as ev
 from tuikiln.drivers.fake import FirstOrderOven, ManualClock, ScriptedDevice
@@ -141,22 +141,6 @@ async def test_an_end_the_database_refused_is_kept_and_the_restart_does_not_heat
     await restart_and_check(log, model, clock, engine.run_id)
 
 
-@pytest.fixture
-def tiny_disk(tmp_path):
-    folder = tmp_path / "tiny"
-    folder.mkdir()
-    if os.geteuid() != 0:
-        pytest.skip("mounting a tiny tmpfs needs root")
-    done = subprocess.run(["mount", "-t", "tmpfs", "-o", "size=256k", "tmpfs", str(folder)],
-                          capture_output=True, text=True)
-    if done.returncode != 0:
-        pytest.skip(f"cannot mount a tmpfs here: {done.stderr.strip()}")
-    try:
-        yield folder
-    finally:
-        subprocess.run(["umount", "-l", str(folder)], capture_output=True)
-
-
 def fill_to_the_last_byte(folder) -> None:
     fd = os.open(folder / "filler", os.O_WRONLY | os.O_CREAT | os.O_APPEND, 0o600)
     try:
@@ -168,7 +152,7 @@ def fill_to_the_last_byte(folder) -> None:
         os.close(fd)
 
 
-async def test_an_abort_on_a_really_full_disk_does_not_heat_again_on_restart(tiny_disk,
+async def test_an_abort_on_a_really_full_disk_does_not_heat_again_on_restart(tiny_disk,  # noqa: F811
                                                                              short_close):
     clock = ManualClock(1_000_000.0)
     model = FirstOrderOven(tau_s=300.0)
@@ -202,3 +186,35 @@ async def test_an_abort_on_a_really_full_disk_does_not_heat_again_on_restart(tin
     else:
         log._conn.execute("UPDATE runs SET pid = ? WHERE id = ?", (dead_pid(), engine.run_id))
         assert recovery.find_unfinished(log, "Test oven") is None  # nothing to carry on
+
+
+async def restart_on_a_log_that_refuses(tmp_path, refuse) -> None:
+    """kill -9 mid-hold (the controller left heating), then a restart whose run log cannot
+    take the run (`refuse(folder)`): one clear error, and the oven driven safe first. (On a
+    real full tmpfs the restart's one-page write often still fits in the WAL file, so the
+    refusal is made certain with SQLite's own error words.)"""
+    from tests.test_recovery import HOLD, crashed_run, engine_for, in_hold_for
+    from tuikiln.engine.runner import CannotLog
+
+    log, model, clock, _ = await crashed_run(tmp_path, HOLD, in_hold_for(60.0))
+    assert model.heating
+    refuse(tmp_path)
+    info = recovery.find_unfinished(log, "Test oven")
+    plan = recovery.plan_resume(log, info, "continue", now=clock.now())
+    device = ScriptedDevice(model=model, clock=clock)
+    with pytest.raises(CannotLog) as caught:
+        await engine_for(HOLD, device, log, Sink(), resume=plan).run()
+    assert caught.value.exit_code == 4
+    words = str(caught.value)
+    assert "full" in words and "driven safe" in words and "\n" not in words
+    assert not model.heating and not any(value > 0.0 for _, value in device.setpoint_writes)
+
+
+async def test_a_restart_the_log_cannot_take_drives_safe_and_says_so(tmp_path):
+    def refuse(folder) -> None:
+        RunLog.in_folder(folder)._conn.execute(
+            "CREATE TRIGGER full BEFORE UPDATE OF pid ON runs "
+            "BEGIN SELECT RAISE(FAIL, 'database or disk is full'); END")
+
+    await restart_on_a_log_that_refuses(tmp_path, refuse)
+

@@ -17,6 +17,7 @@ import numpy as np
 import pytest
 
 from tests.test_recovery import Sink
+from tests.waiting import eventually
 from tuikiln import events as ev
 from tuikiln.drivers.fake import FirstOrderOven, ManualClock, ScriptedDevice
 from tuikiln.engine import states as st
@@ -77,12 +78,6 @@ class Locker(Sink):
         self.holder.close()
 
 
-async def release_when(condition, action) -> None:
-    while not condition():
-        await asyncio.sleep(0.02)  # polls a condition; the engine's thread does the waiting
-    action()
-
-
 @pytest.mark.parametrize("bound", [1_000_000, 400], ids=["in memory", "spilled"])
 async def test_a_locked_log_keeps_the_engine_going_and_loses_no_sample(tmp_path, bound):
     log = RunLog.in_folder(tmp_path)
@@ -97,7 +92,11 @@ async def test_a_locked_log_keeps_the_engine_going_and_loses_no_sample(tmp_path,
         rec = engine.recorder
         return engine.outcome is not None and rec is not None and rec.trouble is not None
 
-    releaser = asyncio.create_task(release_when(end_waits_for_the_lock, sink.release))
+    async def release_when_the_end_waits() -> None:
+        await eventually(end_waits_for_the_lock, 60, "the run's end to wait for the lock")
+        sink.release()
+
+    releaser = asyncio.create_task(release_when_the_end_waits())
     try:
         outcome = await engine.run()
     finally:

@@ -30,7 +30,6 @@ from tuikiln.events import Event
 if TYPE_CHECKING:
     from tests.mqtt_broker import Broker
 
-pytest_plugins = ["tests.mqtt_broker"]
 MOSQUITTO_SUB = shutil.which("mosquitto_sub")
 DATE = shutil.which("date")
 

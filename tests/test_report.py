@@ -223,7 +223,10 @@ def test_report_units_convert_every_temperature(reports, capsys) -> None:  # noq
     assert main(["--data", str(folder), "report", "last", "-o", "-", "--units", "F"]) == 0
     text = capsys.readouterr().out
     assert "932 °F" in text and "500 °C" not in text.split("Alarms:")[0]
-    assert "(the alarms' words are as the engine logged them, in °C)" in text
+    # The alarms carry their numbers (issue 17): their words are in °F too, with no note.
+    alarms = text.split("Alarms:")[1].split("\n\n")[0]
+    assert "°F" in alarms and "°C" not in alarms, alarms
+    assert "as the engine logged them" not in text
     assert main(["--data", str(folder), "report", "last", "-o", "-"]) == 0
     default = capsys.readouterr().out
     assert "500 °C" in default and "°F" not in default  # default: the run's own units

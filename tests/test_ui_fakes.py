@@ -12,7 +12,7 @@ from collections.abc import Mapping
 from pathlib import Path
 from typing import Any
 
-from tuikiln.events import Event
+from tuikiln.events import DIFFERENCE, TEMPERATURE, Event, Said, say
 from tuikiln.plan import plan_profile
 from tuikiln.profile import load_profile
 from tuikiln.runlog import RunLog
@@ -21,6 +21,11 @@ from tuikiln.ui.loglink import LogLink
 ROOT = Path(__file__).resolve().parents[1]
 DEMO_PROFILE = ROOT / "profiles" / "demo-harden-temper.toml"
 T0 = 1_700_000_000.0
+
+# An alarm as the engine says it: the numbers apart (1530 °F = 832.2 °C; 40 °F of
+# difference is 22.2 K; °F = °C x 9/5 + 32, NIST SP 811 B.9), so a screen shows either units.
+OVERSHOOT = say("chamber {t}, {d} above the target", t=(TEMPERATURE, (1530.0 - 32.0) / 1.8),
+                d=(DIFFERENCE, 40.0 / 1.8))
 
 
 class ScriptedEngine:
@@ -59,10 +64,16 @@ class ScriptedEngine:
                                  40.0, self.step, 1, 0)
         self.recorder.flush(force=True)
 
-    def raise_alarm(self, code: str, words: str, severity: str = "warning") -> None:
-        self.alarms.append({"code": code, "severity": severity, "words": words,
-                            "acknowledged": False, "since": self.t})
-        self.event("alarm-raised", words, severity, alarm=code)
+    def raise_alarm(self, code: str, words: str | Said, severity: str = "warning") -> None:
+        """`words`: plain text (as an older log stores it) or Said (as the engine says it:
+        the numbers kept apart, tuikiln.events)."""
+        said = words if isinstance(words, Said) else None
+        text = said.text("F") if said is not None else str(words)
+        numbers = said.as_detail() if said is not None else {}
+        self.alarms.append({"code": code, "severity": severity, "words": text,
+                            "acknowledged": False, "since": self.t, **numbers})
+        self.event("alarm-raised", text, severity, alarm=code, words=text, **numbers,
+                   **({"words_template": said.template} if said is not None else {}))
 
     def enter_pause(self) -> None:
         self.step = 4

@@ -7,7 +7,7 @@ from pathlib import Path
 
 from textual.widgets import Input
 
-from tests.test_ui_fakes import ScriptedEngine, screen_text
+from tests.test_ui_fakes import OVERSHOOT, ScriptedEngine, screen_text
 from tuikiln.ui.app import TuikilnApp
 from tuikiln.ui.chartdraw import strips_text
 from tuikiln.ui.screens.confirm import ConfirmScreen
@@ -46,7 +46,7 @@ async def test_alarm_shows_without_colour_and_is_acknowledged(tmp_path: Path) ->
     engine.advance(60)
     async with make_app(engine).run_test(size=SIZE) as pilot:
         await settle(pilot)
-        engine.raise_alarm("overshoot", "chamber 1530 °F, 40 °F above the target")
+        engine.raise_alarm("overshoot", OVERSHOOT)
         await settle(pilot)
         banner = pilot.app.screen.query_one(AlarmBanner)
         assert banner.display and banner.has_class("-active")
@@ -62,7 +62,7 @@ async def test_alarm_shows_without_colour_and_is_acknowledged(tmp_path: Path) ->
 async def test_unit_switch_converts_every_value(tmp_path: Path) -> None:
     engine = ScriptedEngine(tmp_path)
     engine.advance(1800)
-    engine.raise_alarm("overshoot", "chamber 1530 °F, 40 °F above the target")
+    engine.raise_alarm("overshoot", OVERSHOOT)
     async with make_app(engine, units="F").run_test(size=SIZE) as pilot:
         await settle(pilot, 0.3)
         fahrenheit = screen_text(pilot.app.screen)
@@ -161,7 +161,7 @@ async def test_leaving_keeps_the_run_going(tmp_path: Path) -> None:
 async def test_everything_that_matters_shows_at_80x24(tmp_path: Path) -> None:
     engine = ScriptedEngine(tmp_path)
     engine.advance(1800)
-    engine.raise_alarm("overshoot", "chamber 1530 °F, 40 °F above the target")
+    engine.raise_alarm("overshoot", OVERSHOOT)
     async with make_app(engine).run_test(size=(80, 24)) as pilot:
         await settle(pilot, 0.3)
         screen = pilot.app.screen

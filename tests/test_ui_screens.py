@@ -6,7 +6,7 @@ from __future__ import annotations
 from collections.abc import Callable
 from pathlib import Path
 
-from tests.test_ui_fakes import DEMO_PROFILE, ScriptedEngine, screen_text
+from tests.test_ui_fakes import DEMO_PROFILE, OVERSHOOT, ScriptedEngine, screen_text
 from tests.waiting import eventually
 from tuikiln import control
 from tuikiln.ui.app import TuikilnApp
@@ -25,7 +25,7 @@ def past_run(data_dir: Path) -> ScriptedEngine:
     engine = ScriptedEngine(data_dir)
     engine.event("step-start", "Step 1 of 8 (preheat): heat at 900°F/h to 1200 °F", index=0)
     engine.advance(1200)
-    engine.raise_alarm("overshoot", "chamber 1530 °F, 40 °F above the target")
+    engine.raise_alarm("overshoot", OVERSHOOT)
     engine.event("note", "Note: blade looks even", text="blade looks even")
     engine.advance(600)
     engine.recorder.end("aborted", engine.t)

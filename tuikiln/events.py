@@ -7,9 +7,12 @@ terminal, MQTT, command hooks). A sink must never block or raise into the engine
 
 from __future__ import annotations
 
+import string
 from collections.abc import Mapping
 from dataclasses import dataclass, field
 from typing import Any, Protocol
+
+from tuikiln.units import Units, delta_from_c, format_duration, format_rate, format_temp, symbol
 
 # Event kinds (stable strings: they are stored in run logs and sent over MQTT).
 RUN_START = "run-start"
@@ -33,6 +36,109 @@ ALERT_FAILED = "alert-failed"            # a hook or publisher failed; detail: c
 LOG_QUEUE = "log-queue"                  # samples wait for the run log; detail: queued, bound
 
 SEVERITIES = ("info", "warning", "critical")
+
+# Units as data: an event's words keep their numbers apart. detail["template"] is the
+# message with "{name}" where a number goes; detail["numbers"] holds each as {"kind": ...,
+# "value": ...} in the engine's inside units, so a screen or report shows it in its own
+# units. Nothing rewrites a sentence: a difference is a difference because it says so.
+TEMPERATURE = "temperature"    # °C
+DIFFERENCE = "difference"      # kelvin: converts by 9/5 only, never with the 32° offset
+RATE = "rate"                  # °C per second
+DURATION = "duration"          # seconds
+NUMBER_KINDS = (TEMPERATURE, DIFFERENCE, RATE, DURATION)
+
+
+def format_number(kind: str, value: float | None, units: Units) -> str:
+    """One number of an event's words, in `units`."""
+    if kind == TEMPERATURE:
+        return format_temp(value, units)
+    if kind == DIFFERENCE:
+        if value is None or value != value:
+            return "--"
+        # Whole degrees; round first so a small negative difference never shows as "-0".
+        return f"{int(round(delta_from_c(value, units)))} {symbol(units)}"
+    if kind == RATE:
+        return format_rate(value, units)
+    return format_duration(value)
+
+
+def literal(text: str) -> str:
+    """Words (a label, a person's note) put into a template as they are."""
+    return text.replace("{", "{{").replace("}", "}}")
+
+
+@dataclass(frozen=True)
+class Said:
+    """Words with their numbers kept as numbers: say("{t} is over {limit}", t=(TEMPERATURE,
+    812.0), limit=(TEMPERATURE, 800.0)).text("F") -> '1494 °F is over 1472 °F'."""
+
+    template: str
+    numbers: Mapping[str, tuple[str, float | None]] = field(default_factory=dict)
+
+    def text(self, units: Units) -> str:
+        shown = render(self.template, self.numbers, units)
+        assert shown is not None, self.template  # the engine's own templates always fit
+        return shown
+
+    def after(self, words: str) -> Said:
+        """These words with `words` before them."""
+        return Said(literal(words) + self.template, self.numbers)
+
+    def as_detail(self) -> dict[str, Any]:
+        return {"template": self.template,
+                "numbers": {name: {"kind": kind, "value": value}
+                            for name, (kind, value) in self.numbers.items()}}
+
+
+def say(template: str, **numbers: tuple[str, float | None]) -> Said:
+    return Said(template, numbers)
+
+
+def render(template: str, numbers: Mapping[str, tuple[str, float | None]],
+           units: Units) -> str | None:
+    """The template with each "{name}" shown in `units`; None when it does not fit (a
+    stored template names a number it lacks, or asks for more than a plain name)."""
+    out: list[str] = []
+    try:
+        for text, name, spec, conversion in string.Formatter().parse(template):
+            out.append(text)
+            if name is None:
+                continue
+            if spec or conversion or name not in numbers:
+                return None
+            kind, value = numbers[name]
+            out.append(format_number(kind, value, units))
+    except ValueError:  # unbalanced braces in a stored template
+        return None
+    return "".join(out)
+
+
+def said_text(holder: Mapping[str, Any], units: Units, key: str = "template") -> str | None:
+    """The words a stored detail (or status alarm) carries as a template, in `units`; None
+    when it carries none or they do not fit (then show the stored words)."""
+    template, stored = holder.get(key), holder.get("numbers")
+    if not isinstance(template, str) or not isinstance(stored, Mapping):
+        return None
+    numbers: dict[str, tuple[str, float | None]] = {}
+    for name, number in stored.items():
+        if not isinstance(number, Mapping) or number.get("kind") not in NUMBER_KINDS:
+            return None
+        value = number.get("value")
+        if value is not None and (isinstance(value, bool) or not isinstance(value, int | float)):
+            return None
+        numbers[str(name)] = (str(number["kind"]), None if value is None else float(value))
+    return render(template, numbers, units)
+
+
+def event_text(event: Mapping[str, Any], units: Units) -> str:
+    """An event's words in `units`: from its numbers where it carries them, else the words
+    it was stored with (an older log, a message with no temperature in it)."""
+    detail = event.get("detail")
+    if isinstance(detail, Mapping):
+        shown = said_text(detail, units)
+        if shown is not None:
+            return shown
+    return str(event.get("message") or event.get("kind") or "")
 
 
 @dataclass(frozen=True)

@@ -14,6 +14,7 @@ from typing import Any, Literal
 
 from tuikiln.drivers.checking import suggest, unknown_key
 from tuikiln.errors import FileProblems, Problem
+from tuikiln.events import RATE, TEMPERATURE, Said, literal, say
 from tuikiln.limits import parse_limits
 from tuikiln.tomllines import LineMap, load_toml, read_text
 from tuikiln.units import (
@@ -369,17 +370,21 @@ class _Checker:
 
 def describe_step(step: Step, units: Units) -> str:
     """A step in plain words, e.g. 'ramp at 400°F/h to 1200 °F'."""
-    from tuikiln.units import format_duration, format_rate
+    return describe_step_said(step).text(units)
 
-    if isinstance(step, Ramp):
-        how = "as fast as the oven goes" if step.rate_c_per_s is None else (
-            f"at {format_rate(step.rate_c_per_s, units)}")
-        return f"heat {how} to {format_temp(step.to_c, units)}"
+
+def describe_step_said(step: Step) -> Said:
+    """The same words with the temperature and rate kept as numbers (an event's detail)."""
+    from tuikiln.units import format_duration
+
+    if isinstance(step, Ramp | Cool):
+        verb = "heat" if isinstance(step, Ramp) else "cool"
+        fast = "as fast as the oven goes" if isinstance(step, Ramp) else "with the heater off"
+        if step.rate_c_per_s is None:
+            return say(f"{verb} {fast} to {{to}}", to=(TEMPERATURE, step.to_c))
+        return say(f"{verb} at {{rate}} to {{to}}", rate=(RATE, step.rate_c_per_s),
+                   to=(TEMPERATURE, step.to_c))
     if isinstance(step, Hold):
         when = "once the load has evened out" if step.start == "equalized" else "once reached"
-        return f"hold {format_duration(step.duration_s)} {when}"
-    if isinstance(step, Cool):
-        how = "with the heater off" if step.rate_c_per_s is None else (
-            f"at {format_rate(step.rate_c_per_s, units)}")
-        return f"cool {how} to {format_temp(step.to_c, units)}"
-    return f"wait for you: {step.message}"
+        return Said(literal(f"hold {format_duration(step.duration_s)} {when}"))
+    return Said("wait for you: " + literal(step.message))

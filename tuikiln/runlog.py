@@ -28,6 +28,14 @@ When a write fails (disk full, file made read-only) nothing is lost from memory:
 recorder keeps the rows, sets `trouble` to the reason (the engine raises an alarm) and tries
 again a few seconds later. The run goes on.
 
+The engine's recorder writes from a thread of its own (`write_in_background`, see
+tuikiln/logqueue.py): its loop only queues rows, so a log another program holds locked for
+minutes, or a slow fsync, never delays a reading or a setpoint. The queue is bounded
+(MEMORY_QUEUE_ROWS, the engine warns at QUEUE_WARN_FRACTION of it); past the bound the oldest
+samples spill to `runs.sqlite.run-N.spill` and are written back first, so the order holds.
+A spill still there when the run's process ends (CLOSE_WAIT_S) is written by the next
+engine that opens the log. Events and the end are not spilled: the end has its mark.
+
 A run's end must survive a disk that is full at that moment: otherwise the run would look
 unfinished and a restart with `on_restart = "continue"` would heat the oven again after an
 abort. So each run keeps a small *end mark* beside the database (`EndMark`, the file

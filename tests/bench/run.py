@@ -27,6 +27,7 @@ MODULES = [
     "sim_speed",
     "engine_speed",
     "runlog_write",
+    "log_lock",
     "replay_speed",
     "whatif_speed",
     "chart_redraw",

@@ -222,7 +222,7 @@ class Replay:
 def _alarm_dict(alarm: AlarmSpan, start_t: float) -> dict[str, Any]:
     severity, name = ALARMS.get(alarm.code, (alarm.severity, alarm.code))
     return {"code": alarm.code, "name": name, "severity": alarm.severity, "words": alarm.words,
-            "raised_s": alarm.raised_t - start_t,
+            "words_as_logged": alarm.as_logged, "raised_s": alarm.raised_t - start_t,
             "cleared_s": None if alarm.cleared_t is None else alarm.cleared_t - start_t}
 
 
@@ -319,7 +319,7 @@ def replay_run(
               "text": str((e.get("detail") or {}).get("text") or e["message"])}
              for e in logged_events if e["kind"] == ev.NOTE]
     result = Replay(profile, limits, units, trace, steps, verdict, reasons,
-                    alarm_spans(rule_events), rule_events, outcome, source,
+                    alarm_spans(rule_events, units), rule_events, outcome, source,
                     run=dict(run or {}), notes=notes, rerun=rerun_result)
     result.temper = temper_figures(result, c)
     result.quench = quench_figures(result, quench_below_c)
@@ -354,7 +354,7 @@ class _Analysis:
                 self.ends[int(index)] = e
             elif e["kind"] == ev.EQUALIZED:
                 self.equalized.setdefault(int(index), float(e["time"]))
-        self.alarms = alarm_spans(events)
+        self.alarms = alarm_spans(events, units)
         self.target = _targets(profile, trace)
 
     # ----- where each step is in the samples -----

@@ -118,12 +118,13 @@ def _alarm_line(a: Mapping[str, Any]) -> str:
 
 
 def _alarm_lines(result: Replay) -> list[str]:
-    """The alarms, and a word when their sentences (as the engine logged them, in the run's
-    units) are in other units than the rest of the report."""
-    lines = [_alarm_line(a) for a in result.as_dict()["alarms"]]
+    """The alarms, and a word when some of their sentences (an older log's, which carry no
+    numbers) are as the engine logged them, in other units than the rest of the report."""
+    alarms = result.as_dict()["alarms"]
+    lines = [_alarm_line(a) for a in alarms]
     logged_units = result.run.get("units")
-    if lines and result.source == "log" and logged_units in ("C", "F") and (
-            logged_units != result.units):
+    if any(a.get("words_as_logged") for a in alarms) and result.source == "log" and (
+            logged_units in ("C", "F") and logged_units != result.units):
         lines.append(f"(the alarms' words are as the engine logged them, in "
                      f"{symbol(logged_units)})")
     return lines

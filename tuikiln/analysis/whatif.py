@@ -242,10 +242,15 @@ class AlarmSpan:
     words: str
     raised_t: float
     cleared_t: float | None
+    as_logged: bool = False
+    """The words are the stored sentence (an older log, whose alarms carry no numbers), in
+    the units it was logged in, not in the units asked for."""
 
 
-def alarm_spans(events: Sequence[Mapping[str, Any]]) -> list[AlarmSpan]:
-    """Raised alarms with when they cleared (None: still active at the end of the log)."""
+def alarm_spans(events: Sequence[Mapping[str, Any]], units: Units | None = None
+                ) -> list[AlarmSpan]:
+    """Raised alarms with when they cleared (None: still active at the end of the log),
+    their words in `units` where the events carry their numbers."""
     open_: dict[str, dict[str, Any]] = {}
     spans: list[AlarmSpan] = []
     for event in events:
@@ -257,17 +262,25 @@ def alarm_spans(events: Sequence[Mapping[str, Any]]) -> list[AlarmSpan]:
             open_[code] = dict(event)
         elif event["kind"] == ev.ALARM_CLEARED and code in open_:
             raised = open_.pop(code)
-            spans.append(AlarmSpan(code, raised["severity"], _words(raised), raised["time"],
-                                   float(event["time"])))
+            words, as_logged = _words(raised, units)
+            spans.append(AlarmSpan(code, raised["severity"], words, raised["time"],
+                                   float(event["time"]), as_logged))
     for code, raised in open_.items():
-        spans.append(AlarmSpan(code, raised["severity"], _words(raised), raised["time"], None))
+        words, as_logged = _words(raised, units)
+        spans.append(AlarmSpan(code, raised["severity"], words, raised["time"], None,
+                               as_logged))
     spans.sort(key=lambda s: s.raised_t)
     return spans
 
 
-def _words(event: Mapping[str, Any]) -> str:
+def _words(event: Mapping[str, Any], units: Units | None) -> tuple[str, bool]:
+    """An alarm's words in `units` from its numbers, else as stored (and so marked)."""
     detail = event.get("detail") or {}
-    return str(detail.get("words") or event.get("message") or "")
+    if units is not None and isinstance(detail, Mapping):
+        shown = ev.said_text(detail, units, key="words_template")
+        if shown is not None:
+            return shown, False
+    return str(detail.get("words") or event.get("message") or ""), units is not None
 
 
 @dataclass(frozen=True)

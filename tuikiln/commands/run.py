@@ -419,6 +419,8 @@ async def _serve_run(engine: Any, kiln: Any, data_dir: Path, sinks: list[Any], o
             "started": time.time()})
         try:
             outcome = await run_task
+        except UserError:
+            raise  # one line from the command line (a full data folder at a restart, say)
         except Exception:
             print(f"tuikiln: {engine.end_words or 'the engine failed'}", file=sys.stderr)
             return EXIT_ENGINE_FAILED

@@ -50,7 +50,7 @@ from tuikiln.engine.alarms import (
     cleared_event,
     raised_event,
 )
-from tuikiln.events import Event
+from tuikiln.events import Event, Said
 
 # The order AlarmRules.evaluate says its alarms in, within one tick.
 ORDER = ("no-link", "no-link-too-long", "sensor-bad", "over-kiln-max", "too-hot", "lagging",
@@ -112,6 +112,9 @@ def _greedy(ts: np.ndarray, gap: float) -> np.ndarray:
     """Positions taken by "the first, then each one at least `gap` after the last taken"."""
     if ts.size == 0:
         return np.zeros(0, dtype=np.int64)
+    regular = _greedy_regular(ts, gap)
+    if regular is not None:
+        return regular
     after = _first_reaching(ts, gap).tolist()
     taken = []
     k, n = 0, ts.size
@@ -119,6 +122,25 @@ def _greedy(ts: np.ndarray, gap: float) -> np.ndarray:
         taken.append(k)
         k = after[k]
     return np.asarray(taken, dtype=np.int64)
+
+
+def _greedy_regular(ts: np.ndarray, gap: float) -> np.ndarray | None:
+    """The same positions for evenly spaced samples (a log of our own): every m-th, checked
+    exactly (each taken one is the first at least `gap` after the one before); None when
+    the samples are not that even."""
+    n = ts.size
+    if n < 3:
+        return None
+    stride = int(np.searchsorted(ts, ts[0] + gap, side="left"))
+    if stride <= 0 or stride >= n:
+        return None
+    taken = np.arange(0, n, stride)
+    prev, this = taken[:-1], taken[1:]
+    if not ((ts[this] - ts[prev] >= gap).all() and (ts[this - 1] - ts[prev] < gap).all()):
+        return None
+    if ts[n - 1] - ts[taken[-1]] >= gap:
+        return None  # the greedy would take one more after the last of the stride
+    return taken
 
 
 def _first_within(ts: np.ndarray, now: np.ndarray, window: float) -> np.ndarray:
@@ -200,15 +222,21 @@ class _History:
         # After the entry m is appended, entries older than `keep` are dropped from the front.
         self.first = _first_within(self.t, self.t, keep)
 
-    def ago(self, samples: np.ndarray, now: np.ndarray, seconds: float) -> np.ndarray:
-        """The remembered temperature about `seconds` before each sample (NaN: None)."""
-        out = np.full(samples.size, np.nan)
+    def locate(self, samples: np.ndarray) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
+        """For each sample: whether there is history yet, its last entry, its first entry."""
         m = np.searchsorted(self.at, samples, side="right") - 1
         have = m >= 0
+        mm = np.where(have, m, 0)
+        return have, mm, self.first[mm] if self.first.size else mm
+
+    def ago(self, where: tuple[np.ndarray, np.ndarray, np.ndarray], now: np.ndarray,
+            seconds: float) -> np.ndarray:
+        """The remembered temperature about `seconds` before each sample `locate` found
+        (NaN: None)."""
+        have, mm, j = where
+        out = np.full(mm.size, np.nan)
         if not have.any():
             return out
-        mm = np.where(have, m, 0)
-        j = self.first[mm]
         enough = have & ~(now - self.t[j] < seconds - HISTORY_EVERY_S)
         guess = j + np.maximum(0, mm - j - int(seconds / HISTORY_EVERY_S))
         last_ok = _last_at_least(self.t, now, seconds - HISTORY_EVERY_S * 0.5)
@@ -238,7 +266,7 @@ def _sliding_max(values: np.ndarray, lo: np.ndarray) -> np.ndarray:
     return out
 
 
-def _said_at(say: Callable[[float], str], values: np.ndarray) -> Callable[[int], str]:
+def _said_at(say: Callable[[float], Said], values: np.ndarray) -> Callable[[int], Said | str]:
     return lambda k: say(float(values[k]))
 
 
@@ -258,10 +286,10 @@ class _Checks:
         keep = max(self.limits.stall_for, STUCK_RISE_WINDOW_S, self.limits.behind_for) + 60
         self.history = _History(t, self.usable, self.temp, keep)
         self.found: dict[str, list[tuple[int, int | None]]] = {}
-        self.words: dict[str, Callable[[int], str]] = {}
+        self.words: dict[str, Callable[[int], Said | str]] = {}
 
     def _alarm(self, code: str, on: np.ndarray, off: np.ndarray,
-               words: Callable[[int], str]) -> None:
+               words: Callable[[int], Said | str]) -> None:
         """`on`/`off`: sample indices where the check raises / clears."""
         if code in self.rules.unjudged or on.size == 0:
             return
@@ -270,6 +298,8 @@ class _Checks:
 
     def link(self) -> None:
         s, lim = self.s, self.limits
+        if s.link_ok.all():
+            return  # never silent: nothing to raise
         pos = np.arange(self.n)
         last = np.maximum.accumulate(np.where(s.link_ok, pos, -1))
         last_ok_t = np.where(last >= 0, s.t[np.maximum(last, 0)], s.t[0])
@@ -283,29 +313,34 @@ class _Checks:
 
     def sensor(self) -> None:
         s, rules = self.s, self.rules
-        at = np.flatnonzero(s.link_ok)  # readings with no answer leave every count alone
-        if at.size == 0:
-            return
-        t = s.t[at]
-        fault = s.sensor_fault[at]
-        bad = ~self.usable[at]
+        if s.link_ok.all():  # the usual log: views, not copies
+            at = np.arange(self.n)
+            t, fault, bad, temp = s.t, s.sensor_fault, ~self.usable, self.temp
+        else:
+            at = np.flatnonzero(s.link_ok)  # readings with no answer leave the counts alone
+            if at.size == 0:
+                return
+            t, fault, bad, temp = s.t[at], s.sensor_fault[at], ~self.usable[at], self.temp[at]
         good = ~bad
-        bad_row = _in_a_row(bad)
-        good_row = _in_a_row(good)
-        temp = self.temp[at]
-        prev_good = np.concatenate(([False], good[:-1]))
-        prev_t = np.concatenate(([np.nan], t[:-1]))
-        prev_temp = np.concatenate(([np.nan], temp[:-1]))
-        jump = good & prev_good & (t - prev_t <= 10.0) & (np.abs(temp - prev_temp) > JUMP_C)
-        jump_t = t[jump]
-        done_jumps = np.cumsum(jump)
-        jumps = done_jumps - _first_within(jump_t, t, JUMP_WINDOW_S)
+        any_bad = bool(bad.any())
+        jumped = np.abs(np.diff(temp)) > JUMP_C  # NaN (a bad one) never counts
+        heating_at = at[good] if any_bad else at
+        heating = s.output_pct[heating_at] >= 50.0
+        if not (any_bad or jumped.any() or heating.any()):
+            return  # no bad reading, no jump, never heating hard: nothing can raise it
+        # (Where nothing is bad, every reading is the next good one in a row.)
+        bad_row = _in_a_row(bad) if any_bad else np.zeros(at.size, dtype=np.int64)
+        good_row = _in_a_row(good) if any_bad else np.arange(1, at.size + 1)
+        jumps = np.zeros(at.size, dtype=np.int64)
+        if jumped.any():
+            prev_good = np.concatenate(([False], good[:-1]))
+            prev_t = np.concatenate(([np.nan], t[:-1]))
+            jump = good & prev_good & (t - prev_t <= 10.0) & np.concatenate(([False], jumped))
+            jumps = np.cumsum(jump) - _first_within(t[jump], t, JUMP_WINDOW_S)
         # Frozen: the same reading as the last good one, heating hard, for FROZEN_S.
-        g = np.flatnonzero(good)
+        g = np.flatnonzero(good) if any_bad else np.arange(at.size)
         frozen = np.zeros(at.size, dtype=bool)
-        if g.size:
-            out = s.output_pct[at[g]]
-            heating = out >= 50.0
+        if heating.any():
             same = np.concatenate(([False], temp[g][1:] == temp[g][:-1]))
             reset = ~heating | ~same
             since = t[g][np.maximum.accumulate(np.where(reset, np.arange(g.size), 0))]
@@ -313,25 +348,23 @@ class _Checks:
         many = good & (jumps >= JUMPS_TO_ALARM)
         on = (bad & (bad_row >= BAD_READINGS_TO_ALARM)) | many | (good & frozen)
         off = good & ~frozen & (good_row >= GOOD_READINGS_TO_CLEAR) & (jumps == 0)
-        def words(k: int) -> str:
+        def words(k: int) -> Said:
             p = int(np.searchsorted(at, k))
             if bad[p]:
-                if fault[p]:
-                    why = "the controller reports the thermocouple open or out of range"
-                elif not self.has_temp[k]:
-                    why = "the controller gives no temperature"
-                else:
-                    why = rules.impossible_why(float(s.chamber_c[k]))
-                return f"Thermocouple fault: {why}"
+                why = "fault" if fault[p] else "impossible" if self.has_temp[k] else "none"
+                return rules.bad_reading_words(why, _none(s.chamber_c[k]))
             return rules.jumps_words() if many[p] else rules.frozen_words(float(temp[p]))
 
         self._alarm("sensor-bad", at[on], at[off], words)
 
     def counted(self, code: str, over: np.ndarray, clear: np.ndarray,
-                words: Callable[[int], str]) -> None:
+                words: Callable[[int], Said | str]) -> None:
         """A check that needs HOT_READINGS_TO_ALARM usable readings over a line in a row."""
         at = np.flatnonzero(self.usable)
-        row = _in_a_row(over[at])
+        hot = over[at]
+        if not hot.any():
+            return  # never over the line: nothing to raise
+        row = _in_a_row(hot)
         on = at[row >= HOT_READINGS_TO_ALARM]
         off = at[~over[at] & clear[at]]
         self._alarm(code, on, off, words)
@@ -372,7 +405,8 @@ class _Checks:
                           np.isfinite(sp) & (sp - temp >= lim.behind)) & ~s.heat_off[at]
         since = t[_run_start(demand)]
         ready = demand & (t - since >= lim.stall_for)
-        before = self.history.ago(at, t, lim.stall_for)
+        where = self.history.locate(at)
+        before = self.history.ago(where, t, lim.stall_for)
         rise = temp - before
         judged = ready & np.isfinite(before)
         on = judged & (rise < NO_RISE_C)
@@ -382,14 +416,14 @@ class _Checks:
         # Heat stuck on.
         is_off = np.isfinite(out) & (out <= STUCK_OUTPUT_PCT)
         off_since = t[_run_start(is_off)]
-        before = self.history.ago(at, t, STUCK_RISE_WINDOW_S)
+        before = self.history.ago(where, t, STUCK_RISE_WINDOW_S)
         rise = temp - before
         has_rise = np.isfinite(before)
         rising_off = is_off & (t - off_since >= STUCK_OFF_FOR_S) & has_rise & (rise >= STUCK_RISE_C)
         top = _sliding_max(np.where(np.isfinite(sp), sp, -np.inf),
                            _first_within(t, t, SETPOINT_LAG_S))
-        half = self.history.ago(at, t, STUCK_RISE_WINDOW_S / 2)
-        last = self.history.ago(at, t, STUCK_RISE_WINDOW_S / 4)
+        half = self.history.ago(where, t, STUCK_RISE_WINDOW_S / 2)
+        last = self.history.ago(where, t, STUCK_RISE_WINDOW_S / 4)
         steady = (has_rise & np.isfinite(half) & np.isfinite(last)
                   & (half - before >= NO_RISE_C / 2) & (temp - half >= NO_RISE_C / 2)
                   & (temp - last >= NO_RISE_C / 4))
@@ -399,7 +433,7 @@ class _Checks:
         off = ~on & has_rise & (rise < NO_RISE_C)
         at_on, top_on, off_on = at[on], top[on], rising_off[on]
 
-        def stuck_words(k: int) -> str:
+        def stuck_words(k: int) -> Said:
             p = int(np.searchsorted(at_on, k))
             sp_k = float(top_on[p]) if np.isfinite(top_on[p]) else None
             return rules.stuck_on_words(float(self.temp[k]), bool(off_on[p]), sp_k)
@@ -500,8 +534,10 @@ def alarm_events(rules: AlarmRules, seen: Seen) -> Found:
         for raised, cleared in pairs:
             if first is not None and raised > first[0]:
                 break
-            words = say(raised)
-            found.events.append((raised, rank, raised_event(float(t[raised]), code, words)))
+            said = say(raised)
+            words = said.text(rules.units) if isinstance(said, Said) else said
+            found.events.append((raised, rank, raised_event(
+                float(t[raised]), code, words, said if isinstance(said, Said) else None)))
             if first is not None and (raised, rank) == first:
                 found.critical_words = words
             if cleared is None or (first is not None and cleared > first[0]):

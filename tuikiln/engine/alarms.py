@@ -20,9 +20,9 @@ from typing import Any
 from tuikiln import events as ev
 from tuikiln.engine import states as st
 from tuikiln.engine.checks import ALARM_KINDS, CRITICAL, WARNING, Check, judge_all, make_checks
-from tuikiln.events import Event
+from tuikiln.events import Event, Said, say
 from tuikiln.limits import Limits
-from tuikiln.units import Units, delta_from_c, format_duration, format_temp, symbol
+from tuikiln.units import Units
 
 # code -> (severity, short name for people). The same dict as engine/checks' ALARM_KINDS:
 # checks registered there (one module each) join these built-in ones.
@@ -65,12 +65,17 @@ SETPOINT_LAG_S = 600.0
 SLOW_EVERY_S = 5.0
 
 
-def raised_event(now: float, code: str, words: str) -> Event:
-    """The event an alarm is raised with (the rules' and their array form's)."""
+def raised_event(now: float, code: str, words: str, said: Said | None = None) -> Event:
+    """The event an alarm is raised with (the rules' and their array form's). With `said`
+    the detail carries the numbers: "template" for the message, "words_template" for the
+    words alone."""
     severity = ALARMS[code][0]
     prefix = "ALARM" if severity == CRITICAL else "Warning"
-    return Event(now, ev.ALARM_RAISED, f"{prefix}: {words}", severity,
-                 {"alarm": code, "severity": severity, "words": words})
+    detail: dict[str, Any] = {"alarm": code, "severity": severity, "words": words}
+    if said is not None:
+        detail.update(said.after(f"{prefix}: ").as_detail())
+        detail["words_template"] = said.template
+    return Event(now, ev.ALARM_RAISED, f"{prefix}: {words}", severity, detail)
 
 
 def cleared_event(now: float, code: str, acknowledged: bool) -> Event:
@@ -86,10 +91,15 @@ class Alarm:
     words: str
     since: float
     acknowledged: bool = False
+    said: Said | None = None
+    """The words with their numbers (the status carries them: screens show their units)."""
 
     def as_dict(self) -> dict[str, Any]:
-        return {"code": self.code, "severity": self.severity, "words": self.words,
-                "acknowledged": self.acknowledged, "since": self.since}
+        out = {"code": self.code, "severity": self.severity, "words": self.words,
+               "acknowledged": self.acknowledged, "since": self.since}
+        if self.said is not None:
+            out.update(self.said.as_detail())
+        return out
 
 
 @dataclass
@@ -183,13 +193,14 @@ class AlarmRules:
         out, self._pending = self._pending, []
         return out
 
-    def set_condition(self, code: str, active: bool, now: float, words: str = "") -> list[Event]:
+    def set_condition(self, code: str, active: bool, now: float,
+                      words: str | Said = "") -> list[Event]:
         """Raise or clear an alarm whose cause the rules cannot see (e.g. log-trouble)."""
         self._set(code, active, now, words)
         out, self._pending = self._pending, []
         return out
 
-    def set_alarm(self, code: str, active: bool, now: float, words: str = "") -> None:
+    def set_alarm(self, code: str, active: bool, now: float, words: str | Said = "") -> None:
         """Raise or clear `code` as part of this tick (the registered checks' way in)."""
         self._set(code, active, now, words)
 
@@ -214,80 +225,93 @@ class AlarmRules:
 
     # ----- raising and clearing -----
 
-    def _set(self, code: str, on: bool, now: float, words: str = "") -> None:
+    def _set(self, code: str, on: bool, now: float, words: str | Said = "") -> None:
         if not on and code not in self.active:
             return  # the common case, every tick: nothing to clear
         alarm = self.active.get(code)
+        said = words if isinstance(words, Said) else None
+        text = said.text(self.units) if said is not None else str(words)
         if on and alarm is None:
             if code in self.unjudged:
                 return
-            self.active[code] = Alarm(code, ALARMS[code][0], words, now)
-            self._pending.append(raised_event(now, code, words))
-        elif on and alarm is not None and words:
-            alarm.words = words
+            self.active[code] = Alarm(code, ALARMS[code][0], text, now, said=said)
+            self._pending.append(raised_event(now, code, text, said))
+        elif on and alarm is not None and text:
+            alarm.words = text
+            alarm.said = said
         elif not on and alarm is not None:
             del self.active[code]
             self._pending.append(cleared_event(now, code, alarm.acknowledged))
 
-    def _t(self, celsius: float | None) -> str:
-        return format_temp(celsius, self.units)
-
-    def _d(self, kelvin: float) -> str:
-        return f"{delta_from_c(kelvin, self.units):.0f} {symbol(self.units)}"
-
     # ----- the words (shared with the array forms in alarm_arrays.py) -----
+    # Each returns Said: the words with their numbers kept apart (tuikiln.events), so the
+    # screens and reports show them in their own units.
 
-    def no_link_words(self, silent_s: float) -> str:
-        return (f"No answer from the controller for {format_duration(silent_s)}: check the "
-                "cable and its power")
+    def no_link_words(self, silent_s: float) -> Said:
+        return say("No answer from the controller for {silent}: check the cable and its "
+                   "power", silent=(ev.DURATION, silent_s))
 
-    def no_link_too_long_words(self, silent_s: float) -> str:
-        return (f"The controller has been silent for {format_duration(silent_s)}: the run "
-                "stops and the heat is turned off where the controller can still hear it")
+    def no_link_too_long_words(self, silent_s: float) -> Said:
+        return say("The controller has been silent for {silent}: the run stops and the heat "
+                   "is turned off where the controller can still hear it",
+                   silent=(ev.DURATION, silent_s))
 
-    def impossible_why(self, chamber_c: float | None) -> str:
-        return f"the reading {self._t(chamber_c)} is impossible"
+    def bad_reading_words(self, why: str, chamber_c: float | None = None) -> Said:
+        """`why`: "fault" (the controller says so), "none" (no temperature), "impossible"."""
+        if why == "fault":
+            return say("Thermocouple fault: the controller reports the thermocouple open or "
+                       "out of range")
+        if why == "none":
+            return say("Thermocouple fault: the controller gives no temperature")
+        return say("Thermocouple fault: the reading {reading} is impossible",
+                   reading=(ev.TEMPERATURE, chamber_c))
 
-    def jumps_words(self) -> str:
-        return (f"Thermocouple fault: the reading jumps by more than {self._d(JUMP_C)} from "
-                "one second to the next")
+    def jumps_words(self) -> Said:
+        return say("Thermocouple fault: the reading jumps by more than {jump} from one second "
+                   "to the next", jump=(ev.DIFFERENCE, JUMP_C))
 
-    def frozen_words(self, temp_c: float) -> str:
-        return (f"Thermocouple fault: the reading has stayed at exactly {self._t(temp_c)} for "
-                f"{format_duration(FROZEN_S)} while heating")
+    def frozen_words(self, temp_c: float) -> Said:
+        return say("Thermocouple fault: the reading has stayed at exactly {temp} for {frozen} "
+                   "while heating", temp=(ev.TEMPERATURE, temp_c), frozen=(ev.DURATION, FROZEN_S))
 
-    def over_max_words(self, temp_c: float) -> str:
-        return f"{self._t(temp_c)} is over the kiln's maximum of {self._t(self.max_c)}"
+    def over_max_words(self, temp_c: float) -> Said:
+        return say("{temp} is over the kiln's maximum of {max}", temp=(ev.TEMPERATURE, temp_c),
+                   max=(ev.TEMPERATURE, self.max_c))
 
-    def too_hot_words(self, temp_c: float, target_c: float | None) -> str:
-        return (f"Too hot: {self._t(temp_c)} is {self._d(temp_c - (target_c or 0.0))} above "
-                f"the target {self._t(target_c)}")
+    def too_hot_words(self, temp_c: float, target_c: float | None) -> Said:
+        return say("Too hot: {temp} is {over} above the target {target}",
+                   temp=(ev.TEMPERATURE, temp_c),
+                   over=(ev.DIFFERENCE, temp_c - (target_c or 0.0)),
+                   target=(ev.TEMPERATURE, target_c))
 
-    def lagging_words(self, temp_c: float, gap_c: float, planned_c: float | None) -> str:
-        return (f"Falling behind the ramp: {self._t(temp_c)} is {self._d(gap_c)} below the "
-                f"planned {self._t(planned_c)} — a heater failing, the door open, or a ramp "
-                "too fast for this oven")
+    def lagging_words(self, temp_c: float, gap_c: float, planned_c: float | None) -> Said:
+        return say("Falling behind the ramp: {temp} is {gap} below the planned {planned} — a "
+                   "heater failing, the door open, or a ramp too fast for this oven",
+                   temp=(ev.TEMPERATURE, temp_c), gap=(ev.DIFFERENCE, gap_c),
+                   planned=(ev.TEMPERATURE, planned_c))
 
-    def no_rise_words(self, temp_c: float) -> str:
-        return (f"Not heating: the heater is asked for full power but the temperature has "
-                f"not risen in {format_duration(self.limits.stall_for)} ({self._t(temp_c)}) "
-                "— a heater or its fuse failing, or the door open")
+    def no_rise_words(self, temp_c: float) -> Said:
+        return say("Not heating: the heater is asked for full power but the temperature has "
+                   "not risen in {stall} ({temp}) — a heater or its fuse failing, or the door "
+                   "open", stall=(ev.DURATION, self.limits.stall_for),
+                   temp=(ev.TEMPERATURE, temp_c))
 
-    def stuck_on_words(self, temp_c: float, rising_off: bool, setpoint_c: float | None) -> str:
-        how = ("while the heater output is off" if rising_off else
-               f"{self._d(temp_c - (setpoint_c or 0.0))} above the setpoint")
-        return (f"Heat stuck on: {self._t(temp_c)} and rising {how} — a relay or contactor "
-                "stuck closed")
+    def stuck_on_words(self, temp_c: float, rising_off: bool, setpoint_c: float | None) -> Said:
+        how = ("while the heater output is off" if rising_off else "{above} above the setpoint")
+        return say(f"Heat stuck on: {{temp}} and rising {how} — a relay or contactor stuck "
+                   "closed", temp=(ev.TEMPERATURE, temp_c),
+                   above=(ev.DIFFERENCE, temp_c - (setpoint_c or 0.0)))
 
-    def slipped_words(self, target_c: float | None, out_s: float) -> str:
-        return (f"The hold at {self._t(target_c)} has been out of its band for "
-                f"{format_duration(out_s)}: its clock is stopped")
+    def slipped_words(self, target_c: float | None, out_s: float) -> Said:
+        return say("The hold at {target} has been out of its band for {out}: its clock is "
+                   "stopped", target=(ev.TEMPERATURE, target_c), out=(ev.DURATION, out_s))
 
-    def never_reached_words(self, in_hold: bool, target_c: float | None) -> str:
+    def never_reached_words(self, in_hold: bool, target_c: float | None) -> Said:
         what = "The hold at" if in_hold else "The target"
-        return (f"{what} {self._t(target_c)} has not been reached in "
-                f"{format_duration(self.limits.reach_within)}: the oven may not get that hot "
-                "(elements, a heavy load, the door)")
+        return say(f"{what} {{target}} has not been reached in {{within}}: the oven may not "
+                   "get that hot (elements, a heavy load, the door)",
+                   target=(ev.TEMPERATURE, target_c),
+                   within=(ev.DURATION, self.limits.reach_within))
 
     # ----- the checks -----
 
@@ -338,16 +362,16 @@ class AlarmRules:
             return
         why = ""
         if obs.sensor_fault:
-            why = "the controller reports the thermocouple open or out of range"
+            why = "fault"
         elif obs.chamber_c is None:
-            why = "the controller gives no temperature"
+            why = "none"
         elif temp is None:
-            why = self.impossible_why(obs.chamber_c)
+            why = "impossible"
         if why:
             self._bad_count += 1
             self._good_count = 0
             if self._bad_count >= BAD_READINGS_TO_ALARM:
-                self._set("sensor-bad", True, now, f"Thermocouple fault: {why}")
+                self._set("sensor-bad", True, now, self.bad_reading_words(why, obs.chamber_c))
             self._last_temp = None
             return
         assert temp is not None
@@ -510,7 +534,8 @@ class AlarmRules:
     def _check_paused(self, obs: Observation) -> None:
         since = obs.paused_since
         if since is not None and obs.now - since >= self.limits.pause_too_long:
-            self._set("paused-too-long", True, obs.now, f"The run has been paused for "
-                      f"{format_duration(obs.now - since)}: resume it or abort it")
+            self._set("paused-too-long", True, obs.now, say(
+                "The run has been paused for {paused}: resume it or abort it",
+                paused=(ev.DURATION, obs.now - since)))
         elif since is None:
             self._set("paused-too-long", False, obs.now)

@@ -32,9 +32,11 @@ import asyncio
 import contextlib
 import logging
 import math
+import sqlite3
 import time
 from collections.abc import Callable
 from dataclasses import dataclass
+from pathlib import Path
 from typing import Any
 
 from tuikiln import events as ev
@@ -47,11 +49,12 @@ from tuikiln.engine.rules import REMOTE_SOURCES, CommandResult, Decision, RunRul
 from tuikiln.engine.safety import SafeResult, drive_safe
 from tuikiln.engine.states import RestartPolicy
 from tuikiln.engine.status import LastReading, Status, build_status
+from tuikiln.errors import UserError
 from tuikiln.events import Event
 from tuikiln.limits import Limits
 from tuikiln.ovenmodel_plan import LiveForecast
 from tuikiln.profile import Profile
-from tuikiln.runlog import QUEUE_WARN_FRACTION, RunLog, RunRecorder
+from tuikiln.runlog import QUEUE_WARN_FRACTION, RUNLOG_NAME, RunLog, RunRecorder, log_trouble
 from tuikiln.units import format_duration, format_temp
 
 log = logging.getLogger(__name__)
@@ -71,6 +74,13 @@ SUSPENDED = "suspended"     # not an outcome in the log: the run stays unfinishe
 SAFE_RETRY_MAX_S = 30.0     # after a run ended unable to stop the heat: retry at least this often
 COMMIT_EVERY_S = 0.5       # the run log commits at least this often: a one-second tick commits
                            # every tick, so a kill loses at most the tick under way
+
+
+class CannotLog(UserError):
+    """The run log cannot take a run (a full or read-only data folder): exit 4, as for any
+    run that cannot start."""
+
+    exit_code = 4
 
 
 @dataclass(frozen=True)
@@ -193,10 +203,13 @@ class RunEngine:
 
     async def run(self) -> str:
         self.started = self.clock.now()
-        if self.resume is not None:
-            await self._run_resumed()
-        else:
-            self._start_new()
+        try:
+            if self.resume is not None:
+                await self._run_resumed()
+            else:
+                self._start_new()
+        except (sqlite3.Error, OSError) as exc:
+            raise await self._cannot_log(exc) from exc
         loop_task = asyncio.create_task(self._loop())
         watchdog = (asyncio.create_task(self._watchdog(loop_task))
                     if self.watchdog_s else None)
@@ -228,6 +241,22 @@ class RunEngine:
                 # Waits for a locked or full log (up to runlog.CLOSE_WAIT_S), off the loop.
                 await asyncio.shield(asyncio.to_thread(self.recorder.close))
         return self.outcome or st.COMPLETED
+
+    async def _cannot_log(self, exc: BaseException) -> UserError:
+        """The run log cannot be opened for writing (a full or read-only disk): no run. A
+        restarted engine finds an oven its dead predecessor may have left heating: heat off
+        first, then say so."""
+        path = self.runlog.path if self.runlog is not None else Path(RUNLOG_NAME)
+        trouble = log_trouble(path, exc)
+        if self.resume is None:
+            return CannotLog(f"{trouble}; the run did not start")
+        if self.watch_only:
+            words = "watching only: switch the oven off at its controller"
+        else:
+            result = await drive_safe(self.device)
+            words = result.words
+        return CannotLog(f"{trouble}; run {self.resume.run.id} was not carried on, and the "
+                         f"oven was driven safe: {words}")
 
     def _attach_recorder(self, recorder: RunRecorder) -> None:
         self.recorder = recorder

@@ -38,10 +38,10 @@ from typing import Any
 
 from tuikiln import events as ev
 from tuikiln.engine import states as st
-from tuikiln.events import Event
+from tuikiln.events import Event, Said, literal, say
 from tuikiln.limits import Limits
-from tuikiln.profile import Cool, Hold, Pause, Profile, Ramp, Step, describe_step
-from tuikiln.units import ROOM_C, Units, format_duration, format_rate, format_temp
+from tuikiln.profile import Cool, Hold, Pause, Profile, Ramp, Step, describe_step_said
+from tuikiln.units import ROOM_C, Units, format_duration
 
 FREE_COOL_SETPOINT_C = 0.0
 # Reading noise (0.3 °C is typical) and a controller cycling on the band's edge cross it every
@@ -84,11 +84,12 @@ def planned_temperature_before(steps: tuple[Step, ...], index: int) -> float | N
 def step_start_event(now: float, steps: tuple[Step, ...], index: int, units: Units) -> Event:
     """The event a step's start is logged as (the stepper's and its array form's)."""
     step = steps[index]
-    description = describe_step(step, units)
+    said = describe_step_said(step)
     label = f" ({step.label})" if step.label else ""
-    return Event(now, ev.STEP_START, f"Step {index + 1} of {len(steps)}{label}: {description}",
-                 "info", {"index": index, "kind": step.kind, "description": description,
-                          "label": step.label})
+    message = said.after(f"Step {index + 1} of {len(steps)}{label}: ")
+    return Event(now, ev.STEP_START, message.text(units), "info",
+                 {"index": index, "kind": step.kind, "description": said.text(units),
+                  "label": step.label, **message.as_detail()})
 
 
 def step_end_event(now: float, steps: tuple[Step, ...], index: int, started_at: float | None,
@@ -252,8 +253,10 @@ class Stepper:
         if force or state != self.state:
             self.state = state
             self.state_since = now
-            self._emit(now, ev.STEP_STATE, self.words(), state=state, index=self.index,
-                       words=self.words())
+            said = self.words_said()
+            words = said.text(self.units)
+            self._emit(now, ev.STEP_STATE, words, state=state, index=self.index, words=words,
+                       **said.as_detail())
 
     def _enter(self, now: float, temp_c: float | None) -> None:
         step = self.step
@@ -370,9 +373,10 @@ class Stepper:
             source = load_c if load_c is not None else temp
             self.equalize = self.detector.update(now, source)
             if getattr(self.equalize, "equalized", False):
-                self._emit(now, ev.EQUALIZED, f"The load has evened out at "
-                           f"{format_temp(source, self.units)}: the hold clock starts",
-                           index=self.index, core_c=source)
+                said = say("The load has evened out at {core}: the hold clock starts",
+                           core=(ev.TEMPERATURE, source))
+                self._emit(now, ev.EQUALIZED, said.text(self.units), index=self.index,
+                           core_c=source, **said.as_detail())
                 self._set_state(now, st.HOLDING)
             return
         if self.state in (st.HOLDING, st.SLIPPED):
@@ -476,45 +480,49 @@ class Stepper:
 
     def words(self) -> str:
         """The state in plain words, e.g. 'holding at 1750 °F, 12 min of 30 left'."""
+        return self.words_said().text(self.units)
+
+    def words_said(self) -> Said:
+        """The state's words with their temperatures kept as numbers (tuikiln.events)."""
         step = self.step
-        u = self.units
-        target = format_temp(self.target_c, u)
-        now_t = format_temp(self.last_temp_c, u)
+        numbers = {"target": (ev.TEMPERATURE, self.target_c),
+                   "now": (ev.TEMPERATURE, self.last_temp_c)}
         if self.ended:
-            return "all steps done"
+            return Said("all steps done")
         if step is None or self.state == st.STARTING:
-            return "starting"
+            return Said("starting")
         state = self.state
+        text = str(state)
         if state == st.HEATING and isinstance(step, Ramp):
-            left = self.step_time_left_s()
-            return (f"heating to {target} at {format_rate(step.rate_c_per_s, u)} "
-                    f"(now {now_t}, {format_duration(left)} to go)")
-        if state == st.HEATING_FULL:
-            return f"heating as fast as the oven goes to {target} (now {now_t})"
-        if state == st.REACHING:
-            return f"waiting to reach {target} (now {now_t})"
-        if state == st.EVENING:
+            to_go = literal(format_duration(self.step_time_left_s()))
+            numbers["rate"] = (ev.RATE, step.rate_c_per_s)
+            text = f"heating to {{target}} at {{rate}} (now {{now}}, {to_go} to go)"
+        elif state == st.HEATING_FULL:
+            text = "heating as fast as the oven goes to {target} (now {now})"
+        elif state == st.REACHING:
+            text = "waiting to reach {target} (now {now})"
+        elif state == st.EVENING:
             eta = getattr(self.equalize, "eta_s", None)
             about = f": about {_minutes(eta)}" if eta is not None else ""
-            return f"waiting for the load to even out at {target}{about}"
-        if state in (st.HOLDING, st.SLIPPED) and isinstance(step, Hold):
+            text = f"waiting for the load to even out at {{target}}{literal(about)}"
+        elif state in (st.HOLDING, st.SLIPPED) and isinstance(step, Hold):
             left = max(0.0, step.duration_s - self.hold_clock_s)
             clock = f"{_minutes(left)} of {_minutes(step.duration_s)} left"
-            if state == st.SLIPPED:
-                return (f"out of the band at {target} (now {now_t}): hold clock stopped, "
-                        f"{clock}")
-            return f"holding at {target}, {clock}"
-        if state == st.COOLING and isinstance(step, Cool):
-            return f"cooling to {target} at {format_rate(step.rate_c_per_s, u)} (now {now_t})"
-        if state == st.SETTLING:
-            return f"waiting to cool to {target} (now {now_t})"
-        if state == st.COASTING:
-            return f"heater off, cooling to {target} (now {now_t})"
-        if state == st.WAITING_YOU and isinstance(step, Pause):
-            if self.acknowledged:
-                return "acknowledged: carrying on"
-            return f"waiting for you: {step.message}"
-        return state
+            text = (f"out of the band at {{target}} (now {{now}}): hold clock stopped, {clock}"
+                    if state == st.SLIPPED else f"holding at {{target}}, {clock}")
+        elif state == st.COOLING and isinstance(step, Cool):
+            numbers["rate"] = (ev.RATE, step.rate_c_per_s)
+            text = "cooling to {target} at {rate} (now {now})"
+        elif state == st.SETTLING:
+            text = "waiting to cool to {target} (now {now})"
+        elif state == st.COASTING:
+            text = "heater off, cooling to {target} (now {now})"
+        elif state == st.WAITING_YOU and isinstance(step, Pause):
+            text = ("acknowledged: carrying on" if self.acknowledged
+                    else "waiting for you: " + literal(step.message))
+        else:
+            text = literal(text)
+        return Said(text, {k: v for k, v in numbers.items() if "{" + k + "}" in text})
 
 
 def _minutes(seconds: float | None) -> str:

@@ -8,7 +8,6 @@ far in growable numpy columns, so appending a second's worth never copies a week
 from __future__ import annotations
 
 import math
-import re
 from collections.abc import Mapping, Sequence
 from dataclasses import dataclass, field
 from typing import Any, Protocol
@@ -17,7 +16,7 @@ import numpy as np
 
 from tuikiln.plan import Plan
 from tuikiln.profile import Profile
-from tuikiln.units import Units, delta_from_c, delta_to_c, from_c, symbol, to_c
+from tuikiln.units import Units
 
 SAMPLE_COLUMNS = ("t", "chamber_c", "load_c", "core_c", "setpoint_c", "output_pct", "step",
                   "state")
@@ -124,39 +123,6 @@ class SampleBuffer:
     @property
     def nbytes(self) -> int:
         return sum(column.nbytes for column in self._columns.values())
-
-
-# "1750 °F", "955°C", "-3.5 °C"; a difference is followed by words such as "above"/"per".
-# A value after "±" is a band's half width: a difference too.
-_TEMPERATURE_TEXT = re.compile(
-    r"(?P<pm>±\s?)?(?P<value>[-+]?\d+(?:\.\d+)?)\s?°(?P<unit>[CF])(?P<rate>/h|/min)?"
-    r"(?P<after>\s+(?:above|below|over|under|out|off|from|per|too)\b)?"
-)
-
-
-def convert_temperatures(text: str, units: Units) -> str:
-    """Rewrite the temperatures in an engine message into `units`.
-
-    Temperatures followed by a rate or by a word such as "above" are differences and
-    convert without the 32-degree offset.
-    """
-
-    def replace(match: re.Match[str]) -> str:
-        unit = match.group("unit")
-        if unit == units:
-            return match.group(0)
-        value = float(match.group("value"))
-        difference = bool(match.group("rate") or match.group("after") or match.group("pm"))
-        if difference:
-            converted = delta_from_c(delta_to_c(value, unit), units)
-        else:
-            converted = from_c(to_c(value, unit), units)
-        digits = len(match.group("value").partition(".")[2])
-        number = f"{converted:.{digits}f}"
-        return (f"{match.group('pm') or ''}{number} {symbol(units)}{match.group('rate') or ''}"
-                f"{match.group('after') or ''}")
-
-    return _TEMPERATURE_TEXT.sub(replace, text)
 
 
 def finite(value: Any) -> float | None:

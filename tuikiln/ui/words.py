@@ -10,9 +10,10 @@ from collections.abc import Mapping
 from typing import Any
 
 from tuikiln.engine.states import RunState, StepState
+from tuikiln.events import said_text
 from tuikiln.plan import Plan
 from tuikiln.profile import Cool, Hold, Pause, Ramp
-from tuikiln.ui.runfeed import convert_temperatures, finite
+from tuikiln.ui.runfeed import finite
 from tuikiln.units import Units, format_duration, format_rate, format_temp
 
 ACK_KEY = "a"
@@ -77,7 +78,7 @@ def step_words(status: Mapping[str, Any], plan: Plan | None, units: Units) -> st
     if state == StepState.DONE:
         return "every step is done"
     words = status.get("step_words")
-    return convert_temperatures(str(words), units) if words else str(state or StepState.STARTING)
+    return str(words) if words else str(state or StepState.STARTING)
 
 
 def step_title(status: Mapping[str, Any], plan: Plan | None) -> str:
@@ -114,7 +115,7 @@ def alarm_line(alarm: Mapping[str, Any], units: Units) -> str:
     severity = str(alarm.get("severity", "warning"))
     symbol = "✖" if severity == "critical" else "▲"
     seen = "seen" if alarm.get("acknowledged") else f"press {ACK_KEY} to acknowledge"
-    words = convert_temperatures(str(alarm.get("words", alarm.get("code", "alarm"))), units)
+    words = said_text(alarm, units) or str(alarm.get("words", alarm.get("code", "alarm")))
     return f"{symbol} {severity.upper()} ALARM: {words}  ({seen})"
 
 

@@ -10,8 +10,8 @@ from rich.text import Text
 from textual.reactive import reactive
 from textual.widgets import RichLog
 
+from tuikiln.events import event_text
 from tuikiln.plaintext import plain
-from tuikiln.ui.runfeed import convert_temperatures
 from tuikiln.units import Units
 
 SEVERITY_MARK = {"critical": "✖", "warning": "▲", "info": "·"}
@@ -33,9 +33,9 @@ def event_line(event: Mapping[str, Any], units: Units, started: float | None) ->
         mark = SEVERITY_MARK[severity]
     style = {"critical": "bold reverse", "warning": "bold"}.get(severity, "")
     text = Text(f"{stamp:>6} {mark} ", style="dim")
-    # plain: a remote note's escape codes must not reach the terminal
-    text.append(plain(convert_temperatures(str(event.get("message") or kind), units)),
-                style=style)
+    # Its numbers in the screen's units (an older log's events: their stored words); plain:
+    # a remote note's escape codes must not reach the terminal.
+    text.append(plain(event_text(event, units)), style=style)
     return text
 
 
@@ -51,7 +51,7 @@ class EventLog(RichLog):
     """
 
     units: reactive[Units] = reactive("C")
-    """Units the temperatures in the messages are shown in."""
+    """Units the numbers in the events are shown in."""
 
     def __init__(self, *, id: str | None = None, started: float | None = None) -> None:
         super().__init__(id=id, wrap=True, markup=False, auto_scroll=True, max_lines=2000)
