@@ -231,3 +231,30 @@ def test_registered_checks_are_judged_alike(logged, straining, monkeypatch) -> N
         _assert_same(one, many)
         raised |= {a[2] for a in _alarms(many.events) if a[1] == ev.ALARM_RAISED}
     assert "straining" in raised
+
+
+@pytest.mark.parametrize("change", ["equalized hold", "pause step", "a command", "time back"])
+def test_what_the_arrays_cannot_follow_goes_per_sample(logged, change: str) -> None:  # noqa: ANN001
+    """Pause steps wait for a person, an `equalized` hold for the per-sample detector, a
+    logged command acts at its moment: those runs go to RunRules one sample at a time."""
+    log, run_id = logged["clean"]
+    info = log.run(run_id)
+    assert info is not None
+    text = info.profile_text
+    trace = Trace.from_samples(log.samples(run_id), info.started)
+    events = log.events(run_id)
+    t = trace.t.copy()
+    if change == "equalized hold":
+        text = text.replace('hold = "40m"', 'hold = "40m"\nstart = "equalized"')
+    elif change == "pause step":
+        text = text.replace('[[step]]\ncool = "300/h"',
+                            '[[step]]\npause = "Look at it"\n\n[[step]]\ncool = "300/h"')
+    elif change == "a command":
+        events = [*events, {"time": float(t[100]), "kind": ev.COMMAND, "message": "Paused",
+                            "severity": "info", "detail": {"name": "pause"}}]
+    else:
+        t[50], t[51] = t[51], t[50]
+    profile = parse_profile(text, "changed.toml")
+    result = rerun_rules(t, trace.chamber_c, trace.load_c, trace.output_pct, profile,
+                         Limits().merged(profile.limits), flags=trace.flags, events=events)
+    assert result.how == "per sample"

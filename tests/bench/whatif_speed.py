@@ -7,7 +7,8 @@ The log is the simulator's oven (tuikiln.simulator, its default noise) following
 setpoint: a 600 °C/h ramp to 620 °C, a hold for the rest of the time with the door open for
 10 minutes in the middle (a hold out of band), then a free cool. The what-if re-runs the
 rules with a tighter band and a shorter grace (tuikiln.analysis.whatif.rerun_rules).
-Target: the 7-day log (604,800 samples) in <= 1 s by the arrays. Also checked: both ways
+Target: the 7-day log (604,800 samples) in <= 1 s by the arrays, on the first call (the
+best of three is shown beside it). Also checked: both ways
 raise the same alarms at the same times. --quick: 24 h only, and the per-sample figure on
 the 24 h log alone.
 """
@@ -91,12 +92,14 @@ def run(quick: bool) -> dict[str, dict]:
     for name, seconds in sizes.items():
         log = simulate(seconds)
         text = profile_text(seconds)
-        best, result = min((time_whatif(log, text, False) for _ in range(3)),
-                           key=lambda r: r[0])
+        # The first call is what `tuikiln replay RUN --band ...` pays (fresh memory).
+        first, result = time_whatif(log, text, False)
+        best = min(first, *(time_whatif(log, text, False)[0] for _ in range(2)))
         assert result.how == "arrays"
-        figure = {"value": round(best, 3), "unit": "s", "ok": None, "target": "note"}
+        figure = {"value": round(first, 3), "unit": "s", "ok": None, "target": "note",
+                  "note": f"first call; best of 3: {best:.3f} s"}
         if name == "7 d":
-            figure.update(target=f"<= {TARGET_S:.2f}", ok=best <= TARGET_S)
+            figure.update(target=f"<= {TARGET_S:.2f}", ok=first <= TARGET_S)
         out[f"what-if {name} log ({seconds:,} samples), rules as arrays"] = figure
         if quick and name != "24 h":
             continue

@@ -306,10 +306,12 @@ MATCH_WITHIN_S = 600.0
 
 
 def compare_alarms(logged: Sequence[Mapping[str, Any]],
-                   replayed: Sequence[Mapping[str, Any]]) -> list[AlarmChange]:
-    """Pair the alarms raised in the log with those the replay raised, by code and time."""
-    left = alarm_spans(logged)
-    right = alarm_spans(replayed)
+                   replayed: Sequence[Mapping[str, Any]],
+                   units: Units | None = None) -> list[AlarmChange]:
+    """Pair the alarms raised in the log with those the replay raised, by code and time;
+    their words in `units` where the events carry their numbers."""
+    left = alarm_spans(logged, units)
+    right = alarm_spans(replayed, units)
     used: set[int] = set()
     changes: list[AlarmChange] = []
     for span in left:

@@ -113,7 +113,7 @@ def run(args: argparse.Namespace) -> int:
         baseline = loaded.replay(rerun=True, c=c, quench_below_c=below_c, units=shown)
         result = loaded.replay(loaded.limits.merged(overrides), rerun=True, c=c,
                                quench_below_c=below_c, units=shown)
-        changes = compare_alarms(baseline.events, result.events)
+        changes = compare_alarms(baseline.events, result.events, result.units)
         whatif = report_mod.whatif_dict(baseline, result, changes, overrides)
     else:
         result = loaded.replay(c=c, quench_below_c=below_c, units=shown)
