@@ -117,3 +117,32 @@ def test_width_is_read_like_the_thickness() -> None:
     assert profile.load.width_m == pytest.approx(0.0508)
     got = problems(profile_text('width = "wide"'))
     assert got == [(4, '"width": "wide" is not a width such as "4 mm" or "0.16 in"')]
+
+
+def foil_run() -> str:
+    """The engine tests' short profile (heat, equalized hold, two cools) on a foil packet."""
+    from tests.test_engine_sim import SHORT
+
+    load = '[load]\nmaterial = "AISI A2"\nthickness = "6 mm"\nwidth = "50 mm"\nwrap = "foil"\n'
+    return SHORT.replace('units = "C"\n', 'units = "C"\n' + load, 1)
+
+
+async def test_a_foil_run_on_the_simulator_records_the_wrap(tmp_path: Path) -> None:
+    # The whole engine on the simulator's foil packet with no load thermocouple: the run
+    # completes, the record keeps the wrap and width, and the estimated core is logged
+    # through the hold and the cool.
+    from tests.test_engine_sim import simulate
+
+    outcome, _, engine, _, log = await simulate(
+        tmp_path, foil_run(),
+        faults='[device.load]\nwrap = "foil"\nthermocouple = false\n')
+    assert outcome == "completed"
+    info = log.runs()[-1]
+    assert info.load is not None
+    assert info.load["wrap"] == "foil" and info.load["width"] == "50 mm"
+    samples = log.samples(info.id)
+    core, chamber = samples["core_c"], samples["chamber_c"]
+    logged = core == core
+    assert logged.sum() > 100
+    cooling = logged & (samples["step"] >= 2) & (chamber < core)
+    assert cooling.sum() > 10

@@ -106,6 +106,25 @@ def first_mode(biot: float) -> tuple[float, float]:
     return z, c1
 
 
+_MODES: dict[int, tuple[float, float]] = {}
+_MODE_STEPS_PER_E = 2000.0
+
+
+def _first_mode_slow_side(biot: float) -> tuple[float, float]:
+    """first_mode of Bi rounded down to a step of 1/2000 in log(Bi) (0.05 %): a lower Bi is
+    a slower core, so the rounding keeps the slow side; the cache spares the root finding
+    on every reading (Bi moves slowly with the temperature)."""
+    if not biot > 0.0:
+        return 0.0, 1.0
+    key = math.floor(math.log(biot) * _MODE_STEPS_PER_E)
+    mode = _MODES.get(key)
+    if mode is None:
+        if len(_MODES) > 100_000:
+            _MODES.clear()
+        mode = _MODES[key] = first_mode(math.exp(key / _MODE_STEPS_PER_E))
+    return mode
+
+
 def biot_number(steel: Steel, thickness_m: float, at_c: float = BIOT_AT_C,
                 emissivity: float = TYPICAL_EMISSIVITY, h_w_m2k: float = TYPICAL_H_W_M2K) -> float:
     """Bi = h*Lc/k with Lc = V/A = half the thickness of a plate heated on both faces and h
@@ -217,7 +236,7 @@ class LoadModel:
         """(slow time constant, fast time constant, cos zeta1) at these temperatures."""
         h = self.surface_h(chamber_c, load_c) * self.edge_factor
         biot = h * self.half_m / self.steel.conductivity_w_mk
-        zeta, c1 = first_mode(biot)
+        zeta, c1 = _first_mode_slow_side(biot)
         if zeta <= 0.0:
             return math.inf, 0.0, 1.0
         slow = self.conduction_s / (zeta * zeta)
@@ -243,11 +262,12 @@ class LoadModel:
         self._last_t = now
         # Exact exponential steps with h linearised per sub-step: stable for any dt, and
         # sub-steps keep each one short against the slow time constant.
-        slow, _, _ = self._rates(chamber_c, self.surface_c)
+        slow, fast, cos_z = self._rates(chamber_c, self.surface_c)
         steps = max(1, min(1000, math.ceil(dt / (0.25 * slow)))) if math.isfinite(slow) else 1
         h = dt / steps
-        for _ in range(steps):
-            slow, fast, cos_z = self._rates(chamber_c, self.surface_c)
+        for step in range(steps):
+            if step:
+                slow, fast, cos_z = self._rates(chamber_c, self.surface_c)
             if fast > 0.0:
                 self._wave_c += (chamber_c - self._wave_c) * -math.expm1(-h / fast)
             else:

@@ -91,6 +91,7 @@ class Load:
     width_m: float | None = None
     """The part's width (the next size up from the thickness): the estimate then counts the
     heat taken in through the edges."""
+    width_text: str | None = None
     wrap: str = "none"
     """ "none", or "foil": the part is sealed in a stainless foil packet (the equalization
     estimate then allows for the foil's low emissivity and the air gap inside it)."""
@@ -236,7 +237,7 @@ class _Checker:
                         f"{suggest(wrap, WRAPS) if isinstance(wrap, str) else ''}")
             wrap = "none"
         return Load(material, thickness_m, pieces, thickness if thickness_m else None,
-                    width_m, wrap)
+                    width_m, width if width_m else None, wrap)
 
     def steps(self, raw: Any, start_c: float) -> list[Step]:
         if raw is None or raw == []:

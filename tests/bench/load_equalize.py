@@ -64,8 +64,10 @@ def summarise(outcomes: list[Outcome]) -> dict[str, float | int | None]:
         "bare": lambda s: s.wrap == "none",
         "foil": lambda s: s.wrap == "foil",
         "thick_harden": lambda s: s.thickness_m >= 0.025 and s.target_c > 700.0,
-        "thick_harden_bare_width": lambda s: (s.thickness_m >= 0.025 and s.target_c > 700.0
-                                              and s.wrap == "none" and s.width_given),
+        "thick_harden_bare": lambda s: (s.thickness_m >= 0.025 and s.target_c > 700.0
+                                        and s.wrap == "none"),
+        "thick_harden_foil": lambda s: (s.thickness_m >= 0.025 and s.target_c > 700.0
+                                        and s.wrap == "foil"),
         "thin_harden": lambda s: s.thickness_m < 0.01 and s.target_c > 700.0,
         "temper": lambda s: s.target_c < 700.0,
     }
@@ -102,7 +104,7 @@ def run(quick: bool) -> dict[str, dict[str, object]]:
         "early": _figure(s["early"], "count", "0", s["early"] == 0),
         "never_declared": _figure(s["never_declared"], "count", "0", s["never_declared"] == 0),
     }
-    for key in ("all", "foil", "thick_harden", "temper"):
+    for key in ("all", "bare", "foil", "thick_harden_bare", "thick_harden_foil", "temper"):
         for stat in ("median", "p95"):
             name = f"late_{stat}_{key}_s"
             figures[name[:-2]] = _figure(s[name], "s", "(shown)", True)

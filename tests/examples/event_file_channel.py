@@ -16,6 +16,7 @@ from collections.abc import Mapping
 from typing import Any
 
 from tuikiln.alerts.channels import Channel, ChannelContext, register_channel
+from tuikiln.alerts.fanout import EventsOnlySink
 from tuikiln.alerts.settings import HOOK_GROUPS
 from tuikiln.drivers.checking import Setting
 from tuikiln.events import Event
@@ -23,7 +24,7 @@ from tuikiln.events import Event
 TELLS = HOOK_GROUPS["alarm"] | HOOK_GROUPS["operator"]
 
 
-class EventFile:
+class EventFile(EventsOnlySink):
     """An AlertSink: returns at once (a line appended to a local file is quick)."""
 
     def __init__(self, path: str, alarms_only: bool) -> None:
@@ -36,18 +37,6 @@ class EventFile:
         line = {"time": event.time, "kind": event.kind, "message": event.message}
         with open(self.path, "a", encoding="utf-8") as handle:
             handle.write(json.dumps(line) + "\n")
-
-    def state(self, state: Mapping[str, Any]) -> None:
-        pass
-
-    def reading(self, sample: Mapping[str, Any]) -> None:
-        pass
-
-    async def start(self) -> None:
-        pass
-
-    async def stop(self) -> None:
-        pass
 
 
 def _where(path: str, base_dir: str) -> str:

@@ -70,7 +70,26 @@ class AlertFanout:
         await asyncio.gather(*(one(sink) for sink in self.sinks))
 
 
-class TerminalSink:
+class EventsOnlySink:
+    """An AlertSink that wants only events: the other calls do nothing (subclass it)."""
+
+    def event(self, event: Event) -> None:
+        raise NotImplementedError
+
+    def state(self, state: Mapping[str, Any]) -> None:
+        pass
+
+    def reading(self, sample: Mapping[str, Any]) -> None:
+        pass
+
+    async def start(self) -> None:
+        pass
+
+    async def stop(self) -> None:
+        pass
+
+
+class TerminalSink(EventsOnlySink):
     """One line per event on a stream (for `tuikiln run --headless`); a bell on alarms and
     operator prompts when `bell` is on."""
 
@@ -98,15 +117,3 @@ class TerminalSink:
             stream.flush()
         except (OSError, ValueError):
             pass  # a closed terminal must not stop the run
-
-    def state(self, state: Mapping[str, Any]) -> None:
-        pass
-
-    def reading(self, sample: Mapping[str, Any]) -> None:
-        pass
-
-    async def start(self) -> None:
-        pass
-
-    async def stop(self) -> None:
-        pass

@@ -283,8 +283,9 @@ class RunEngine:
         if self.runlog is not None:
             p = self.profile
             load = {"material": p.load.material, "thickness_m": p.load.thickness_m,
-                    "pieces": p.load.pieces, "width_m": p.load.width_m,
-                    "wrap": p.load.wrap}
+                    "pieces": p.load.pieces, "wrap": p.load.wrap}
+            if p.load.width_text:  # as written, like the thickness; the report shows it
+                load["width"] = p.load.width_text
             self._attach_recorder(self.runlog.start_run(
                 kiln=self.kiln.name, profile=p.name, started=self.started,
                 profile_path=p.path, profile_text=p.source, kiln_text=self.kiln.text,
