@@ -13,6 +13,7 @@ relay can hold each chunk back for its time on the wire (10 bits per byte, 8N1, 
 from __future__ import annotations
 
 import asyncio
+import contextlib
 import os
 import tty
 from collections.abc import Sequence
@@ -21,6 +22,8 @@ from dataclasses import dataclass
 from pymodbus.framer import FramerType
 from pymodbus.server import ModbusSerialServer, ModbusTcpServer
 from pymodbus.simulator import DataType, SimData, SimDevice
+
+from tests.waiting import eventually
 
 
 def _raw_pty() -> tuple[int, int, str]:
@@ -156,12 +159,14 @@ async def test_wire_carries_bytes_both_ways_with_wire_time(tmp_path) -> None:
         t0 = asyncio.get_running_loop().time()
         os.write(host, b"x" * 96)  # (96 + 3.5) bytes * 10 bits / 9600 baud = 0.104 s on the wire
         got = b""
-        while len(got) < 96:
-            await asyncio.sleep(0.005)
-            try:
+
+        def all_arrived() -> bool:
+            nonlocal got
+            with contextlib.suppress(BlockingIOError):
                 got += os.read(dev, 4096)
-            except BlockingIOError:
-                pass
+            return len(got) >= 96
+
+        await eventually(all_arrived, timeout=5, what="96 bytes through the wire")
         elapsed = asyncio.get_running_loop().time() - t0
         assert got == b"x" * 96
         assert 0.09 <= elapsed < 0.5
