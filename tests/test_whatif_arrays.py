@@ -84,6 +84,15 @@ cool = "free"
 to = 300
 """
 
+PAUSES = """[[step]]
+pause = "Take the parts out, then acknowledge"
+
+[[step]]
+pause = "Put them back, then acknowledge"
+
+"""
+WITH_PAUSES = EVERY_KIND.replace('[[step]]\ncool = "300/h"', PAUSES + '[[step]]\ncool = "300/h"', 1)
+
 # (name, profile, faults): the faults the issue names (overshoot, lost thermocouple, stuck
 # heater, hold out of band) and the link and element faults besides.
 RUNS = [
@@ -96,12 +105,14 @@ RUNS = [
                                                                        200.0))),
     ("element fails", EVERY_KIND, (Fault("element-open", 600.0),)),
     ("noisy line", TIGHT, (Fault("line-noise", 300.0, 900.0, share=0.3),)),
+    ("pauses", WITH_PAUSES, (Fault("door-open", 2400.0, 400.0),)),  # two, answered late
 ]
 
 
 def record(log: RunLog, text: str, faults: tuple[Fault, ...], seed: int,
-           limit_s: float = 20_000.0) -> int:
-    """The engine's rules on the simulator, logged as tuikiln.engine.runner logs."""
+           limit_s: float = 20_000.0, answer_after_s: float = 240.0) -> int:
+    """The engine's rules on the simulator, logged as tuikiln.engine.runner logs; a person
+    answers each pause step `answer_after_s` after it asks."""
     profile = parse_profile(text, "test.toml")
     rules = RunRules(profile, Limits().merged(profile.limits), max_c=1000.0)
     kiln = SimulatedKiln(SimConfig(load=LoadConfig(), load_thermocouple=False,
@@ -110,7 +121,15 @@ def record(log: RunLog, text: str, faults: tuple[Fault, ...], seed: int,
     rec = log.start_run(kiln="Simulated bench oven", profile=profile.name, started=START_T,
                         profile_text=text, units="C", device="sim", speed="max")
     now = START_T
+    asked: float | None = None
     while not rules.ended and now - START_T < limit_s:
+        if rules.stepper.waiting_for_operator:
+            asked = now if asked is None else asked
+            if now - asked >= answer_after_s:
+                for event in rules.command(now, "ack", None, "test").events:
+                    rec.event(event)
+        else:
+            asked = None
         r = kiln.read()
         chamber = r.chamber_c if r.line_answers else None
         decision = rules.tick(now, TickInput(chamber, None, r.output_pct if r.line_answers
@@ -238,10 +257,11 @@ def test_registered_checks_are_judged_alike(logged, straining, monkeypatch) -> N
     assert "straining" in raised
 
 
-@pytest.mark.parametrize("change", ["equalized hold", "pause step", "a command", "time back"])
+@pytest.mark.parametrize("change", ["equalized hold", "a command", "time back"])
 def test_what_the_arrays_cannot_follow_goes_per_sample(logged, change: str) -> None:  # noqa: ANN001
-    """Pause steps wait for a person, an `equalized` hold for the per-sample detector, a
-    logged command acts at its moment: those runs go to RunRules one sample at a time."""
+    """An `equalized` hold waits for the per-sample detector, a logged command acts at its
+    moment, a log whose times go back is not in order: those go to RunRules one sample at a
+    time."""
     log, run_id = logged["clean"]
     info = log.run(run_id)
     assert info is not None
@@ -251,9 +271,6 @@ def test_what_the_arrays_cannot_follow_goes_per_sample(logged, change: str) -> N
     t = trace.t.copy()
     if change == "equalized hold":
         text = text.replace('hold = "40m"', 'hold = "40m"\nstart = "equalized"')
-    elif change == "pause step":
-        text = text.replace('[[step]]\ncool = "300/h"',
-                            '[[step]]\npause = "Look at it"\n\n[[step]]\ncool = "300/h"')
     elif change == "a command":
         events = [*events, {"time": float(t[100]), "kind": ev.COMMAND, "message": "Paused",
                             "severity": "info", "detail": {"name": "pause"}}]
@@ -267,8 +284,8 @@ def test_what_the_arrays_cannot_follow_goes_per_sample(logged, change: str) -> N
 
 # Random profiles (tests/trials.py: any order of max and rated ramps, holds with or without
 # their own band, rated and free cools, from room to near the kiln's maximum), each with a
-# random seed and perhaps a fault: pauses and `equalized` holds are taken out, since those
-# runs go per sample anyway (the test above).
+# random seed and perhaps a fault; pauses answered after a random wait. `equalized` holds
+# become `reached` ones, since those runs go per sample anyway (the test above).
 ARRAY_FAULTS = [(), (Fault("tc-open", 2000.0),), (Fault("relay-welded", 1500.0),),
                 (Fault("door-open", 1800.0, 300.0),), (Fault("link-drop", 1200.0, 150.0),),
                 (Fault("element-open", 900.0),)]
@@ -280,13 +297,11 @@ ARRAY_FAULTS = [(), (Fault("tc-open", 2000.0),), (Fault("relay-welded", 1500.0),
        tight=hs.sampled_from([{}, {"band": 3.0, "hold_grace": 20.0}, {"overshoot": 1.0}]))
 def test_arrays_decide_as_the_engine_on_random_profiles(tmp_path_factory, trial, fault,  # noqa: ANN001
                                                         tight: dict) -> None:
-    trial.steps = [dict(s, start="reached") if "hold" in s else s for s in trial.steps
-                   if "pause" not in s]
-    if not trial.steps:
-        return
+    trial.steps = [dict(s, start="reached") if "hold" in s else s for s in trial.steps]
     log = RunLog(Path(tmp_path_factory.mktemp("random")) / "runs.sqlite")
     try:
-        run_id = record(log, trial.toml(), fault, seed=trial.seed, limit_s=8000.0)
+        run_id = record(log, trial.toml(), fault, seed=trial.seed, limit_s=8000.0,
+                        answer_after_s=float(trial.seed % 400))
         profile = parse_profile(trial.toml(), "trial.toml")
         _assert_same(*_both(log, run_id, Limits().merged(profile.limits).merged(tight)))
     finally:

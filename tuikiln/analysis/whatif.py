@@ -111,10 +111,11 @@ def rerun_rules(
     finished it. `unjudged`: alarm codes about signals the log does not have.
 
     The rules' array forms (tuikiln.engine.stepper_arrays, alarm_arrays) decide where they
-    can follow the run: no pause steps, no `equalized` holds, no replayed commands, times
-    that never go backwards. Otherwise, or with `per_sample`, the samples go to RunRules one
-    at a time. Both give the same steps, states, setpoints, alarms and outcome (tests/
-    test_whatif_arrays.py); the array forms leave out the step-state words."""
+    can follow the run: no `equalized` holds, no replayed commands (acknowledgements of a
+    pause step are fine), times that never go backwards. Otherwise, or with `per_sample`,
+    the samples go to RunRules one at a time. Both give the same steps, states, setpoints,
+    alarms and outcome (tests/test_whatif_arrays.py); the array forms leave out the
+    step-state words and the pause reminders."""
     if sample_s > 0.0:
         profile = dataclasses.replace(profile, steps=tuple(
             dataclasses.replace(s, duration_s=max(0.0, s.duration_s - sample_s))
@@ -122,10 +123,10 @@ def rerun_rules(
     if not per_sample:
         rules = RunRules(profile, limits, max_c=max_c, units=units)
         rules.alarms.unjudged = frozenset(unjudged)
-        commands, _ = _logged_commands(events, with_skips=same_profile)
+        commands, acks = _logged_commands(events, with_skips=same_profile)
         if not commands:
             try:
-                return rerun_arrays(rules, t, chamber_c, output_pct, flags)
+                return rerun_arrays(rules, t, chamber_c, output_pct, flags, acks)
             except NotInArrays:
                 pass
     n = t.size
@@ -189,7 +190,8 @@ def _finite(values: np.ndarray) -> np.ndarray:
 
 
 def rerun_arrays(rules: RunRules, t: np.ndarray, chamber_c: np.ndarray,
-                 output_pct: np.ndarray, flags: np.ndarray | None) -> Rerun:
+                 output_pct: np.ndarray, flags: np.ndarray | None,
+                 acks: Sequence[float] = ()) -> Rerun:
     """What `rules` (fresh) decide over the samples, by the rules' array forms; raises
     NotInArrays where only the per-sample rules can follow the run."""
     t = np.asarray(t, dtype=float)
@@ -205,7 +207,7 @@ def rerun_arrays(rules: RunRules, t: np.ndarray, chamber_c: np.ndarray,
     given = np.where(link_ok & ~sensor, chamber, np.nan)
     profile = rules.profile
     steps = follow(profile, rules.limits, rules.units, t, given,
-                   watched_equalize=rules.load_watch is not None)
+                   watched_equalize=rules.load_watch is not None, acks=acks)
     count = len(profile.steps)
     kind_of = np.array([KINDS.index(s.kind) for s in profile.steps] + [-1], dtype=np.int64)
     rated_of = np.array([isinstance(s, Ramp) and s.rate_c_per_s is not None

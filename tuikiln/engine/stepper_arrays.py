@@ -10,13 +10,16 @@ Clocks are summed in the same order (a cumulative sum adds one term after anothe
 stepper's `+=` does), so the result is equal, not close; tests/test_whatif_arrays.py runs
 both over simulated runs with faults and compares them.
 
-What it does not follow raises NotInArrays, and the caller uses the per-sample rules: pause
-steps (they wait for a person), holds that start when the load has evened out (the
-equalization detector is fed one reading at a time), and the person's commands.
+What it does not follow raises NotInArrays, and the caller uses the per-sample rules: holds
+that start when the load has evened out (the equalization detector is fed one reading at a
+time) and the person's commands (pause, skip, abort). A pause step is answered at the logged
+acknowledgements, as whatif.rerun_rules answers it. The events are the step starts and
+ends; the step-state words and the pause reminders are the per-sample rules' alone.
 """
 
 from __future__ import annotations
 
+from collections.abc import Sequence
 from dataclasses import dataclass, field
 
 import numpy as np
@@ -73,8 +76,10 @@ def _active_sums(dt: np.ndarray, i: int) -> np.ndarray:
 
 class _Follower:
     def __init__(self, profile: Profile, limits: Limits, units: Units, t: np.ndarray,
-                 usable: np.ndarray) -> None:
+                 usable: np.ndarray, acks: Sequence[float]) -> None:
         self.steps = profile.steps
+        self.acks = acks
+        self.next_ack = 0
         self.limits = limits
         self.units = units
         self.t = t
@@ -145,7 +150,29 @@ class _Follower:
         if isinstance(step, Cool):
             return self._cool(index, i, step), 0.0, 0.0
         assert isinstance(step, Pause)
-        raise NotInArrays("a pause step waits for a person")
+        return self._pause(index, i), 0.0, 0.0
+
+    def _pause(self, index: int, i: int) -> int | None:
+        """A pause step, answered as whatif.rerun_rules answers it: at the first logged
+        acknowledgement from the tick after it began, or on that tick when there is none."""
+        t, n, acks = self.t, self.n, self.acks
+        if self.setpoint is None:
+            self.setpoint = self.target if self.target is not None else self._temp_at_entry(i)
+        started = float(t[i])
+        done: int | None = None
+        if i + 1 < n:
+            while self.next_ack < len(acks) and acks[self.next_ack] < t[i + 1]:
+                self.next_ack += 1
+            if self.next_ack >= len(acks):
+                done = i + 1
+            else:
+                done = _first(t[i + 1:] >= acks[self.next_ack], i + 1)
+            if done is not None:
+                self.next_ack += 1
+        end = n if done is None else done
+        self._fill(i, end, index, st.WAITING_YOU, started, started, False)
+        self.out.setpoint[i:end] = self.setpoint
+        return done
 
     def _next_is_hold(self, index: int) -> bool:
         return index + 1 < len(self.steps) and isinstance(self.steps[index + 1], Hold)
@@ -323,13 +350,13 @@ def _band_dwell(t: np.ndarray, dt: np.ndarray, finite: np.ndarray, in_band: np.n
 
 
 def follow(profile: Profile, limits: Limits, units: Units, t: np.ndarray,
-           usable_c: np.ndarray, *, watched_equalize: bool) -> StepArrays:
+           usable_c: np.ndarray, *, watched_equalize: bool,
+           acks: Sequence[float] = ()) -> StepArrays:
     """The stepper's decisions over the samples. `usable_c`: the reading the stepper is
     given (NaN where it gets None); `watched_equalize`: the rules feed an equalization
-    detector (an `equalized` hold then waits for it, which only the per-sample rules do)."""
+    detector (an `equalized` hold then waits for it, which only the per-sample rules do);
+    `acks`: the times (sorted) a person answered a pause step in the log."""
     for step in profile.steps:
         if isinstance(step, Hold) and step.start == "equalized" and watched_equalize:
             raise NotInArrays("an equalized hold waits for the per-sample detector")
-        if isinstance(step, Pause):
-            raise NotInArrays("a pause step waits for a person")
-    return _Follower(profile, limits, units, t, usable_c).run()
+    return _Follower(profile, limits, units, t, usable_c, acks).run()
