@@ -17,6 +17,7 @@ import os
 
 import pytest
 
+from tests.test_disk_trouble import PROFILE as DISK_TROUBLE_PROFILE
 from tests.test_disk_trouble import tiny_disk  # noqa: F401 - a fixture (a 160 KiB tmpfs)
 from tests.test_recovery import Sink, dead_pid
 from tuikiln import events as ev
@@ -28,15 +29,7 @@ from tuikiln.limits import Limits
 from tuikiln.profile import parse_profile
 from tuikiln.runlog import EndMark, RunLog
 
-LONG_HOLD = """
-name = "long hold"
-units = "C"
-[[step]]
-ramp = "max"
-to = 500
-[[step]]
-hold = "5h"
-"""
+LONG_HOLD = DISK_TROUBLE_PROFILE  # a ramp to 500 °C, then a 5 h hold
 
 
 def engine_on(log: RunLog, device: ScriptedDevice, sink: Sink, resume=None) -> RunEngine:

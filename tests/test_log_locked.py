@@ -33,8 +33,8 @@ units = "C"
 ramp = "300/h"
 to = 500
 [[step]]
-hold = "5h"
-"""
+hold = "200h"
+"""  # long: the run must still be going when the writer's first try (250 ms) has failed
 LOCKED_TICKS = 1500  # readings taken while the other program holds the lock (at least)
 
 
