@@ -12,6 +12,7 @@ import subprocess
 
 import pytest
 
+from tests.waiting import wait_until
 from tuikiln import events as ev
 from tuikiln.drivers.fake import FirstOrderOven, ManualClock, ScriptedDevice
 from tuikiln.engine import states as st
@@ -51,6 +52,7 @@ class Grower:
     """Gives the disk room again a while after the log-trouble alarm shows."""
 
     def __init__(self, folder) -> None:
+        self.engine = None  # set by the test once the engine exists
         self.folder = folder
         self.events: list = []
         self.raised_at: float | None = None
@@ -72,6 +74,12 @@ class Grower:
                 subprocess.run(["mount", "-o", "remount,size=50m", str(self.folder)],
                                check=True)
                 self.grown = True
+                # The log is written from its own thread, retrying about once a second of wall
+                # time, while this run on a manual clock covers hours in a second: hold this
+                # tick until the writer has caught up, so the run is still going when the
+                # engine sees the log is fine again (on a loaded machine it could end first).
+                recorder = self.engine.recorder
+                wait_until(lambda: recorder.trouble is None, 30.0, "the log writer to recover")
 
 
 async def test_a_full_disk_keeps_the_run_going_and_writes_everything_later(tiny_disk):
@@ -86,6 +94,7 @@ async def test_a_full_disk_keeps_the_run_going_and_writes_everything_later(tiny_
         log = RunLog.in_folder(tiny_disk)
         engine = RunEngine(device, profile, kiln=KilnInfo("Test oven", "C", 1100.0),
                            limits=Limits(), runlog=log, sinks=[sink])
+        sink.engine = engine
         outcome = await engine.run()
     finally:
         runlog.RETRY_AFTER_S = old
