@@ -72,7 +72,7 @@ async def test_commands_status_and_subscribe_over_the_socket(tmp_path):
                     "step_kind", "step_state", "step_words", "chamber_c", "load_c", "core_c",
                     "setpoint_c", "target_c", "output_pct", "equalization",
                     "time_to_next_step_s", "time_to_operator_s", "time_to_end_s", "alarms",
-                    "time", "started", "watch_only"):
+                    "time", "started", "watch_only", "safe_state"):
             assert key in status
 
         def first_lines(n: int) -> list[dict]:

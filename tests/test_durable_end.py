@@ -211,3 +211,48 @@ async def test_a_restart_the_log_cannot_take_drives_safe_and_says_so(tmp_path):
 
     await restart_on_a_log_that_refuses(tmp_path, refuse)
 
+
+
+async def test_runs_shows_an_end_kept_only_in_its_mark_without_writing(
+        tmp_path, short_close, capsys):
+    """`tuikiln runs` reads the end mark: the aborted run is "aborted", not "unfinished" (nor
+    "running": this test's own process is the run's pid), and the log is left as it was."""
+    import hashlib
+    import json
+
+    from tuikiln.cli import main
+
+    clock = ManualClock(1_000_000.0)
+    log = RunLog.in_folder(tmp_path)
+
+    def fail_the_end(sink: Sink) -> bool:
+        if not in_hold(sink):
+            return False
+        log._conn.execute("CREATE TRIGGER full BEFORE UPDATE OF outcome ON runs "
+                          "BEGIN SELECT RAISE(FAIL, 'database or disk is full'); END")
+        return True
+
+    engine = engine_on(log, ScriptedDevice(model=FirstOrderOven(tau_s=300.0), clock=clock),
+                       AbortWhen(fail_the_end))
+    assert await engine.run() == st.ABORTED
+    run_id = engine.run_id
+    assert log.run(run_id).outcome is None  # only the mark has the end
+    ended = log.end_mark(run_id)["ended"]
+    log.close()
+
+    def fingerprint() -> list[tuple[str, str]]:
+        # The database and the mark; a WAL reader's -shm/-wal files are SQLite's own.
+        return sorted((p.name, hashlib.sha256(p.read_bytes()).hexdigest())
+                      for p in tmp_path.iterdir()
+                      if p.is_file() and not p.name.endswith(("-shm", "-wal")))
+
+    before = fingerprint()
+    capsys.readouterr()
+    assert main(["runs", "--data", str(tmp_path), "--json"]) == 0
+    (row,) = json.loads(capsys.readouterr().out)
+    assert row["outcome"] == st.ABORTED and row["ended"] == ended and row["end_in_mark"]
+    assert main(["runs", "--data", str(tmp_path)]) == 0
+    text = capsys.readouterr().out
+    assert "aborted" in text and "unfinished" not in text and "end mark" in text
+    assert fingerprint() == before  # a reader: not a byte written, the mark kept
+    assert EndMark(tmp_path / log.path.name, run_id).path.exists()

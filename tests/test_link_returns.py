@@ -121,3 +121,82 @@ async def test_a_new_stop_request_ends_the_trying_and_says_switch_off(tmp_path) 
     finally:
         await server.shutdown()
         wire.close()
+
+
+class States(Events):
+    """Keeps the status dicts the engine publishes (what the MQTT `state` topic carries)."""
+
+    def __init__(self) -> None:
+        super().__init__()
+        self.states: list[dict] = []
+
+    def state(self, state) -> None:  # noqa: ANN001
+        self.states.append(dict(state))
+
+
+async def test_status_shows_the_retrying_and_a_socket_abort_ends_it(tmp_path) -> None:
+    """After the run ended on a pulled cable: `status` (socket) and the published state say
+    "retrying", critical, with the attempts and the time since; `abort` through the control
+    socket ends the trying with the same "switch it off by hand" words as Ctrl-C."""
+    from tuikiln import control
+    from tuikiln.alerts.payloads import state_and_attributes
+    from tuikiln.commands.ctl import status_words
+
+    wire = PtyWire(str(tmp_path / "ttyKILN"))
+    server = await start_serial_server(holding_device([200, 0, 0, 0]), wire.device_path)
+    sink = States()
+    try:
+        settings = ModbusSettings(port=wire.link_path, timeout_s=0.2, retries=0,
+                                  reconnect_min_s=0.05, reconnect_max_s=0.2)
+        device = ModbusDevice(settings, parse_map(EEPROM_MAP, "eeprom.toml"))
+        profile = parse_profile(HOT_HOLD, "hot.toml", max_c=1100.0)
+        await device.connect()
+        engine = RunEngine(device, profile, kiln=KilnInfo("Test oven", "C", 1100.0),
+                           limits=Limits(link_lost=0.3, link_lost_safe=0.6), sinks=[sink],
+                           tick_s=0.1, watchdog_s=None)
+        sock = control.ControlServer(engine, tmp_path / "ctl" / "kiln.sock")
+        await sock.start()
+        run = asyncio.create_task(engine.run())
+
+        async def heating() -> bool:
+            return list(await server.async_getValues(1, 3, 1, 2)) == [4000, 1]
+
+        await until(heating, "the controller takes the setpoint")
+        assert engine.status()["safe_state"] is None  # nothing to say while all is well
+        wire.unplug()
+
+        def status() -> dict:
+            return control.request(str(sock.path), "status")["status"]
+
+        async def retried_twice() -> dict | None:
+            got = (await asyncio.to_thread(status)).get("safe_state")
+            return got if got and got["attempts"] >= 3 else None
+
+        safe = await eventually(retried_twice, WAIT_S, "the status shows the retrying")
+        assert safe["state"] == "retrying" and safe["severity"] == "critical"
+        assert "switch it off by hand" in safe["words"] and safe["since_s"] > 0
+        assert not run.done()
+        text = status_words(await asyncio.to_thread(status))
+        assert "CRITICAL" in text and "not yet confirmed the heater is off" in text
+        published = [s["safe_state"] for s in sink.states if s.get("safe_state")]
+        assert published and published[-1]["severity"] == "critical"
+        short, attributes = state_and_attributes(sink.states[-1])
+        assert short["safe_state"]["state"] == "retrying"
+        assert "by hand" in attributes["safe_state_words"]
+
+        # A remote abort cannot end the trying: giving up never makes an oven safer.
+        refused = engine.command("abort", None, "mqtt")
+        assert refused["ok"] is False and engine.safe_pending
+
+        answer = await asyncio.to_thread(control.request, str(sock.path), "abort")
+        assert answer["ok"] and "by hand" in answer["message"]
+        await asyncio.wait_for(run, WAIT_S)  # the retry wait is cut short by the abort
+        last = [e for e in sink.events if e.kind == ev.SAFE_STATE][-1]
+        assert last.severity == "critical" and "by hand" in last.message
+        assert engine.status()["safe_state"] is None
+        assert await heating()  # nothing reached the controller: the words were true
+        await sock.close()
+        await device.close()
+    finally:
+        await server.shutdown()
+        wire.close()

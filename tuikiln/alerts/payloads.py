@@ -58,4 +58,7 @@ def state_and_attributes(state: Mapping[str, Any]) -> tuple[dict[str, Any], dict
     equalization = state.get("equalization")
     if isinstance(equalization, Mapping) and equalization.get("words"):
         attributes["equalization_words"] = equalization["words"]
+    safe = state.get("safe_state")
+    if isinstance(safe, Mapping) and safe.get("words"):
+        attributes["safe_state_words"] = safe["words"]
     return short, attributes

@@ -94,4 +94,10 @@ def status_words(status: dict[str, Any]) -> str:
         lines.append(f"{alarm['severity'].upper()} {alarm['code']}: {alarm['words']}{seen}")
     if status.get("watch_only"):
         lines.append("Watching only: tuikiln does not control this oven.")
+    safe = status.get("safe_state")
+    if isinstance(safe, dict):
+        lines.append(f"CRITICAL {safe.get('words')} (still trying: "
+                     f"{safe.get('attempts')} attempts in "
+                     f"{format_duration(safe.get('since_s') or 0.0)}; `tuikiln abort` stops "
+                     "the trying)")
     return "\n".join(lines)

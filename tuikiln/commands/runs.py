@@ -102,18 +102,39 @@ def _when(t: float | None) -> str:
     return "--" if t is None else time.strftime("%Y-%m-%d %H:%M", time.localtime(t))
 
 
+def with_end_marks(log: Any, runs: list[Any]) -> tuple[list[Any], set[int]]:
+    """The runs, each one the database holds no end for but whose end mark does (the
+    engine ended it while the disk was full: tuikiln/runlog.py, EndMark) with that end;
+    and the ids of those. Reading only: the database gets the end from the next engine."""
+    from dataclasses import replace
+
+    out, marked = [], set()
+    for r in runs:
+        mark = log.end_mark(r.id) if not r.outcome else None
+        if mark is not None:
+            r = replace(r, outcome=mark["outcome"], ended=mark.get("ended"))
+            marked.add(r.id)
+        out.append(r)
+    return out, marked
+
+
 def _list(args: argparse.Namespace, log: Any) -> int:
-    runs = log.runs()
+    runs, marked = with_end_marks(log, log.runs())
     if args.json:
-        print(json.dumps([r.summary() for r in runs], indent=2))
+        print(json.dumps([{**r.summary(), "end_in_mark": r.id in marked} for r in runs],
+                         indent=2))
         return 0
     if not runs:
         print("no runs logged yet")
         return 0
     print(f"{'id':>4}  {'started':16}  {'ended':16}  {'outcome':16}  profile")
     for r in runs:
-        print(f"{r.id:>4}  {_when(r.started):16}  {_when(r.ended):16}  {r.status:16}  "
+        star = "*" if r.id in marked else " "
+        print(f"{r.id:>4}  {_when(r.started):16}  {_when(r.ended):16}  {r.status:16}{star} "
               f"{r.profile}")
+    if marked:
+        print("* the end is in the run's end mark (the disk was full when the run ended); "
+              "`tuikiln run --resume` writes it into the log")
     return 0
 
 

@@ -48,7 +48,7 @@ from tuikiln.engine.recovery import ResumePlan
 from tuikiln.engine.rules import REMOTE_SOURCES, CommandResult, Decision, RunRules, TickInput
 from tuikiln.engine.safety import SafeResult, drive_safe
 from tuikiln.engine.states import RestartPolicy
-from tuikiln.engine.status import LastReading, Status, build_status
+from tuikiln.engine.status import LastReading, Status, build_status, safe_state
 from tuikiln.errors import UserError
 from tuikiln.events import Event
 from tuikiln.limits import Limits
@@ -163,12 +163,17 @@ class RunEngine:
         self._stop_asks = 0  # signals and stop requests so far: a new one ends the safe retries
         self.safe_pending = False
         """The run has ended but the heat could not be turned off: retrying until it is."""
+        self.safe_attempts = 0  # tries at the safe state since the run ended unable to
+        self._safe_since: float | None = None  # ... reach the controller, and since when
+        self._stop_asked: asyncio.Event | None = None  # wakes the retrying at a stop request
 
     # ----- outside -----
 
     def command(self, name: str, arg: str | None = None, source: str = "command") -> dict:
         """Apply a person's command at once; returns {"ok", "message"}."""
         now = self.clock.now()
+        if self.safe_pending and name in ("abort", "stop"):
+            return self._abort_safe_retry(name, source)
         if self.held_for_restart:
             held = self._command_while_held(now, name, arg, source)
             if held is not None:
@@ -182,7 +187,7 @@ class RunEngine:
 
     def request_stop(self, outcome: str, reason: str) -> None:
         """From a signal handler: stop at the next tick, driving the device safe."""
-        self._stop_asks += 1
+        self._ask_stop()
         if self._stop_request is None:
             self._stop_request = (outcome, reason)
 
@@ -190,14 +195,35 @@ class RunEngine:
         """From a service manager's SIGTERM (a reboot, `systemctl stop`): drive the device
         safe at the next tick and leave the run unfinished, to be carried on (per the kiln
         file's on_restart) when the engine starts again."""
-        self._stop_asks += 1
+        self._ask_stop()
         if self._suspend_request is None and self._stop_request is None:
             self._suspend_request = reason
 
+    def _ask_stop(self) -> None:
+        self._stop_asks += 1
+        if self._stop_asked is not None:
+            self._stop_asked.set()
+
+    def _abort_safe_retry(self, name: str, source: str) -> dict:
+        """`abort` after a run that ended unable to turn the heat off: a local one ends the
+        trying (as Ctrl-C does) and says to switch off by hand; a remote one cannot, since
+        giving up on the safe state never makes the oven safer."""
+        if source in REMOTE_SOURCES:
+            message = (f"Refused {name} from {source}: the run has ended and tuikiln keeps "
+                       "trying to turn the heat off; only a local abort ends that")
+            self._emit(Event(self.clock.now(), ev.COMMAND_REFUSED, message, "warning",
+                             {"command": name, "source": source}))
+            return {"ok": False, "message": message}
+        self._ask_stop()
+        return {"ok": True, "message": STOPPED_TRYING_WORDS}
+
     def status(self) -> Status:
+        now = self.clock.now()
+        safe = (safe_state(self._safe_since, self.safe_attempts, now)
+                if self.safe_pending and self._safe_since is not None else None)
         return build_status(self.rules, run_id=self.run_id, kiln=self.kiln.name,
-                            now=self.clock.now(), started=self.started, last=self.last,
-                            watch_only=self.watch_only, forecast=self.forecast)
+                            now=now, started=self.started, last=self.last,
+                            watch_only=self.watch_only, forecast=self.forecast, safe=safe)
 
     # ----- the run -----
 
@@ -548,17 +574,25 @@ class RunEngine:
         safe state, so that an oven whose link comes back is not left heating. A new stop
         request (a signal, Ctrl-C) ends the trying; the person was told to switch off."""
         asks = self._stop_asks
+        self._stop_asked = asyncio.Event()
+        self._safe_since = since
+        self.safe_attempts = 1  # the try at the run's end
+        self._publish_status(force=True)
         wait = max(self.tick_s, 0.1)
         while self._stop_asks == asks:
-            await self.clock.sleep(wait)
+            await self._sleep_unless_stopped(wait)
             wait = min(wait * 2.0, SAFE_RETRY_MAX_S)
             if self._stop_asks != asks:
                 break
+            self.safe_attempts += 1
             try:
                 result = await asyncio.wait_for(drive_safe(self.device, attempts=1),
                                                 SAFE_PATH_TIMEOUT_S)
             except TimeoutError:
+                self._publish_status(force=True)
                 continue
+            if not result.done:
+                self._publish_status(force=True)  # the attempts and the time since, over MQTT
             if result.done:
                 self.safe_pending = False
                 now = self.clock.now()
@@ -569,10 +603,23 @@ class RunEngine:
                                   "after_end": True}))
                 self._publish_status(force=True)
                 return
-        self._emit(Event(self.clock.now(), ev.SAFE_STATE, "Stopped trying to turn the heat "
-                         "off: the oven may still be heating. Switch it off by hand now",
+        self.safe_pending = False
+        self._emit(Event(self.clock.now(), ev.SAFE_STATE, STOPPED_TRYING_WORDS,
                          "critical", {"reason": "stopped trying", "done": False,
-                                      "words": "not reached", "after_end": True}))
+                                      "words": "not reached", "after_end": True,
+                                      "attempts": self.safe_attempts}))
+        self._publish_status(force=True)
+
+    async def _sleep_unless_stopped(self, seconds: float) -> None:
+        """The retry's wait (up to SAFE_RETRY_MAX_S), cut short by a stop request."""
+        assert self._stop_asked is not None
+        nap = asyncio.ensure_future(self.clock.sleep(seconds))
+        stop = asyncio.ensure_future(self._stop_asked.wait())
+        try:
+            await asyncio.wait({nap, stop}, return_when=asyncio.FIRST_COMPLETED)
+        finally:
+            nap.cancel()
+            stop.cancel()
 
     async def _suspend(self, reason: str) -> None:
         result = await drive_safe(self.device) if not self.watch_only else None
@@ -743,6 +790,9 @@ class RunEngine:
         for listener in list(self.listeners):
             _safe_call(listener, "status", status)
 
+
+STOPPED_TRYING_WORDS = ("Stopped trying to turn the heat off: the oven may still be heating. "
+                        "Switch it off by hand now")
 
 RETRY_WORDS = ("; tuikiln keeps trying to turn it off while it runs, and says so when the "
                "controller answers")

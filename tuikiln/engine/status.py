@@ -3,10 +3,12 @@ the live screen shows. `Status` below is its shape; keep its keys (other program
 
     run, kiln, profile, units, state, step, step_count, step_kind, step_state, step_words,
     chamber_c, load_c, core_c, setpoint_c, target_c, output_pct, equalization,
-    time_to_next_step_s, time_to_operator_s, time_to_end_s, alarms, time, started, watch_only
+    time_to_next_step_s, time_to_operator_s, time_to_end_s, alarms, time, started, watch_only,
+    safe_state
 
 Temperatures are °C (None when unknown); `units` says how to show them. The states are the
-StrEnums of engine/states.py, which serialize as their strings.
+StrEnums of engine/states.py, which serialize as their strings. `safe_state` is None
+unless the run has ended without the controller confirming the heat is off (`SafeState`).
 """
 
 from __future__ import annotations
@@ -30,6 +32,29 @@ class Equalization(TypedDict):
     eta_s: float | None
     eta_sigma_s: float | None
     rule_of_thumb_s: float | None
+
+
+class SafeState(TypedDict):
+    """The status's `safe_state` after a run ended without reaching the controller (a lost
+    link): the engine keeps trying to turn the heat off. None once it is off."""
+
+    state: str                 # "retrying"
+    severity: str              # "critical": the oven may still be heating
+    since: float               # when the run ended (the device clock, like `time`)
+    since_s: float             # seconds since then
+    attempts: int              # tries so far, the first at the run's end included
+    words: str
+
+
+SAFE_RETRYING = "retrying"
+SAFE_RETRY_WORDS = ("the run has ended but the controller has not yet confirmed the heater is "
+                    "off: switch it off by hand")
+
+
+def safe_state(since: float, attempts: int, now: float) -> SafeState:
+    return {"state": SAFE_RETRYING, "severity": "critical", "since": since,
+            "since_s": _round(max(0.0, now - since), 1) or 0.0, "attempts": attempts,
+            "words": SAFE_RETRY_WORDS}
 
 
 class Status(TypedDict):
@@ -60,6 +85,8 @@ class Status(TypedDict):
     time: float
     started: float
     watch_only: bool
+    safe_state: SafeState | None
+    """Set while the run has ended but the controller has not confirmed the heat is off."""
 
 
 STATUS_KEYS: tuple[str, ...] = tuple(Status.__annotations__)
@@ -142,6 +169,7 @@ def build_status(
     last: LastReading,
     watch_only: bool,
     forecast: LiveForecast | None = None,
+    safe: SafeState | None = None,
 ) -> Status:
     s = rules.stepper
     step = s.step
@@ -171,4 +199,5 @@ def build_status(
         "time": now,
         "started": started,
         "watch_only": watch_only,
+        "safe_state": safe,
     }

@@ -12,14 +12,17 @@ from textual.widgets import RichLog
 
 from tuikiln.events import event_text
 from tuikiln.plaintext import plain
+from tuikiln.ui.glyphs import BRAILLE_GLYPHS, Glyphs
 from tuikiln.units import Units
 
 SEVERITY_MARK = {"critical": "✖", "warning": "▲", "info": "·"}
 KIND_MARK = {"note": "✎", "operator-needed": "☛", "step-start": "▶", "run-end": "■"}
 
 
-def event_line(event: Mapping[str, Any], units: Units, started: float | None) -> Text:
-    """'+1h05 ▶ step 3: heat as fast as the oven goes to 1490 °F'."""
+def event_line(event: Mapping[str, Any], units: Units, started: float | None,
+               glyphs: Glyphs = BRAILLE_GLYPHS) -> Text:
+    """'+1h05 ▶ step 3: heat as fast as the oven goes to 1490 °F' (its symbols in what the
+    terminal's font has: `glyphs`)."""
     when = float(event.get("time") or 0.0)
     if started is not None:
         minutes = int(max(0.0, when - started) // 60)
@@ -32,10 +35,10 @@ def event_line(event: Mapping[str, Any], units: Units, started: float | None) ->
     if severity in ("warning", "critical"):
         mark = SEVERITY_MARK[severity]
     style = {"critical": "bold reverse", "warning": "bold"}.get(severity, "")
-    text = Text(f"{stamp:>6} {mark} ", style="dim")
+    text = Text(f"{stamp:>6} {glyphs.plain(mark)} ", style="dim")
     # Its numbers in the screen's units (an older log's events: their stored words); plain:
     # a remote note's escape codes must not reach the terminal.
-    text.append(plain(event_text(event, units)), style=style)
+    text.append(glyphs.plain(plain(event_text(event, units))), style=style)
     return text
 
 
@@ -61,13 +64,20 @@ class EventLog(RichLog):
     def add_events(self, events: Sequence[Mapping[str, Any]]) -> None:
         for event in events:
             self._events.append(event)
-            self.write(event_line(event, self.units, self.started))
+            self.write(self._line(event))
+
+    def _line(self, event: Mapping[str, Any]) -> Text:
+        try:
+            glyphs = getattr(self.app, "glyphs", BRAILLE_GLYPHS)
+        except Exception:  # not in an app (a widget built on its own): the full set
+            glyphs = BRAILLE_GLYPHS
+        return event_line(event, self.units, self.started, glyphs)
 
     def watch_units(self) -> None:
         self.clear()
         for event in self._events[-2000:]:
-            self.write(event_line(event, self.units, self.started))
+            self.write(self._line(event))
 
     @property
     def lines_text(self) -> list[str]:
-        return [event_line(e, self.units, self.started).plain for e in self._events]
+        return [self._line(e).plain for e in self._events]
