@@ -12,12 +12,13 @@ from __future__ import annotations
 
 import asyncio
 import sqlite3
+import time
 
 import numpy as np
 import pytest
 
 from tests.test_recovery import Sink
-from tests.waiting import eventually
+from tests.waiting import eventually, wait_until
 from tuikiln import events as ev
 from tuikiln.drivers.fake import FirstOrderOven, ManualClock, ScriptedDevice
 from tuikiln.engine import states as st
@@ -36,13 +37,17 @@ to = 500
 hold = "200h"
 """  # long: the run must still be going when the writer's first try (250 ms) has failed
 LOCKED_TICKS = 1500  # readings taken while the other program holds the lock (at least)
+SPILL_WAIT_S = 30.0  # wall time the spilled case waits for the writer's first spill, at most
 
 
 class Locker(Sink):
     """Takes the write lock at the 50th reading, counts what the engine does while it is
     held, lowers the queue bound so that the spill is reached, and aborts the run (a local
     command) while the lock is still held (once the writer has said it cannot write), so
-    the run's end must wait for it too."""
+    the run's end must wait for it too. With a bound below LOCKED_TICKS it also waits for
+    the first spill: the writer spills only after a failed try (one a second of wall time),
+    and a loaded machine may take the LOCKED_TICKS readings before a try has found more
+    than the bound queued; SPILL_WAIT_S is a safety margin, the spill is checked after."""
 
     def __init__(self, db_path, device: ScriptedDevice, bound: int) -> None:
         super().__init__()
@@ -55,6 +60,7 @@ class Locker(Sink):
         self.ticks_locked = 0
         self.logged_when_aborted = -1
         self.aborted = False
+        self.locked_wall = 0.0
 
     def reading(self, sample) -> None:
         self.readings += 1
@@ -63,12 +69,15 @@ class Locker(Sink):
             engine.recorder.queue_bound = self.bound
             self.holder.execute("BEGIN EXCLUSIVE")  # another program writing, for a long time
             self.locked_at = self.readings
+            self.locked_wall = time.monotonic()
             self.writes_before = len(self.device.setpoint_writes)
         elif self.locked_at is not None and self.holder.in_transaction:
             self.ticks_locked += 1
             troubled = (ev.ALARM_RAISED, "log-trouble") in [
                 (e.kind, e.detail.get("alarm")) for e in self.events]
-            if self.ticks_locked >= LOCKED_TICKS and troubled and not self.aborted:
+            spill_seen = (self.bound >= LOCKED_TICKS or engine.recorder.spilled > 0
+                          or time.monotonic() > self.locked_wall + SPILL_WAIT_S)
+            if self.ticks_locked >= LOCKED_TICKS and troubled and spill_seen and not self.aborted:
                 self.aborted = True
                 self.logged_when_aborted = engine.runlog.sample_count(engine.run_id)
                 engine.command("abort", "test over", "socket")
@@ -145,3 +154,32 @@ def test_samples_left_in_a_spill_are_written_by_the_next_engine(tmp_path):
     chamber = log.samples(recorder.run_id)["chamber_c"]
     assert len(chamber) == 300 and np.array_equal(chamber, 100.0 + np.arange(300))
     later.close()
+
+
+def test_samples_in_the_writers_hands_still_count_as_queued(tmp_path):
+    # Each try at a locked log takes the queue out of memory for the busy timeout (250 ms);
+    # the engine's warning near the bound reads `queued` meanwhile, and read 0 there.
+    log = RunLog.in_folder(tmp_path)
+    recorder = log.start_run(kiln="k", profile="p", started=0.0)
+    holder = sqlite3.connect(log.path, isolation_level=None)
+    holder.execute("BEGIN EXCLUSIVE")
+    recorder.write_in_background()
+    try:
+        for i in range(300):
+            recorder.sample(float(i), 100.0 + i, None, None, 100.0, 10.0, 0, 1, 0)
+        seen: list[int] = []
+        tries: set[float] = set()
+
+        def two_more_tries_failed() -> bool:
+            seen.append(recorder.queued)
+            if recorder.trouble is not None:
+                tries.add(recorder._retry_at)  # a new value at each failed try
+            return len(tries) >= 3
+
+        wait_until(two_more_tries_failed, 30, "three failed tries at the locked log")
+        assert min(seen) == max(seen) == 300, (min(seen), max(seen))
+    finally:
+        holder.rollback()
+        holder.close()
+    assert recorder.close(wait_s=10)
+    assert log.sample_count(recorder.run_id) == 300

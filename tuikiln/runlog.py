@@ -640,6 +640,9 @@ class RunRecorder:
         self._lock = threading.Lock()
         """Guards the queues below: the loop appends, the writer thread takes."""
         self._samples: list[tuple[Any, ...]] = []
+        self._in_hand = 0
+        """Samples the writer has taken out of `_samples` for the write it is trying; they
+        still wait (a commit to a locked log can take the whole busy timeout)."""
         self._block: list[tuple[Any, ...]] = []
         """Rows of the last, still growing block (already written)."""
         self._block_id: int | None = None
@@ -751,6 +754,7 @@ class RunRecorder:
         True when nothing is left. Runs in the writer thread, or in the caller's."""
         with self._lock:
             samples, self._samples = self._samples, []
+            self._in_hand = len(samples)
             events, self._events = self._events, []
             point, self._resume_point = self._resume_point, None
             end = self._end_request
@@ -765,6 +769,7 @@ class RunRecorder:
                 self.conn.execute("ROLLBACK")
             with self._lock:
                 self._samples[:0] = samples
+                self._in_hand = 0
                 self._events[:0] = events
                 if self._resume_point is None:
                     self._resume_point = point
@@ -776,6 +781,8 @@ class RunRecorder:
             self._retry_at = start + RETRY_AFTER_S
             ok = False
         else:
+            with self._lock:
+                self._in_hand = 0
             elapsed = time.monotonic() - start
             self.longest_commit_s = max(self.longest_commit_s, elapsed)
             self.samples_written += len(samples)
@@ -880,8 +887,10 @@ class RunRecorder:
 
     @property
     def queued(self) -> int:
-        """Samples waiting in memory to be written."""
-        return len(self._samples)
+        """Samples waiting in memory to be written, those in the writer's hands included (a
+        count of only the list would read 0 during each failed try at a locked log)."""
+        with self._lock:
+            return len(self._samples) + self._in_hand
 
     def end(self, outcome: str, ended: float) -> bool:
         """The run's end: into the end mark at once, then the database (with the writer

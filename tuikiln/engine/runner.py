@@ -518,16 +518,18 @@ class RunEngine:
             self._log_trouble = trouble
             words = f"Cannot write the run log ({rec.trouble}): the run goes on" if trouble else ""
             self._emit_all(self.rules.alarms.set_condition("log-trouble", trouble, now, words))
-        near = rec.queued >= rec.queue_bound * QUEUE_WARN_FRACTION
+        # read once: the writer thread spills meanwhile, and the warning must say what was seen
+        queued, bound = rec.queued, rec.queue_bound
+        near = queued >= bound * QUEUE_WARN_FRACTION
         if near != self._log_queue_near:
             self._log_queue_near = near
             if near:
                 spill = rec.spill.path if rec.spill is not None else "a spill file"
-                self._emit(Event(now, ev.LOG_QUEUE, f"{rec.queued:,} samples wait in memory for "
-                                 f"the run log ({rec.queued * 100 // rec.queue_bound} % of the "
-                                 f"{rec.queue_bound:,} kept there); past that the oldest go to "
+                self._emit(Event(now, ev.LOG_QUEUE, f"{queued:,} samples wait in memory for "
+                                 f"the run log ({queued * 100 // bound} % of the "
+                                 f"{bound:,} kept there); past that the oldest go to "
                                  f"{spill}, in order, and are written when the log can be",
-                                 "warning", {"queued": rec.queued, "bound": rec.queue_bound}))
+                                 "warning", {"queued": queued, "bound": bound}))
 
     # ----- endings -----
 
