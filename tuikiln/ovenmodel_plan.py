@@ -17,8 +17,15 @@ lining, exactly):
   above it; the oven cools at the lesser of the rate and its free cooling;
 - a free cool ends when the chamber is at the target (within the band above it before a
   hold, where the controller catches it);
-- a hold lasts its time (an `equalized` hold's wait is not known: counted as nothing);
-- a pause waits for the person: counted as nothing, the oven held where it was.
+- a hold lasts its time; an `equalized` hold first waits, with the chamber at the target,
+  until the engine's own load watch (tuikiln.equalize.LoadWatch: the slow-side core estimate
+  of tuikiln.coremodel for the profile's `[load]`, and the same detector) calls the load
+  even. The watch is fed the predicted chamber trace from the start, so the core carries
+  its lag from the ramps before. With no `[load]` thickness it estimates a 25 mm part, as
+  the engine does, and the prediction says so. A load thermocouple, which the plan cannot
+  know of, usually ends the wait sooner: the prediction is then on the long side;
+- a pause waits for the person: counted as nothing, the oven held where it was; afterwards
+  the load is taken as cold again (a quench), as the engine does.
 
 The practice warning (common practice, no source): parts hardened and quenched should be
 tempered promptly, once they are hand-warm; a temper that waits for the oven to come down
@@ -29,11 +36,14 @@ from __future__ import annotations
 
 import math
 from dataclasses import dataclass
+from typing import Any
 
+from tuikiln.coremodel import DEFAULT_THICKNESS_M
+from tuikiln.limits import Limits
 from tuikiln.ovenmodel import OvenModel
 from tuikiln.plan import Plan, plan_profile
 from tuikiln.profile import Cool, Hold, Pause, Profile, Ramp, Step
-from tuikiln.units import Units, format_duration, format_rate, format_temp
+from tuikiln.units import ROOM_C, Units, format_duration, format_rate, format_temp
 
 HARDEN_FROM_C = 727.0
 """A hold at or above this before a pause is taken as austenitizing: 727 °C is the
@@ -58,6 +68,9 @@ class PredictedStep:
     """The chamber's predicted temperature at the step's end."""
     lining_c: float
     """The model's lining temperature at the step's start."""
+    equalize_s: float = 0.0
+    """Of the step's time, the wait for the load to even out before an `equalized` hold's
+    clock starts (inf: never)."""
 
 
 @dataclass(frozen=True)
@@ -84,6 +97,11 @@ class _Run:
     temp: float
     lining: float
     behind_at: float | None = None
+    watch: Any = None
+    """The engine's LoadWatch, fed the predicted chamber (None: no load estimate wanted)."""
+    clock: float = 0.0
+    equalized: Any = None
+    """The watch's last status while an equalized hold is watched."""
 
     def move(self, h: float, setpoint: float) -> None:
         """h seconds with the controller after `setpoint` as far as the oven allows."""
@@ -92,11 +110,36 @@ class _Run:
         off = self.temp + h * m.rate_c_per_s(self.temp, self.lining, 0.0)
         self.lining += h * (self.temp - self.lining) / m.lining_tau_s
         self.temp = min(max(setpoint, off), full)
+        self._feed(h)
 
     def soak(self, seconds: float) -> None:
         """Held where it is for `seconds`: only the lining moves (exactly, T is constant)."""
         self.lining = self.temp + (self.lining - self.temp) * math.exp(
             -seconds / self.model.lining_tau_s)
+        self._feed(seconds)
+
+    def _feed(self, seconds: float) -> None:
+        self.clock += seconds
+        if self.watch is not None and math.isfinite(self.clock):
+            self.equalized = self.watch.update(self.clock, self.temp)
+
+
+def _equalize_wait(run: _Run, target: float, band: float) -> float:
+    """Seconds from the chamber reaching `target` until the engine's watch calls the load
+    even (the chamber held at the target meanwhile; inf: not within NEVER_S)."""
+    if run.watch is None:
+        return 0.0
+    run.watch.begin_hold(target, band)
+    run.equalized = None
+    t = 0.0
+    while not getattr(run.equalized, "equalized", False):
+        if t > NEVER_S:
+            run.watch.end_hold()
+            return math.inf
+        run.move(STEP_S, target)
+        t += STEP_S
+    run.watch.end_hold()
+    return t
 
 
 def _ramp(run: _Run, target: float, rate: float | None, band: float) -> float:
@@ -139,15 +182,29 @@ def _cool(run: _Run, target: float, rate: float | None, band: float, next_hold: 
     return t
 
 
+def _load_watch(profile: Profile, limits: Limits | None, units: Units) -> Any:
+    """The LoadWatch the engine would make for this profile (None: no equalized hold)."""
+    if not any(isinstance(s, Hold) and s.start == "equalized" for s in profile.steps):
+        return None
+    from tuikiln.engine.rules import make_load_watch
+
+    merged = limits if limits is not None else Limits().merged(profile.limits)
+    return make_load_watch(profile, merged, units)
+
+
 def predict(plan: Plan, model: OvenModel, band_c: float, units: Units = "C",
-            lining_c: float | None = None) -> Prediction:
+            lining_c: float | None = None, limits: Limits | None = None) -> Prediction:
     """Every step's predicted start and end on this oven, and what it cannot do. The oven
-    starts soaked at the plan's start temperature unless `lining_c` says otherwise."""
+    starts soaked at the plan's start temperature unless `lining_c` says otherwise;
+    `limits` (the run's, for the equalize detector) default to the profile's over the
+    built-in ones."""
     out: list[PredictedStep] = []
     warnings: list[PlanWarning] = []
     steps = plan.profile.steps
     t: float | None = 0.0
-    run = _Run(model, plan.start_c, plan.start_c if lining_c is None else lining_c)
+    run = _Run(model, plan.start_c, plan.start_c if lining_c is None else lining_c,
+               watch=_load_watch(plan.profile, limits, units))
+    unsized = plan.profile.load.thickness_m is None
     top = model.top_c
     for i, step in enumerate(steps):
         following = steps[i + 1] if i + 1 < len(steps) else None
@@ -160,19 +217,34 @@ def predict(plan: Plan, model: OvenModel, band_c: float, units: Units = "C",
             duration = _cool(run, step.to_c, step.rate_c_per_s, band,
                              isinstance(following, Hold))
         elif isinstance(step, Hold):
-            duration = step.duration_s
-            run.soak(duration)
+            wait = 0.0
+            if step.start == "equalized":
+                wait = _equalize_wait(run, run.temp, step.band_c or band_c)
+                if unsized and run.watch is not None:
+                    warnings.append(PlanWarning(i, _UNSIZED))
+                    unsized = False  # said once, at the first such hold
+            duration = wait + step.duration_s
+            if math.isfinite(duration):
+                run.soak(step.duration_s)
         else:
             duration = 0.0
+            if isinstance(step, Pause) and run.watch is not None:
+                run.watch.reset_load(min(run.temp, ROOM_C))  # as the engine: a quench
         warnings.extend(_step_warnings(run, i, step, duration, top, units))
         start = t
         t = None if t is None or not math.isfinite(duration) else t + duration
-        out.append(PredictedStep(i, start, t, run.temp, start_lining))
+        out.append(PredictedStep(i, start, t, run.temp, start_lining,
+                                 wait if isinstance(step, Hold) else 0.0))
         if not math.isfinite(duration):
             # The rest cannot be told; go on from the target so later warnings still come.
             run.temp = run.lining = step.to_c if isinstance(step, Ramp | Cool) else run.temp
     warnings.extend(temper_warnings(plan, model, out, units))
     return Prediction(tuple(out), tuple(sorted(warnings, key=lambda w: w.step)))
+
+
+_UNSIZED = (f"no [load] thickness: the wait for the load to even out is estimated as the "
+            f"engine does, for a {DEFAULT_THICKNESS_M * 1000:.0f} mm part (the slow side); "
+            "give [load] thickness for a closer time")
 
 
 def _step_warnings(run: _Run, i: int, step: Step, duration: float,

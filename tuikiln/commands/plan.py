@@ -88,10 +88,10 @@ def _forecast(args: argparse.Namespace, plan: Plan, kiln: Any, units: str) -> Fo
     if model is None:
         return Forecast(None, None, temper_warnings(plan, None, None, units),
                         f'no oven model for "{kiln.name}": the times of "max" ramps, free '
-                        "cools and the waits to reach temperature are unknown (counted as "
+                        "cools and the waits for the load to even out are unknown (counted as "
                         "nothing); learn the oven from a run with `tuikiln learn RUN --save`")
-    band = Limits().merged(kiln.alarms).merged(plan.profile.limits).band
-    prediction = predict(plan, model, band, units)
+    limits = Limits().merged(kiln.alarms).merged(plan.profile.limits)
+    prediction = predict(plan, model, limits.band, units, limits=limits)
     return Forecast(prediction, str(path), list(prediction.warnings), "")
 
 
@@ -139,6 +139,9 @@ def plan_as_json(plan: Plan, units: str, forecast: Forecast | None = None) -> di
         p = predicted.steps[s.index] if predicted else None
         row["predicted_start_s"] = seconds(p.start_s) if p else None
         row["predicted_end_s"] = seconds(p.end_s) if p else None
+        if p and p.equalize_s:
+            wait = p.equalize_s
+            row["predicted_equalize_s"] = seconds(wait) if math.isfinite(wait) else None
     out["warnings"] = [{"step": w.step, "text": w.text} for w in forecast.warnings]
     out["model"] = forecast.model_source
     if forecast.note:
