@@ -250,15 +250,16 @@ async def test_broker_outage_queues_events_in_order_and_republishes_state(
     while publisher.connected and time.monotonic() < deadline:
         await asyncio.sleep(0.02)
     assert not publisher.connected
-    worst = 0.0
+    # The calls never wait on the broker: each event is in the outbox when event() returns
+    # (plain calls, no await). What they cost is a figure: tests/bench/mqtt_outage.py.
     outage_end = time.monotonic() + 3.0
     n = 1
     while time.monotonic() < outage_end:
-        started = time.perf_counter()
+        before = publisher.queued
         publisher.event(event(n))
+        assert publisher.queued == before + 1, "event() did not hold the event at once"
         publisher.reading({"n": n})
         publisher.state({"phase": "during", "n": n})
-        worst = max(worst, time.perf_counter() - started)
         n += 1
         await asyncio.sleep(0.05)
     last = n - 1
@@ -280,9 +281,7 @@ async def test_broker_outage_queues_events_in_order_and_republishes_state(
     await publisher.stop()
     failures = [e for e in emitted if e.kind == ev.ALERT_FAILED]
     assert len(failures) == 1 and failures[0].detail["channel"] == "mqtt"
-    print(f"outage: {last} events queued and delivered in order; "
-          f"slowest event()+reading()+state() during the outage: {worst * 1e6:.0f} µs")
-    assert worst < 0.01
+    print(f"outage: {last} events queued and delivered in order")
 
 
 async def test_outbox_drops_oldest_readings_first_and_caps_events(tmp_path: Any) -> None:

@@ -335,7 +335,10 @@ async def _feed_then_good(m: Meter, device: LineThermometer, junk: bytes) -> flo
     """Feed `junk` (in pieces, letting the loop run), then a good line; the reading after."""
     await m.feed(junk)
     for _ in range(RECOVER_POLLS):
-        m.send(b"\n851.5,840.25\r\n")
+        # feed, not send: on a loaded machine the driver may not yet have drained the
+        # junk, and a write to the full pty would fail with BlockingIOError (the test's
+        # own write, not the driver's read)
+        await m.feed(b"\n851.5,840.25\r\n")
         try:
             reading = await device.read()
         except (BadReply, NoAnswer):

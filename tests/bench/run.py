@@ -33,6 +33,7 @@ MODULES = [
     "chart_redraw",
     "modbus_rate",
     "watch_cost",
+    "mqtt_outage",
     "equalize",
     "load_equalize",
     "ovenmodel_fit",
