@@ -118,3 +118,29 @@ def test_holds_that_start_when_reached_wait_for_nothing(
         'start = "equalized"', 'start = "reached"')
     planned = big.plan(text, capsys)
     assert all("predicted_equalize_s" not in s for s in planned["steps"])
+
+
+def test_the_live_eta_counts_the_wait_ahead(big: Oven) -> None:
+    # The status's time to the end at the start of the run, against the time the run took:
+    # both equalized holds' waits lie ahead, and the forecast counts them.
+    from tuikiln.engine.status import remaining_plan_s
+    from tuikiln.limits import Limits
+    from tuikiln.ovenmodel_store import live_forecast
+    from tuikiln.profile import parse_profile
+
+    words, config = LOADS["thick-foil"]
+    text = profile_text(words, TOPS["big"])
+    profile = parse_profile(text)
+    forecast = live_forecast(big.folder, "Big oven", profile, Limits().merged(profile.limits))
+    assert forecast is not None
+    seen: dict[int, float | None] = {}
+
+    def note(t: float, rules) -> None:  # noqa: ANN001
+        if rules.stepper.index == 0 and 0 not in seen and t >= 60.0:
+            seen[0] = t + (remaining_plan_s(rules, forecast)[2] or 0.0)
+
+    run_id = simulate_run(big.log, text, oven=big.config, load=config, load_tc=False,
+                          limit_s=100_000, on_tick=note)
+    actual = float(big.log.samples(run_id)["t"][-1] - START_T)
+    print(f"live end at the start {seen[0]:.0f} s, run {actual:.0f} s")
+    assert seen[0] == pytest.approx(actual, rel=0.10)

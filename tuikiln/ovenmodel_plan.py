@@ -321,11 +321,13 @@ class LiveForecast:
     the chamber is now (the lining taken where the prediction had it at the step's start).
     """
 
-    def __init__(self, profile: Profile, model: OvenModel, band_c: float) -> None:
+    def __init__(self, profile: Profile, model: OvenModel, band_c: float,
+                 limits: Limits | None = None) -> None:
         self.model = model
         self.band_c = band_c
         self.profile = profile
-        self.prediction = predict(plan_profile(profile), model, band_c, profile.units)
+        self.prediction = predict(plan_profile(profile), model, band_c, profile.units,
+                                  limits=limits)
         self._cache: tuple[int, int, float] | None = None
 
     def duration_s(self, index: int) -> float | None:
