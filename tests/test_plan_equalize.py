@@ -108,6 +108,11 @@ def test_with_no_load_the_engine_rule_is_used_and_said(
     print(f"no [load]: error before {before:+.1f} %, now {after:+.1f} %")
     assert abs(after) < 10.0 and before < -10.0
     said = [w for w in planned["warnings"] if "no [load] thickness" in w["text"]]
+    table = big.folder / "profile.toml"  # as written by big.plan: the table says the wait too
+    capsys.readouterr()
+    assert big.main("plan", str(table)) == 0
+    rows = [r for r in capsys.readouterr().out.splitlines() if "evened out (in about" in r]
+    assert len(rows) == 2, rows
     assert [w["step"] for w in said] == [1], planned["warnings"]
     assert "25 mm" in said[0]["text"]
 
