@@ -149,3 +149,19 @@ def test_the_live_eta_counts_the_wait_ahead(big: Oven) -> None:
     actual = float(big.log.samples(run_id)["t"][-1] - START_T)
     print(f"live end at the start {seen[0]:.0f} s, run {actual:.0f} s")
     assert seen[0] == pytest.approx(actual, rel=0.10)
+
+
+def test_a_band_too_narrow_to_confirm_is_said_not_hung() -> None:
+    # The detector keeps half a reading step (whole degrees: 0.5 °C) inside the band, so a
+    # 0.3 °C band can never be confirmed: the engine would wait for ever, and the plan says so.
+    from tests.test_home_model import INVENTED
+    from tuikiln.ovenmodel_plan import predict
+    from tuikiln.plan import plan_profile
+    from tuikiln.profile import parse_profile
+
+    text = profile_text(LOADS["thin-bare"][0], 800).replace(
+        'hold = "10m"\nstart = "equalized"', 'hold = "10m"\nstart = "equalized"\nband = 0.3')
+    predicted = predict(plan_profile(parse_profile(text)), INVENTED, 8.0)
+    assert predicted.total_s is None and predicted.steps[1].end_s is None
+    said = [w for w in predicted.warnings if w.step == 1]
+    assert said and "never settles within ±0.3 °C of 650 °C" in said[0].text, said
