@@ -36,6 +36,9 @@ power_on_setpoint = 0     # setpoint after a power cycle when settings are not k
 run_at_power_on = false   # running after a power cycle when settings are not kept
 baud = 9600               # wire time emulated by `sim serve` (8N1, 10 bits per byte)
 address = 1               # Modbus device address answered by `sim serve`
+layout = "sim"            # where `sim serve` keeps its values: "sim", "whole-degree-coil",
+                          # "fahrenheit-float" (simulator/layouts.py; `--layout` overrides);
+                          # the in-process simulator of `tuikiln run` has no registers
 
 [device.load]             # leave out `[device.load]` and set `load = false` for an empty oven
 thickness_mm = 6          # plate thickness, mm (heated from both faces)
@@ -97,6 +100,9 @@ from dataclasses import dataclass, field, replace
 from typing import Any
 
 WRAPS = ("none", "foil")
+# The register layouts `sim serve` can present: simulator/layouts.py's LAYOUTS, by name
+# (named here because layouts imports the kiln, which imports this; a test holds them equal).
+LAYOUT_NAMES = ("sim", "whole-degree-coil", "fahrenheit-float")
 
 FAULT_KINDS = (
     "element-open",
@@ -215,6 +221,8 @@ class SimConfig:
     """Time multiple for serving; None means as fast as possible."""
     baud: int = 9600
     address: int = 1
+    layout: str = "sim"
+    """The register layout `sim serve` presents (LAYOUT_NAMES)."""
 
 
 _DURATION = re.compile(r"^(?:(\d+(?:\.\d+)?)h)?(?:(\d+(?:\.\d+)?)m)?(?:(\d+(?:\.\d+)?)s)?$")
@@ -315,7 +323,7 @@ _LOAD_KEYS: dict[str, tuple[str, float, str, tuple[float, float]]] = {
     "foil_gap_mm": ("foil_gap_m", 1e-3, "num", (0.01, 20.0)),
 }
 _DEVICE_OTHER = ("kind", "speed", "seed", "room", "control", "baud", "address", "load",
-                 "noise", "fault", "port", "map")
+                 "noise", "fault", "port", "map", "layout")
 _NOISE_KEYS = ("chamber_c", "load_c", "resolution_c")
 _FAULT_KEYS = ("at", "kind", "for", "rate_c_per_h", "share")
 
@@ -419,6 +427,14 @@ def _check(table: Mapping[str, Any], problems: Problems) -> SimConfig | None:
     else:
         oven_values["control"] = control
     top: dict[str, Any] = {}
+    layout = device.get("layout", "sim")
+    if not isinstance(layout, str):
+        problems.append(((*path, "layout"), "layout must be text: "
+                         + ", ".join(f'"{name}"' for name in LAYOUT_NAMES)))
+    elif layout not in LAYOUT_NAMES:
+        problems.append(((*path, "layout"), _unknown("layout", layout, LAYOUT_NAMES)))
+    else:
+        top["layout"] = layout
     speed = device.get("speed", 1)
     if speed == "max":
         top["speed"] = None

@@ -9,6 +9,10 @@ tests (and a user writing a map) meet several of them with one simulated oven:
     fahrenheit-float    float32 °F, low word first, from holding 1000; RAM setpoint at 1100,
                         mode register 1110 (drivers/maps/fahrenheit-float.toml)
 
+`sim serve` presents the one `--layout` names, else the kiln file's `[device] layout`
+(config.LAYOUT_NAMES lists these names), else "sim". The README's "Your controller" has a
+table of the function codes and addresses each answers.
+
 Each layout gives a snapshot of its four tables (coils, discrete inputs, holding and input
 registers: address -> value) and applies writes; an address it does not hold is refused
 with Modbus exception 2 (illegal data address), a value it cannot take with exception 3.

@@ -34,9 +34,10 @@ def add_serve_arguments(parser: argparse.ArgumentParser) -> None:
     where.add_argument("--tcp", type=int, metavar="PORT",
                        help="serve RTU framing over TCP on 127.0.0.1:PORT (0: any free port)")
     parser.add_argument("--speed", metavar="N|max", help='time multiple, e.g. 60, or "max"')
-    parser.add_argument("--layout", default="sim", metavar="NAME",
+    parser.add_argument("--layout", metavar="NAME",
                         help="where the controller keeps its values: "
-                        f"{', '.join(LAYOUTS)} (default sim; each has a map in drivers/maps/)")
+                        f"{', '.join(LAYOUTS)} (default: the kiln file's [device] layout, "
+                        "else sim; each has a map in drivers/maps/)")
     parser.add_argument("--baud", type=int, help="wire time to emulate (default 9600)")
     parser.add_argument("--address", type=int, help="Modbus device address (default 1)")
     parser.add_argument("--config", metavar="FILE",
@@ -300,17 +301,18 @@ async def serve(config: SimConfig, tcp_port: int | None = None, layout: str = "s
 
 def main(args: argparse.Namespace, prog: str = "sim") -> int:
     """Run `serve` from parsed options; bad input gives a message and exit code 2."""
-    layout = getattr(args, "layout", "sim") or "sim"
+    asked = getattr(args, "layout", None)
     try:
-        if layout not in LAYOUTS:
-            maybe = suggest(layout, list(LAYOUTS), cutoff=0.6)
-            raise ServeError(f'--layout "{layout}" is not known{maybe}; '
+        if asked is not None and asked not in LAYOUTS:
+            maybe = suggest(asked, list(LAYOUTS), cutoff=0.6)
+            raise ServeError(f'--layout "{asked}" is not known{maybe}; '
                              f"choose one of {', '.join(LAYOUTS)}")
         config = load_config(args)
     except ServeError as exc:
         for line in str(exc).splitlines():
             print(f"{prog}: {line}", file=sys.stderr)
         return 2
+    layout = asked or config.layout  # the command line overrides the kiln file
     try:
         asyncio.run(serve(config, args.tcp, layout))
     except OSError as exc:

@@ -200,3 +200,77 @@ async def test_status_shows_the_retrying_and_a_socket_abort_ends_it(tmp_path) ->
     finally:
         await server.shutdown()
         wire.close()
+
+
+async def test_the_retrying_is_a_critical_mqtt_state_and_a_remote_abort_is_refused(
+        tmp_path, mosquitto) -> None:  # noqa: ANN001
+    """The same pulled cable, with a real mosquitto: the retained `state` carries
+    `safe_state` "retrying" (critical) and its words reach the `attributes`; an `abort`
+    sent to the command topic does not end the trying (giving up never makes it safer)."""
+    import json
+
+    import aiomqtt
+
+    from tests.test_alerts_mqtt import BASE, Watcher, settings_for
+    from tuikiln.alerts.mqtt import MqttPublisher
+
+    wire = PtyWire(str(tmp_path / "ttyKILN"))
+    server = await start_serial_server(holding_device([200, 0, 0, 0]), wire.device_path)
+    box: list[RunEngine] = []
+    publisher = MqttPublisher(settings_for(mosquitto, tmp_path, commands=True),
+                              on_command=lambda name, args, source: box[0].command(
+                                  name, None, source),
+                              state_min_interval=0.1, state_max_interval=0.5)
+    await publisher.start()
+    try:
+        assert await publisher.wait_connected(5)
+        settings = ModbusSettings(port=wire.link_path, timeout_s=0.2, retries=0,
+                                  reconnect_min_s=0.05, reconnect_max_s=0.2)
+        device = ModbusDevice(settings, parse_map(EEPROM_MAP, "eeprom.toml"))
+        await device.connect()
+        engine = RunEngine(device, parse_profile(HOT_HOLD, "hot.toml", max_c=1100.0),
+                           kiln=KilnInfo("Test oven", "C", 1100.0),
+                           limits=Limits(link_lost=0.3, link_lost_safe=0.6),
+                           sinks=[publisher], tick_s=0.1, watchdog_s=None)
+        box.append(engine)
+        run = asyncio.create_task(engine.run())
+        async with Watcher(mosquitto) as watcher:
+
+            async def heating() -> bool:
+                return list(await server.async_getValues(1, 3, 1, 2)) == [4000, 1]
+
+            await until(heating, "the controller takes the setpoint")
+            wire.unplug()
+
+            def retrying() -> list[dict]:
+                states = [json.loads(p) for p in watcher.on(f"{BASE}/state")]
+                return [s["safe_state"] for s in states if s.get("safe_state")]
+
+            await watcher.wait_for(lambda: len(retrying()) >= 2, WAIT_S)
+            first, later = retrying()[0], retrying()[-1]
+            assert first["state"] == "retrying" and first["severity"] == "critical"
+            assert later["attempts"] > first["attempts"]  # the count moves on the broker
+            await watcher.wait_for(lambda: any(
+                "by hand" in json.loads(p).get("safe_state_words", "")
+                for p in watcher.on(f"{BASE}/attributes")), WAIT_S)
+            events = [json.loads(p) for p in watcher.on(f"{BASE}/event")]
+            assert any(e["kind"] == ev.SAFE_STATE and e["severity"] == "critical"
+                       for e in events)
+
+            async with aiomqtt.Client(mosquitto.host, mosquitto.port, username="watcher",
+                                      password=mosquitto.users["watcher"]) as remote:
+                await remote.publish(f"{BASE}/command", b'{"command": "abort"}', qos=1)
+
+            def refused() -> bool:
+                return any(json.loads(p)["kind"] == ev.COMMAND_REFUSED
+                           for p in watcher.on(f"{BASE}/event"))
+
+            await watcher.wait_for(refused, WAIT_S)
+            assert engine.safe_pending and not run.done()
+        engine.request_stop(st.STOPPED_BY_SIGNAL, "Ctrl-C")  # the local way out
+        await asyncio.wait_for(run, WAIT_S)
+        await device.close()
+    finally:
+        await publisher.stop()
+        await server.shutdown()
+        wire.close()

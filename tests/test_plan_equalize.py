@@ -108,6 +108,11 @@ def test_with_no_load_the_engine_rule_is_used_and_said(
     print(f"no [load]: error before {before:+.1f} %, now {after:+.1f} %")
     assert abs(after) < 10.0 and before < -10.0
     said = [w for w in planned["warnings"] if "no [load] thickness" in w["text"]]
+    table = big.folder / "profile.toml"  # as written by big.plan: the table says the wait too
+    capsys.readouterr()
+    assert big.main("plan", str(table)) == 0
+    rows = [r for r in capsys.readouterr().out.splitlines() if "evened out (in about" in r]
+    assert len(rows) == 2, rows
     assert [w["step"] for w in said] == [1], planned["warnings"]
     assert "25 mm" in said[0]["text"]
 
@@ -118,3 +123,45 @@ def test_holds_that_start_when_reached_wait_for_nothing(
         'start = "equalized"', 'start = "reached"')
     planned = big.plan(text, capsys)
     assert all("predicted_equalize_s" not in s for s in planned["steps"])
+
+
+def test_the_live_eta_counts_the_wait_ahead(big: Oven) -> None:
+    # The status's time to the end at the start of the run, against the time the run took:
+    # both equalized holds' waits lie ahead, and the forecast counts them.
+    from tuikiln.engine.status import remaining_plan_s
+    from tuikiln.limits import Limits
+    from tuikiln.ovenmodel_store import live_forecast
+    from tuikiln.profile import parse_profile
+
+    words, config = LOADS["thick-foil"]
+    text = profile_text(words, TOPS["big"])
+    profile = parse_profile(text)
+    forecast = live_forecast(big.folder, "Big oven", profile, Limits().merged(profile.limits))
+    assert forecast is not None
+    seen: dict[int, float | None] = {}
+
+    def note(t: float, rules) -> None:  # noqa: ANN001
+        if rules.stepper.index == 0 and 0 not in seen and t >= 60.0:
+            seen[0] = t + (remaining_plan_s(rules, forecast)[2] or 0.0)
+
+    run_id = simulate_run(big.log, text, oven=big.config, load=config, load_tc=False,
+                          limit_s=100_000, on_tick=note)
+    actual = float(big.log.samples(run_id)["t"][-1] - START_T)
+    print(f"live end at the start {seen[0]:.0f} s, run {actual:.0f} s")
+    assert seen[0] == pytest.approx(actual, rel=0.10)
+
+
+def test_a_band_too_narrow_to_confirm_is_said_not_hung() -> None:
+    # The detector keeps half a reading step (whole degrees: 0.5 °C) inside the band, so a
+    # 0.3 °C band can never be confirmed: the engine would wait for ever, and the plan says so.
+    from tests.test_home_model import INVENTED
+    from tuikiln.ovenmodel_plan import predict
+    from tuikiln.plan import plan_profile
+    from tuikiln.profile import parse_profile
+
+    text = profile_text(LOADS["thin-bare"][0], 800).replace(
+        'hold = "10m"\nstart = "equalized"', 'hold = "10m"\nstart = "equalized"\nband = 0.3')
+    predicted = predict(plan_profile(parse_profile(text)), INVENTED, 8.0)
+    assert predicted.total_s is None and predicted.steps[1].end_s is None
+    said = [w for w in predicted.warnings if w.step == 1]
+    assert said and "never settles within ±0.3 °C of 650 °C" in said[0].text, said

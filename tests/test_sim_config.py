@@ -8,6 +8,7 @@ import tomllib
 from collections.abc import Callable
 from pathlib import Path
 
+import pytest
 from hypothesis import given, settings
 from hypothesis import strategies as st
 
@@ -144,3 +145,49 @@ def test_serve_options_change_the_settings(kiln_file: Callable[..., Path]) -> No
         ("door-open", 1200.0, 45.0), ("tc-open", 3600.0, None)]
     empty = load_config(build_parser().parse_args(["--no-load"]))
     assert empty.load is None
+
+
+def test_layout_names_are_the_served_layouts() -> None:
+    from tuikiln.simulator.config import LAYOUT_NAMES
+    from tuikiln.simulator.layouts import LAYOUTS
+
+    assert LAYOUT_NAMES == tuple(LAYOUTS)
+
+
+def test_layout_key_is_checked_and_kept() -> None:
+    config, problems = check_sim_settings({"device": {"layout": "fahrenheit-float"}})
+    assert problems == [] and config is not None and config.layout == "fahrenheit-float"
+    assert check_sim_settings({"device": {}})[0].layout == "sim"  # type: ignore[union-attr]
+    _, problems = check_sim_settings({"device": {"layout": "whole-degree"}})
+    assert problems == [(("device", "layout"),
+                         'unknown layout "whole-degree" (did you mean "whole-degree-coil"?)')]
+    _, problems = check_sim_settings({"device": {"layout": 3}})
+    assert problems and "layout must be text" in problems[0][1]
+
+
+def test_a_bad_layout_in_the_kiln_file_is_one_line_with_its_line(
+        kiln_file: Callable[..., Path]) -> None:
+    """Both readers of a sim kiln file: `sim serve --config` and `tuikiln check`-style
+    loading through the kiln file (tuikiln.kiln)."""
+    from tuikiln.errors import FileProblems
+    from tuikiln.kiln import load_kiln
+
+    kiln = kiln_file('name = "x"\n[device]\nkind = "sim"\nlayout = "farenheit-float"\n')
+    done = subprocess.run(
+        [sys.executable, "-m", "tuikiln.simulator.serve", "--config", str(kiln)],
+        cwd=REPO, capture_output=True, text=True, timeout=20,
+    )
+    assert done.returncode == 2 and "Traceback" not in done.stderr
+    assert (f'{kiln}:4: unknown layout "farenheit-float" (did you mean "fahrenheit-float"?)'
+            in done.stderr)
+    with pytest.raises(FileProblems) as caught:
+        load_kiln(kiln)
+    assert f"{kiln.name}:4:" in str(caught.value) and "fahrenheit-float" in str(caught.value)
+
+
+def test_serve_reads_the_layout_from_the_kiln_file(kiln_file: Callable[..., Path]) -> None:
+    from tuikiln.simulator.serve import build_parser, load_config
+
+    kiln = kiln_file('[device]\nkind = "sim"\nlayout = "whole-degree-coil"\n')
+    assert load_config(build_parser().parse_args(["--config", str(kiln)])).layout == (
+        "whole-degree-coil")  # the override on the wire: tests/test_sim_serve.py

@@ -166,3 +166,68 @@ def test_bad_option_is_a_plain_message() -> None:
     assert done.returncode == 2
     assert 'did you mean "door-open"' in done.stderr and "Traceback" not in done.stderr
 
+
+
+def _mbpoll_refused(*args: str) -> str:
+    done = subprocess.run([MBPOLL, "-m", "rtu", "-b", "9600", "-P", "none", "-a", "1", *args],
+                          capture_output=True, text=True, timeout=10)
+    assert done.returncode != 0, done.stdout
+    return done.stderr
+
+
+@pytest.mark.skipif(not os.path.exists(MBPOLL), reason="mbpoll is not installed (Debian mbpoll)")
+def test_the_kiln_files_layout_is_served_and_the_command_line_wins(
+        served_sim: Callable[..., ServedSim], kiln_file: Callable[..., Path]) -> None:
+    """`layout` in [device] picks the registers `sim serve` answers; `--layout` overrides it.
+    On whole-degree-coil the temperatures are input registers (fc 4): a holding read (fc 3,
+    mbpoll's default table) of reference 1 is refused with exception 2, as the README's
+    table says. Exception 2 is "Illegal data address" in the Modbus Application Protocol
+    v1.1b3, section 7 (from memory); mbpoll prints libmodbus's words for it."""
+    kiln = kiln_file('[device]\nkind = "sim"\nlayout = "whole-degree-coil"\n')
+    with served_sim("--pty", "--config", str(kiln)) as sim:
+        inputs = _values(_mbpoll("-t", "3", "-r", "1", "-c", "3", "-1", sim.where))
+        assert set(inputs) == {1, 2, 3} and 0 < inputs[1] < 60  # whole °C, a cold oven
+        assert "Illegal data address" in _mbpoll_refused("-r", "1", "-c", "2", "-1", sim.where)
+        assert set(_values(_mbpoll("-r", "257", "-c", "1", "-1", sim.where))) == {257}
+        assert _values(_mbpoll("-t", "0", "-r", "1", "-c", "1", "-1", sim.where)) == {1: 0}
+    with served_sim("--pty", "--config", str(kiln), "--layout", "sim") as sim:
+        assert set(_values(_mbpoll("-r", "1", "-c", "6", "-1", sim.where))) == set(range(1, 7))
+        assert "Illegal data address" in _mbpoll_refused("-t", "3", "-r", "1", "-1", sim.where)
+
+
+# The README's table of what each layout answers ("Your controller"): reads (fc 1-4) at
+# each listed address answer; one past either end, and any other table, is exception 2.
+LAYOUT_READS = {
+    "sim": {3: [range(0, 6)], 4: [], 1: [], 2: []},
+    "whole-degree-coil": {3: [range(256, 257)], 4: [range(0, 3)], 1: [range(0, 1)],
+                          2: [range(0, 1)]},
+    "fahrenheit-float": {3: [range(1000, 1008), range(1100, 1102), range(1110, 1111)],
+                         4: [], 1: [], 2: []},
+}
+
+
+@pytest.mark.parametrize("layout", sorted(LAYOUT_READS))
+def test_each_layout_answers_the_function_codes_the_readme_lists(layout: str) -> None:
+    from tuikiln.simulator.kiln import SimulatedKiln
+    from tuikiln.simulator.layouts import LAYOUTS
+    from tuikiln.simulator.modbus_rtu import RtuResponder
+
+    responder = RtuResponder(SimulatedKiln(), layout=LAYOUTS[layout]())
+
+    def function_of_reply(fc: int, start: int, count: int = 1) -> int:
+        reply = responder.reply(with_crc(bytes([1, fc]) + start.to_bytes(2, "big")
+                                         + count.to_bytes(2, "big")))
+        assert reply is not None  # never silent: an answer or an exception
+        return reply[1] if reply[1] == fc else reply[1] << 8 | reply[2]
+
+    def refused(fc: int) -> int:  # exception 2, illegal data address
+        return (fc | 0x80) << 8 | 2
+
+    for fc, blocks in LAYOUT_READS[layout].items():
+        for block in blocks:
+            assert function_of_reply(fc, block.start, len(block)) == fc, (fc, block)
+            assert function_of_reply(fc, block.stop) == refused(fc), (fc, block.stop)
+        if not blocks:
+            assert function_of_reply(fc, 0) == refused(fc), fc
+    readme = (REPO / "README.md").read_text(encoding="utf-8")
+    assert f"| `{layout}` |" in readme

@@ -43,7 +43,15 @@ from tuikiln.limits import Limits
 from tuikiln.ovenmodel import OvenModel
 from tuikiln.plan import Plan, plan_profile
 from tuikiln.profile import Cool, Hold, Pause, Profile, Ramp, Step
-from tuikiln.units import ROOM_C, Units, format_duration, format_rate, format_temp
+from tuikiln.units import (
+    ROOM_C,
+    Units,
+    delta_from_c,
+    format_duration,
+    format_rate,
+    format_temp,
+    symbol,
+)
 
 HARDEN_FROM_C = 727.0
 """A hold at or above this before a pause is taken as austenitizing: 727 °C is the
@@ -57,6 +65,9 @@ STEP_S = 10.0
 """The prediction's time step: a tenth of the fastest chamber time constant seen (minutes)."""
 NEVER_S = 72 * 3600.0
 """A step predicted to take longer than this is taken never to end."""
+SETTLED_S = 3600.0
+"""A load estimate this long at the target (within 0.01 °C) and not yet called even is
+taken never to be (or twice the slope window and confirmation, if longer)."""
 
 
 @dataclass(frozen=True)
@@ -132,8 +143,13 @@ def _equalize_wait(run: _Run, target: float, band: float) -> float:
     run.watch.begin_hold(target, band)
     run.equalized = None
     t = 0.0
+    settled_for, give_up = 0.0, max(SETTLED_S, 2.0 * (run.watch.window_s + run.watch.confirm_s))
     while not getattr(run.equalized, "equalized", False):
-        if t > NEVER_S:
+        # A core already at the target that is still not called even never will be (a
+        # band narrower than the detector's margin): no need to step on to NEVER_S.
+        core = run.watch.model.core_c
+        settled_for = settled_for + STEP_S if abs(core - target) < 0.01 else 0.0
+        if t > NEVER_S or settled_for > give_up:
             run.watch.end_hold()
             return math.inf
         run.move(STEP_S, target)
@@ -219,7 +235,10 @@ def predict(plan: Plan, model: OvenModel, band_c: float, units: Units = "C",
         elif isinstance(step, Hold):
             wait = 0.0
             if step.start == "equalized":
-                wait = _equalize_wait(run, run.temp, step.band_c or band_c)
+                hold_band = step.band_c or band_c
+                wait = _equalize_wait(run, run.temp, hold_band)
+                if not math.isfinite(wait):
+                    warnings.append(PlanWarning(i, _never_even(run.temp, hold_band, units)))
                 if unsized and run.watch is not None:
                     warnings.append(PlanWarning(i, _UNSIZED))
                     unsized = False  # said once, at the first such hold
@@ -245,6 +264,13 @@ def predict(plan: Plan, model: OvenModel, band_c: float, units: Units = "C",
 _UNSIZED = (f"no [load] thickness: the wait for the load to even out is estimated as the "
             f"engine does, for a {DEFAULT_THICKNESS_M * 1000:.0f} mm part (the slow side); "
             "give [load] thickness for a closer time")
+
+
+def _never_even(target_c: float, band_c: float, u: Units) -> str:
+    width = f"{delta_from_c(band_c, u):g} {symbol(u)}"
+    return (f"by the estimate the load never settles within ±{width} of "
+            f"{format_temp(target_c, u)}, so the hold's clock would never start: widen the "
+            "band")
 
 
 def _step_warnings(run: _Run, i: int, step: Step, duration: float,
@@ -321,11 +347,13 @@ class LiveForecast:
     the chamber is now (the lining taken where the prediction had it at the step's start).
     """
 
-    def __init__(self, profile: Profile, model: OvenModel, band_c: float) -> None:
+    def __init__(self, profile: Profile, model: OvenModel, band_c: float,
+                 limits: Limits | None = None) -> None:
         self.model = model
         self.band_c = band_c
         self.profile = profile
-        self.prediction = predict(plan_profile(profile), model, band_c, profile.units)
+        self.prediction = predict(plan_profile(profile), model, band_c, profile.units,
+                                  limits=limits)
         self._cache: tuple[int, int, float] | None = None
 
     def duration_s(self, index: int) -> float | None:

@@ -91,6 +91,6 @@ def live_forecast(data_dir: Path, kiln_name: str, profile: Profile, limits: Limi
     if model is None:
         return None
     try:
-        return LiveForecast(profile, model, limits.band)
+        return LiveForecast(profile, model, limits.band, limits)
     except (ValueError, ArithmeticError):
         return None

@@ -11,7 +11,7 @@ from dataclasses import dataclass
 
 import numpy as np
 
-from tuikiln.profile import Cool, Hold, Profile, Ramp, Step
+from tuikiln.profile import Cool, Hold, Load, Profile, Ramp, Step
 from tuikiln.units import ROOM_C
 
 
@@ -103,3 +103,21 @@ def plan_profile(profile: Profile, start_c: float = ROOM_C) -> Plan:
 
 
 
+
+
+def load_words(load: Load) -> str | None:
+    """The profile's [load] in plain words, sizes as written: "2 pieces of AISI A2, 4 mm
+    thick, 50 mm wide, wrapped in foil" (None when the profile says nothing of its load)."""
+    if not (load.material or load.thickness_text or load.width_text or load.pieces
+            or load.wrap != "none"):
+        return None
+    what = load.material or "steel not named"
+    if load.pieces and load.pieces > 1:
+        what = f"{load.pieces} pieces of {what}"
+    parts = [what, f"{load.thickness_text} thick" if load.thickness_text
+             else "thickness not given"]
+    if load.width_text:
+        parts.append(f"{load.width_text} wide")
+    if load.wrap == "foil":
+        parts.append("wrapped in foil")
+    return ", ".join(parts)

@@ -14,7 +14,8 @@ from typing import Any
 from tuikiln.analysis.replay import MET, MISSED, Replay, StepResult, clock
 from tuikiln.analysis.whatif import AlarmChange
 from tuikiln.limits import LIMIT_KEYS
-from tuikiln.profile import describe_step
+from tuikiln.plan import load_words
+from tuikiln.profile import Load, describe_step
 from tuikiln.units import Units, delta_from_c, format_duration, format_rate, format_temp, symbol
 
 SAFETY = ("tuikiln is not a safety device: the oven needs an independent over-temperature "
@@ -248,21 +249,31 @@ def _md_section(title: str, lines: list[str]) -> list[str]:
     return ["", f"## {title}", ""] + [f"- {_md(line.strip())}" for line in lines]
 
 
+_LOAD_WORDED = ("material", "thickness", "thickness_m", "pieces", "wrap", "width")
+"""The run record's load keys that load_words says; any other is listed as it is."""
+
+
 def _load_lines(result: Replay) -> list[str]:
-    load = result.profile.load
-    lines = []
-    if load.material:
-        lines.append(f"material: {load.material}")
-    if load.thickness_text:
-        lines.append(f"thickness: {load.thickness_text}")
-    if load.pieces:
-        lines.append(f"pieces: {load.pieces}")
     stored = result.run.get("load") or {}
+    words = load_words(result.profile.load) or load_words(_stored_load(stored))
+    lines = [f"load: {words}"] if words else []
     for key, value in stored.items():
-        if key not in ("material", "thickness", "thickness_m", "pieces") and value is not None:
+        if key not in _LOAD_WORDED and value is not None:
             lines.append(f"{key}: {value}")
     lines.append("load thermocouple: " + ("logged" if result.trace.has_load else "none"))
     return lines
+
+
+def _stored_load(stored: Mapping[str, Any]) -> Load:
+    """The run record's load (a run whose profile text is missing): the thickness in mm."""
+    thickness = stored.get("thickness_m")
+    pieces = stored.get("pieces")
+    return Load(material=stored.get("material") or None,
+                thickness_text=f"{thickness * 1000:g} mm"
+                if isinstance(thickness, int | float) and thickness > 0 else None,
+                pieces=pieces if isinstance(pieces, int) else None,
+                width_text=stored.get("width") or None,
+                wrap="foil" if stored.get("wrap") == "foil" else "none")
 
 
 # ----- HTML -----

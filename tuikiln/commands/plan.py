@@ -178,12 +178,17 @@ def print_table(plan: Plan, units: str, forecast: Forecast | None = None) -> Non
     print(f"{'#':>3}  {'starts':>7}  {'ends':>7} {more} step")
     for s in plan.steps:
         mark = "*" if s.open_ended else " "
-        oven = ""
+        oven = wait = ""
         if predicted is not None:
             end = predicted.steps[s.index].end_s
             oven = f"  {format_duration(end) if end is not None else 'never':>9}"
+            waited = predicted.steps[s.index].equalize_s
+            if waited:
+                # describe_step ends "once the load has evened out": say when
+                wait = (f" (in about {format_duration(waited)})" if math.isfinite(waited)
+                        else " (never, by the estimate)")
         print(f"{s.index + 1:>3}  {format_duration(s.start_s):>7}  {format_duration(s.end_s):>7}"
-              f"{mark}{oven} {describe_step(s.step, units)}")
+              f"{mark}{oven} {describe_step(s.step, units)}{wait}")
     if forecast is None:
         return
     for w in forecast.warnings:

@@ -171,8 +171,8 @@ class HomeScreen(Screen[None]):
                 continue
             total = format_duration(plan.total_s) + ("+" if plan.open_ended else "")
             if model is not None:
-                band = Limits().merged(kiln.alarms).merged(plan.profile.limits).band
-                predicted = predict(plan, model, band).total_s
+                limits = Limits().merged(kiln.alarms).merged(plan.profile.limits)
+                predicted = predict(plan, model, limits.band, limits=limits).total_s
                 total = "never" if predicted is None else "~" + format_duration(predicted)
             rows.append((plan.profile.name[:40], format_temp(plan.peak_c, units), total,
                          path.name))

@@ -16,7 +16,7 @@ from textual.screen import Screen
 from textual.widgets import DataTable, Static
 
 from tuikiln.errors import FileProblems, UserError
-from tuikiln.plan import Plan, plan_profile
+from tuikiln.plan import Plan, load_words, plan_profile
 from tuikiln.profile import describe_step, load_profile
 from tuikiln.ui.chartdata import preview_chart
 from tuikiln.ui.screens.confirm import ConfirmScreen
@@ -47,9 +47,9 @@ def summary_text(plan: Plan, units: str, now: float, open_mark: str = OPEN_MARK)
     if plan.open_ended:
         count = sum(1 for s in plan.steps if s.open_ended)
         text.append(f"\n{open_mark} {count} open-ended step(s): counted at their shortest.")
-    load = plan.profile.load
-    if load.material or load.thickness_text:
-        text.append(f"\nload: {load.material or '?'}, {load.thickness_text or '?'} thick")
+    load = load_words(plan.profile.load)
+    if load:
+        text.append(f"\nload: {load}")
     return text
 
 
