@@ -179,3 +179,33 @@ async def test_everything_that_matters_shows_at_80x24(tmp_path: Path) -> None:
         text = screen_text(screen)
         assert "target  1200 °F" in text and "heating to 1200 °F" in text
         assert "next step" in text and "you're needed" in text and "end " in text
+
+
+async def test_heat_not_yet_confirmed_off_shows_above_everything(tmp_path: Path) -> None:
+    # The run ended on a lost link and the engine still tries to turn the heat off: the
+    # screen says so first, in capitals, with nothing to acknowledge (only a hand on the
+    # oven's switch ends it). The words are the engine's own (tuikiln.engine.status).
+    from tuikiln.engine.status import SAFE_RETRY_WORDS, safe_state
+
+    class Retrying(ScriptedEngine):
+        async def status(self):
+            status = dict(await super().status() or {})
+            status["state"] = "ended"
+            status["safe_state"] = safe_state(self.t - 150.0, 4, self.t)
+            return status
+
+    engine = Retrying(tmp_path)
+    engine.advance(600)
+    engine.raise_alarm("overshoot", OVERSHOOT)
+    async with make_app(engine).run_test(size=SIZE) as pilot:
+        await settle(pilot, 0.3)
+        banner = pilot.app.screen.query_one(AlarmBanner)
+        assert banner.display and banner.has_class("-active")
+        lines = str(banner.content).splitlines()
+        assert lines[0] == (f"✖ CRITICAL: {SAFE_RETRY_WORDS} "
+                            "(4 tries so far, 2m30s since the run ended)"), lines
+        assert "WARNING ALARM" in lines[1]
+        await pilot.press("a")  # acknowledging the alarm does not quiet the safe-state line
+        await settle(pilot)
+        assert not banner.has_class("-seen")
+        assert str(banner.content).splitlines()[0].startswith("✖ CRITICAL")

@@ -119,6 +119,16 @@ def alarm_line(alarm: Mapping[str, Any], units: Units) -> str:
     return f"{symbol} {severity.upper()} ALARM: {words}  ({seen})"
 
 
+def safe_state_line(safe: Mapping[str, Any]) -> str:
+    """The engine still trying to turn the heat off after the run ended: above every alarm,
+    and nothing to acknowledge (only the oven's own switch ends it)."""
+    tries = int(safe.get("attempts") or 0)
+    since = finite(safe.get("since_s"))
+    when = f", {format_duration(since)} since the run ended" if since is not None else ""
+    words = str(safe.get("words") or "the heater may still be on: switch it off by hand")
+    return f"✖ CRITICAL: {words} ({tries} tries so far{when})"
+
+
 def unacknowledged(status: Mapping[str, Any] | None) -> list[Mapping[str, Any]]:
     if not status:
         return []

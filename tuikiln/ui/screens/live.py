@@ -178,6 +178,7 @@ class LiveScreen(Screen[None]):
         banner = self.query_one(AlarmBanner)
         banner.units = units
         banner.alarms = list(status.get("alarms") or ())
+        banner.safe_state = status.get("safe_state")
         elapsed = format_duration(max(0.0, self.now() - header.started))
         # Most telling first: a narrow terminal cuts the end of the line off.
         parts = [f"run {header.run_id}: {header.profile.name}", f"{elapsed} in",
