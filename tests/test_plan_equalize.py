@@ -105,7 +105,9 @@ def test_with_no_load_the_engine_rule_is_used_and_said(
     planned = big.plan(text, capsys)
     actual = run_s(big, text, LoadConfig())  # the engine knows no load either: 25 mm assumed
     before, after = errors(planned, actual)
-    print(f"no [load]: error before {before:+.1f} %, now {after:+.1f} %")
+    with capsys.disabled():
+        print(f"\nno [load]: simulated {actual:.0f} s; error before {before:+.1f} %, "
+              f"now {after:+.1f} %")
     assert abs(after) < 10.0 and before < -10.0
     said = [w for w in planned["warnings"] if "no [load] thickness" in w["text"]]
     table = big.folder / "profile.toml"  # as written by big.plan: the table says the wait too
