@@ -166,19 +166,31 @@ async def test_state_is_retained_throttled_and_status_is_retained(
     await publisher.start()
     assert await publisher.wait_connected(5)
     async with Watcher(mosquitto) as watcher:
+        started = time.monotonic()
         for n in range(40):  # 40 changes in about 1 s
             publisher.state({"n": n})
             publisher.reading({"n": n})  # readings = false: nothing sent
             await asyncio.sleep(0.025)
         await asyncio.sleep(1.3)  # then no change: still republished at least once a second
         states = [json.loads(p)["n"] for p in watcher.on(f"{BASE}/state")]
-        assert 2 <= len(states) <= 6, states
+        # At most one state per 0.5 s of the time it really took (a loaded machine
+        # stretches the 40 sleeps), plus the first and one in flight: 6 when unloaded.
+        most = int((time.monotonic() - started) / 0.5) + 2
+        assert 2 <= len(states) <= most, (states, most)
         assert states[-1] == 39
         assert watcher.on(f"{BASE}/reading") == []
     # A late subscriber gets the retained status and state at once.
     async with Watcher(mosquitto) as late:
         await late.wait_for(lambda: bool(late.on(f"{BASE}/state")))
-        assert all(retain for t, _, retain in late.messages if t.startswith(BASE))
+        # The first message on each topic is the retained one the broker hands out at
+        # once; the once-a-second republish that may follow on a slow machine is live
+        # (MQTT 3.1.1, section 3.3.1.3: RETAIN is 1 for a message sent because of a new
+        # subscription, 0 for one matching an established subscription).
+        first: dict[str, bool] = {}
+        for topic, _, retain in late.messages:
+            if topic.startswith(BASE):
+                first.setdefault(topic, retain)
+        assert first and all(first.values()), first
         assert late.on(f"{BASE}/status") == ["online"]
     await publisher.stop()
 
