@@ -82,8 +82,10 @@ def test_demo_in_a_real_terminal(tmux: Tmux, tmp_path: Path) -> None:
     tmux("send-keys", "-t", "demo", "x")
     tmux.wait_for("Abort the run?", "[y] abort the run")
     tmux("send-keys", "-t", "demo", "n")
+    # A q sent while the question is still closing would go to it, not to the live screen.
+    wait_until(lambda: "Abort the run?" not in tmux.screen(), 15, "the question to close")
     tmux("send-keys", "-t", "demo", "q")
-    wait_until(lambda: not alive(pid), 10, "the demo process to end after q")
+    wait_until(lambda: not alive(pid), 30, "the demo process to end after q")
     leftover = subprocess.run(["pgrep", "-f", f"--data {tmp_path}"], capture_output=True,
                               text=True).stdout.split()
     assert leftover == []
