@@ -73,7 +73,9 @@ def test_demo_in_a_real_terminal(tmux: Tmux, tmp_path: Path) -> None:
     assert "target  1200 °F" in screen and "next step" in screen
     assert "q Leave" in screen  # the footer names the keys
     tmux("send-keys", "-t", "demo", "u")
-    screen = tmux.wait_for("target  649 °C")
+    # The readout and the event log are redrawn in turn: wait for both (the log's step line
+    # in °C: 1200 °F = 649 °C, 900 °F/h = 500 °C/h).
+    screen = tmux.wait_for("target  649 °C", "heating to 649 °C at 500°C/h")
     assert "°F" not in screen.replace("°C/°F", "")  # only the key name keeps both
     tmux("send-keys", "-t", "demo", "p")
     tmux.wait_for("PAUSED by you")
