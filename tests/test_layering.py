@@ -66,7 +66,8 @@ LAYERS: dict[str, tuple[str, ...]] = {
     "record": ("tuikiln.runlog", "tuikiln.logqueue", "tuikiln.control",
                "tuikiln.analysis.loading", "tuikiln.ovenmodel_store", "tuikiln.logsetup"),
     # The engine's host: the async loop, restart recovery, the safe state.
-    "host": ("tuikiln.engine.runner", "tuikiln.engine.recovery", "tuikiln.engine.safety"),
+    "host": ("tuikiln.engine.runner", "tuikiln.engine.recovery", "tuikiln.engine.safety",
+             "tuikiln.engine.host"),
     # Screens and what feeds them.
     "ui": (
         "tuikiln.ui", "tuikiln.ui.app", "tuikiln.ui.chartdata", "tuikiln.ui.chartdraw",
@@ -340,8 +341,8 @@ def test_core_reads_no_clock() -> None:
 # ----- readers of the run log -----
 
 # The engine's side: the only modules that may open the run log for writing.
-RUNLOG_WRITERS = {"tuikiln.runlog", "tuikiln.engine.runner", "tuikiln.commands.run",
-                  "tuikiln.ui.inprocess"}
+RUNLOG_WRITERS = {"tuikiln.runlog", "tuikiln.engine.runner", "tuikiln.engine.host",
+                  "tuikiln.commands.run"}
 
 
 def _keyword_true(call: ast.Call, name: str) -> bool:

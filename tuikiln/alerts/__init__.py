@@ -70,7 +70,7 @@ def alerts_for_engine(kiln: Any, engine_box: list[Any], *, terminal: TextIO | No
 
     def emit(event: Event) -> None:
         if engine_box:
-            engine_box[0]._emit(event)
+            engine_box[0].post_event(event)
 
     def on_command(name: str, args: dict, source: str) -> None:
         if engine_box:

@@ -302,9 +302,8 @@ async def run_headless(kiln: Any, profile: Any, data_dir: Path, *, speed: float 
     from tuikiln.drivers.errors import DeviceError
     from tuikiln.drivers.factory import open_device
     from tuikiln.engine import states as st
-    from tuikiln.engine.runner import KilnInfo, RunEngine
+    from tuikiln.engine.host import host_engine
     from tuikiln.limits import Limits
-    from tuikiln.runlog import RunLog
 
     out = stream or sys.stdout
     limits = Limits().merged(kiln.alarms).merged(profile.limits)
@@ -334,8 +333,6 @@ async def run_headless(kiln: Any, profile: Any, data_dir: Path, *, speed: float 
                 print("Watching only: this device cannot take a setpoint, so tuikiln follows "
                       "the plan and tells you what the oven should be doing.", file=out,
                       flush=True)
-            engine_box: list[RunEngine] = []
-            sinks = _sinks(kiln, out, engine_box, device)
             def spare_device() -> Any:
                 # The watchdog's separate path to the heat: a second connection.
                 return open_device(kiln.device, kiln.base_dir, speed=speed)
@@ -343,17 +340,12 @@ async def run_headless(kiln: Any, profile: Any, data_dir: Path, *, speed: float 
             extra: dict[str, Any] = {}
             if watchdog_s is not None:
                 extra["watchdog_s"] = watchdog_s
-            engine = RunEngine(device, profile, kiln=KilnInfo(kiln.name, kiln.units,
-                                                              kiln.max_c, kiln.text),
-                               limits=limits, runlog=RunLog.in_folder(data_dir), sinks=sinks,
-                               start_index=start_index, speed=speed_text,
-                               auto_continue=auto_continue, resume=resume,
-                               safe_device=None if kiln.is_simulator else spare_device,
-                               **extra)
-            from tuikiln.ovenmodel_store import live_forecast
-
-            engine.forecast = live_forecast(data_dir, kiln.name, profile, limits)
-            engine_box.append(engine)
+            engine = host_engine(kiln, profile, device, data_dir, limits=limits, terminal=out,
+                                 start_index=start_index, speed=speed_text,
+                                 auto_continue=auto_continue, resume=resume,
+                                 safe_device=None if kiln.is_simulator else spare_device,
+                                 **extra)
+            sinks = engine.sinks
             return await _serve_run(engine, kiln, data_dir, sinks, out, st)
         finally:
             await device.close()
@@ -379,13 +371,6 @@ async def _first_temperature(device: Any) -> float | None:
                               "it before starting")
         return reading.chamber_c
     raise CannotStart(f"the device does not answer: {last}")
-
-
-def _sinks(kiln: Any, out: Any, engine_box: list[Any], device: Any) -> list[Any]:
-    """The alert fan-out (terminal, MQTT, hooks)."""
-    from tuikiln.alerts import alerts_for_engine
-
-    return [alerts_for_engine(kiln, engine_box, terminal=out, clock=device.clock.now)]
 
 
 async def _serve_run(engine: Any, kiln: Any, data_dir: Path, sinks: list[Any], out: Any,

@@ -766,6 +766,11 @@ class RunEngine:
         for event in events:
             self._emit(event)
 
+    def post_event(self, event: Event) -> None:
+        """Log and fan out an event made outside the engine (an alert sink's own: a failed
+        hook, a refused remote command), as the engine's own events are."""
+        self._emit(event)
+
     def _emit(self, event: Event) -> None:
         if event.run_id is None and self.run_id is not None:
             event = Event(event.time, event.kind, event.message, event.severity,

@@ -14,11 +14,11 @@ from pathlib import Path
 from typing import Any
 
 from tuikiln.drivers.factory import open_device
-from tuikiln.engine.runner import KilnInfo, RunEngine
+from tuikiln.engine.host import host_engine
+from tuikiln.engine.runner import RunEngine
 from tuikiln.kiln import Kiln
 from tuikiln.limits import Limits
 from tuikiln.profile import Profile
-from tuikiln.runlog import RunLog
 
 
 class EngineControl:
@@ -40,26 +40,14 @@ class EngineControl:
 
 def build_engine(kiln: Kiln, profile: Profile, data_dir: Path, speed: float | None, *,
                  alerts: bool = False, tick_s: float = 1.0) -> RunEngine:
-    """An engine in this process; with `alerts`, the kiln file's MQTT and hooks are wired
-    (no terminal lines: the screen is the terminal). Start and stop `engine.sinks`."""
+    """An engine in this process, wired as `tuikiln run` wires its own (tuikiln.engine.host);
+    with `alerts`, the kiln file's MQTT, hooks and channels (no terminal lines: the screen is
+    the terminal). Start and stop `engine.sinks`."""
     device = open_device(kiln.device, kiln.base_dir, speed=speed)
     limits = Limits().merged(kiln.alarms).merged(profile.limits)
     shown = "max" if speed is None else f"{speed:g}"
-    box: list[RunEngine] = []
-    sinks = []
-    if alerts and (kiln.mqtt is not None or kiln.hooks):
-        from tuikiln.alerts import alerts_for_engine
-
-        sinks.append(alerts_for_engine(kiln, box, terminal=None, clock=device.clock.now))
-    engine = RunEngine(device, profile, kiln=KilnInfo(kiln.name, kiln.units, kiln.max_c,
-                                                        kiln.text),
-                       limits=limits, runlog=RunLog.in_folder(data_dir), speed=shown,
-                       sinks=sinks, tick_s=tick_s)
-    from tuikiln.ovenmodel_store import live_forecast
-
-    engine.forecast = live_forecast(data_dir, kiln.name, profile, limits)  # the model's ETA
-    box.append(engine)
-    return engine
+    return host_engine(kiln, profile, device, data_dir, limits=limits, terminal=None,
+                       alerts=alerts, speed=shown, tick_s=tick_s)
 
 
 async def run_engine(engine: RunEngine) -> str:
