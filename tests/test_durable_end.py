@@ -111,20 +111,27 @@ def short_close(monkeypatch):
     monkeypatch.setattr("tuikiln.runlog.CLOSE_WAIT_S", 1.0)
 
 
+
+def refuse_the_end_once_holding(log: RunLog):
+    """An AbortWhen condition: once the run holds, the log refuses to record a run's end
+    (an SQLite trigger with SQLite's own words for a full disk, for every connection)."""
+
+    def fail_the_end(sink: Sink) -> bool:
+        if not in_hold(sink):
+            return False
+        log._conn.execute("CREATE TRIGGER full BEFORE UPDATE OF outcome ON runs "
+                          "BEGIN SELECT RAISE(FAIL, 'database or disk is full'); END")
+        return True
+
+    return fail_the_end
+
 async def test_an_end_the_database_refused_is_kept_and_the_restart_does_not_heat(
         tmp_path, short_close):
     clock = ManualClock(1_000_000.0)
     model = FirstOrderOven(tau_s=300.0)
     log = RunLog.in_folder(tmp_path)
 
-    def fail_the_end(sink: Sink) -> bool:
-        if not in_hold(sink):
-            return False
-        # SQLite's own words for a full disk, for every connection to the file.
-        log._conn.execute("CREATE TRIGGER full BEFORE UPDATE OF outcome ON runs "
-                          "BEGIN SELECT RAISE(FAIL, 'database or disk is full'); END")
-        return True
-
+    fail_the_end = refuse_the_end_once_holding(log)
     sink = AbortWhen(fail_the_end)
     engine = engine_on(log, ScriptedDevice(model=model, clock=clock), sink)
     assert await engine.run() == st.ABORTED
@@ -225,13 +232,7 @@ async def test_runs_shows_an_end_kept_only_in_its_mark_without_writing(
     clock = ManualClock(1_000_000.0)
     log = RunLog.in_folder(tmp_path)
 
-    def fail_the_end(sink: Sink) -> bool:
-        if not in_hold(sink):
-            return False
-        log._conn.execute("CREATE TRIGGER full BEFORE UPDATE OF outcome ON runs "
-                          "BEGIN SELECT RAISE(FAIL, 'database or disk is full'); END")
-        return True
-
+    fail_the_end = refuse_the_end_once_holding(log)
     engine = engine_on(log, ScriptedDevice(model=FirstOrderOven(tau_s=300.0), clock=clock),
                        AbortWhen(fail_the_end))
     assert await engine.run() == st.ABORTED

@@ -36,21 +36,26 @@ async def until(condition, what: str) -> None:  # noqa: ANN001
     await eventually(condition, WAIT_S, what)
 
 
+
+async def hot_hold_engine(wire: PtyWire, sink: object, **link: float) -> RunEngine:
+    """A connected engine on the pty's controller holding HOT_HOLD, quick to call the link
+    lost (0.3 s) and to want the safe state (0.6 s)."""
+    settings = ModbusSettings(port=wire.link_path, timeout_s=0.2, retries=0,
+                              reconnect_min_s=0.05, reconnect_max_s=0.2, **link)
+    device = ModbusDevice(settings, parse_map(EEPROM_MAP, "eeprom.toml"))
+    await device.connect()
+    return RunEngine(device, parse_profile(HOT_HOLD, "hot.toml", max_c=1100.0),
+                     kiln=KilnInfo("Test oven", "C", 1100.0),
+                     limits=Limits(link_lost=0.3, link_lost_safe=0.6), sinks=[sink],
+                     tick_s=0.1, watchdog_s=None)
+
 async def test_safe_state_is_written_when_the_link_comes_back(tmp_path) -> None:
     wire = PtyWire(str(tmp_path / "ttyKILN"))
     # chamber 20 °C, setpoint 0, run off; the chamber stays put (no oven needed here)
     server = await start_serial_server(holding_device([200, 0, 0, 0]), wire.device_path)
     sink = Events()
     try:
-        settings = ModbusSettings(port=wire.link_path, timeout_s=0.2, retries=0,
-                                  reconnect_min_s=0.05, reconnect_max_s=0.2,
-                                  setpoint_min_interval_s=0.0)
-        device = ModbusDevice(settings, parse_map(EEPROM_MAP, "eeprom.toml"))
-        profile = parse_profile(HOT_HOLD, "hot.toml", max_c=1100.0)
-        limits = Limits(link_lost=0.3, link_lost_safe=0.6)
-        await device.connect()
-        engine = RunEngine(device, profile, kiln=KilnInfo("Test oven", "C", 1100.0),
-                           limits=limits, sinks=[sink], tick_s=0.1, watchdog_s=None)
+        engine = await hot_hold_engine(wire, sink, setpoint_min_interval_s=0.0)
         run = asyncio.create_task(engine.run())
 
         async def registers() -> list[int]:
@@ -82,7 +87,7 @@ async def test_safe_state_is_written_when_the_link_comes_back(tmp_path) -> None:
         back = [e for e in sink.events if e.kind == ev.SAFE_STATE and e.detail.get("after_end")]
         assert back and back[-1].detail["done"] is True
         assert "answers again" in back[-1].message
-        await device.close()
+        await engine.device.close()
     finally:
         await server.shutdown()
         wire.close()
@@ -93,14 +98,7 @@ async def test_a_new_stop_request_ends_the_trying_and_says_switch_off(tmp_path) 
     server = await start_serial_server(holding_device([200, 0, 0, 0]), wire.device_path)
     sink = Events()
     try:
-        settings = ModbusSettings(port=wire.link_path, timeout_s=0.2, retries=0,
-                                  reconnect_min_s=0.05, reconnect_max_s=0.2)
-        device = ModbusDevice(settings, parse_map(EEPROM_MAP, "eeprom.toml"))
-        profile = parse_profile(HOT_HOLD, "hot.toml", max_c=1100.0)
-        await device.connect()
-        engine = RunEngine(device, profile, kiln=KilnInfo("Test oven", "C", 1100.0),
-                           limits=Limits(link_lost=0.3, link_lost_safe=0.6), sinks=[sink],
-                           tick_s=0.1, watchdog_s=None)
+        engine = await hot_hold_engine(wire, sink)
         run = asyncio.create_task(engine.run())
 
         async def heating() -> bool:
@@ -117,7 +115,7 @@ async def test_a_new_stop_request_ends_the_trying_and_says_switch_off(tmp_path) 
         await asyncio.wait_for(run, WAIT_S)
         last = [e for e in sink.events if e.kind == ev.SAFE_STATE][-1]
         assert last.severity == "critical" and "by hand" in last.message
-        await device.close()
+        await engine.device.close()
     finally:
         await server.shutdown()
         wire.close()
@@ -146,14 +144,7 @@ async def test_status_shows_the_retrying_and_a_socket_abort_ends_it(tmp_path) ->
     server = await start_serial_server(holding_device([200, 0, 0, 0]), wire.device_path)
     sink = States()
     try:
-        settings = ModbusSettings(port=wire.link_path, timeout_s=0.2, retries=0,
-                                  reconnect_min_s=0.05, reconnect_max_s=0.2)
-        device = ModbusDevice(settings, parse_map(EEPROM_MAP, "eeprom.toml"))
-        profile = parse_profile(HOT_HOLD, "hot.toml", max_c=1100.0)
-        await device.connect()
-        engine = RunEngine(device, profile, kiln=KilnInfo("Test oven", "C", 1100.0),
-                           limits=Limits(link_lost=0.3, link_lost_safe=0.6), sinks=[sink],
-                           tick_s=0.1, watchdog_s=None)
+        engine = await hot_hold_engine(wire, sink)
         sock = control.ControlServer(engine, tmp_path / "ctl" / "kiln.sock")
         await sock.start()
         run = asyncio.create_task(engine.run())
@@ -196,7 +187,7 @@ async def test_status_shows_the_retrying_and_a_socket_abort_ends_it(tmp_path) ->
         assert engine.status()["safe_state"] is None
         assert await heating()  # nothing reached the controller: the words were true
         await sock.close()
-        await device.close()
+        await engine.device.close()
     finally:
         await server.shutdown()
         wire.close()
@@ -224,14 +215,7 @@ async def test_the_retrying_is_a_critical_mqtt_state_and_a_remote_abort_is_refus
     await publisher.start()
     try:
         assert await publisher.wait_connected(5)
-        settings = ModbusSettings(port=wire.link_path, timeout_s=0.2, retries=0,
-                                  reconnect_min_s=0.05, reconnect_max_s=0.2)
-        device = ModbusDevice(settings, parse_map(EEPROM_MAP, "eeprom.toml"))
-        await device.connect()
-        engine = RunEngine(device, parse_profile(HOT_HOLD, "hot.toml", max_c=1100.0),
-                           kiln=KilnInfo("Test oven", "C", 1100.0),
-                           limits=Limits(link_lost=0.3, link_lost_safe=0.6),
-                           sinks=[publisher], tick_s=0.1, watchdog_s=None)
+        engine = await hot_hold_engine(wire, publisher)
         box.append(engine)
         run = asyncio.create_task(engine.run())
         async with Watcher(mosquitto) as watcher:
@@ -269,7 +253,7 @@ async def test_the_retrying_is_a_critical_mqtt_state_and_a_remote_abort_is_refus
             assert engine.safe_pending and not run.done()
         engine.request_stop(st.STOPPED_BY_SIGNAL, "Ctrl-C")  # the local way out
         await asyncio.wait_for(run, WAIT_S)
-        await device.close()
+        await engine.device.close()
     finally:
         await publisher.stop()
         await server.shutdown()
