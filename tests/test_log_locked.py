@@ -17,13 +17,13 @@ import time
 import numpy as np
 import pytest
 
+from tests.conftest import oven_settings
 from tests.test_recovery import Sink
 from tests.waiting import eventually, wait_until
 from tuikiln import events as ev
 from tuikiln.drivers.fake import FirstOrderOven, ManualClock, ScriptedDevice
 from tuikiln.engine import states as st
-from tuikiln.engine.runner import KilnInfo, RunEngine
-from tuikiln.limits import Limits
+from tuikiln.engine.runner import RunEngine
 from tuikiln.profile import parse_profile
 from tuikiln.runlog import RunLog
 
@@ -93,8 +93,7 @@ async def test_a_locked_log_keeps_the_engine_going_and_loses_no_sample(tmp_path,
     device = ScriptedDevice(model=FirstOrderOven(tau_s=300.0), clock=ManualClock(1e6))
     sink = Locker(log.path, device, bound)
     profile = parse_profile(LONG_HOLD, "p.toml", max_c=1100.0)
-    engine = RunEngine(device, profile, kiln=KilnInfo("Test oven", "C", 1100.0),
-                       limits=Limits(), runlog=log, sinks=[sink], tick_s=2.0)
+    engine = RunEngine(device, profile, oven_settings(tick_s=2.0), runlog=log, sinks=[sink])
     sink.engine = engine
 
     def end_waits_for_the_lock() -> bool:  # the run has ended; its writer still retries
