@@ -22,7 +22,7 @@ from tuikiln.drivers.fake import FirstOrderOven
 from tuikiln.engine import states as st
 from tuikiln.engine import status as status_module
 from tuikiln.engine.rules import RunRules, TickInput
-from tuikiln.engine.status import STATUS_KEYS, LastReading, build_status
+from tuikiln.engine.status import STATUS_KEYS, LastReading, RunFacts, build_status
 from tuikiln.errors import FileProblems
 from tuikiln.events import Event
 from tuikiln.kiln import parse_kiln
@@ -62,8 +62,8 @@ def drive_to_the_pause() -> tuple[RunRules, float]:
 
 def test_the_status_keeps_its_keys_and_its_strings() -> None:
     rules, t = drive_to_the_pause()
-    status = build_status(rules, run_id=7, kiln="bench", now=t, started=0.0,
-                          last=LastReading(chamber_c=200.0), watch_only=False)
+    status = build_status(rules, RunFacts(run_id=7, kiln="bench", started=0.0, watch_only=False),
+                          now=t, last=LastReading(chamber_c=200.0))
     # The documented keys (engine/status.py docstring), in order.
     keys_paragraph = (status_module.__doc__ or "").split("\n\n")[1]
     documented = [key.strip() for key in keys_paragraph.replace("\n", " ").split(",")]

@@ -63,7 +63,7 @@ from tuikiln.engine.safety import (
 )
 from tuikiln.engine.setpoint import SetpointKeeper
 from tuikiln.engine.states import RestartPolicy
-from tuikiln.engine.status import LastReading, Status, build_status
+from tuikiln.engine.status import LastReading, RunFacts, Status, build_status
 from tuikiln.errors import UserError
 from tuikiln.events import Event
 from tuikiln.limits import Limits
@@ -206,10 +206,9 @@ class RunEngine:
 
     def status(self) -> Status:
         now = self.clock.now()
-        return build_status(self.rules, run_id=self.run_id, kiln=self.kiln.name,
-                            now=now, started=self.started, last=self.last,
-                            watch_only=self.watch_only, forecast=self.forecast,
-                            safe=self.safe_retry.state(now))
+        facts = RunFacts(self.run_id, self.kiln.name, self.started, self.watch_only)
+        return build_status(self.rules, facts, now=now, last=self.last,
+                            forecast=self.forecast, safe=self.safe_retry.state(now))
 
     # ----- the run -----
 

@@ -100,6 +100,16 @@ class LastReading:
     output_pct: float | None = None
 
 
+@dataclass(frozen=True)
+class RunFacts:
+    """What the status says about the run that its rules do not know."""
+
+    run_id: int | None
+    kiln: str
+    started: float
+    watch_only: bool
+
+
 def _round(value: float | None, digits: int = 2) -> float | None:
     return None if value is None else round(float(value), digits)
 
@@ -159,24 +169,14 @@ def remaining_plan_s(rules: RunRules, forecast: LiveForecast | None = None
     return left, to_operator, to_end
 
 
-def build_status(
-    rules: RunRules,
-    *,
-    run_id: int | None,
-    kiln: str,
-    now: float,
-    started: float,
-    last: LastReading,
-    watch_only: bool,
-    forecast: LiveForecast | None = None,
-    safe: SafeState | None = None,
-) -> Status:
+def build_status(rules: RunRules, facts: RunFacts, *, now: float, last: LastReading,
+                 forecast: LiveForecast | None = None, safe: SafeState | None = None) -> Status:
     s = rules.stepper
     step = s.step
     to_next, to_operator, to_end = remaining_plan_s(rules, forecast)
     return {
-        "run": run_id,
-        "kiln": kiln,
+        "run": facts.run_id,
+        "kiln": facts.kiln,
         "profile": rules.profile.name,
         "units": rules.units,
         "state": rules.run_state,
@@ -197,7 +197,7 @@ def build_status(
         "time_to_end_s": _round(to_end, 0),
         "alarms": rules.alarms.as_list(),
         "time": now,
-        "started": started,
-        "watch_only": watch_only,
+        "started": facts.started,
+        "watch_only": facts.watch_only,
         "safe_state": safe,
     }
