@@ -80,7 +80,7 @@ import numpy as np
 
 from tuikiln.engine.states import Outcome, RunState
 from tuikiln.errors import UserError
-from tuikiln.events import Event
+from tuikiln.events import Event, Severity
 from tuikiln.logqueue import BackgroundWriter, SpillFile
 from tuikiln.plaintext import plain, plain_tree
 
@@ -773,7 +773,7 @@ class RunRecorder:
                json.dumps(plain_tree(dict(event.detail)), default=str))
         with self._lock:
             self._events.append(row)
-        if urgent or event.severity == "critical":
+        if urgent or event.severity == Severity.CRITICAL:
             if self._writer is not None:
                 self._writer.wake()
             else:
