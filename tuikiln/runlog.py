@@ -33,8 +33,10 @@ tuikiln/logqueue.py): its loop only queues rows, so a log another program holds 
 minutes, or a slow fsync, never delays a reading or a setpoint. The queue is bounded
 (MEMORY_QUEUE_ROWS, the engine warns at QUEUE_WARN_FRACTION of it); past the bound the oldest
 samples spill to `runs.sqlite.run-N.spill` and are written back first, so the order holds.
-A spill still there when the run's process ends (CLOSE_WAIT_S) is written by the next
-engine that opens the log. Events and the end are not spilled: the end has its mark.
+When the run's process ends with the log still refusing (CLOSE_WAIT_S), the samples and the
+events still queued go to spill files (`runs.sqlite.run-N.spill`, `.events-spill`), which
+the next engine that opens the log writes back before anything of its own. The end is not
+spilled: it has its mark.
 
 A run's end must survive a disk that is full at that moment: otherwise the run would look
 unfinished and a restart with `on_restart = "continue"` would heat the oven again after an
@@ -66,6 +68,7 @@ from __future__ import annotations
 
 import contextlib
 import json
+import logging
 import math
 import os
 import sqlite3
@@ -477,15 +480,15 @@ class RunLog:
     def _take_in_spills(self, conn: sqlite3.Connection) -> None:
         """Samples an earlier engine left in spill files (the log was locked or full when
         its run ended) are written now, before anything new."""
-        for path in sorted(self.path.parent.glob(f"{self.path.name}.run-*.spill")):
-            try:
-                run_id = int(path.name.rsplit(".run-", 1)[1].split(".")[0])
-            except ValueError:
-                continue
-            late = RunRecorder(conn, run_id)
-            late.spill = SpillFile(self.path, run_id)
-            with contextlib.suppress(sqlite3.Error):
-                late._write_spill_back()
+        for what, suffix in SpillFile.SUFFIXES.items():
+            for path in sorted(self.path.parent.glob(f"{self.path.name}.run-*.{suffix}")):
+                try:
+                    run_id = int(path.name.rsplit(".run-", 1)[1].split(".")[0])
+                except ValueError:
+                    continue
+                late = RunRecorder(conn, run_id)
+                with contextlib.suppress(sqlite3.Error):
+                    late._write_spill_back(SpillFile(self.path, run_id, what))
 
 
 _RUN_FIELDS = ("id, kiln, profile, started, ended, outcome, units, device, speed, watch_only,"
@@ -502,6 +505,7 @@ def _run_info(row: tuple[Any, ...]) -> RunInfo:
 
 
 _SAMPLE_FIELDS = ", ".join(SAMPLE_COLUMNS)
+_log = logging.getLogger(__name__)
 
 
 @contextlib.contextmanager
@@ -695,6 +699,7 @@ class RunRecorder:
     def __init__(self, conn: sqlite3.Connection, run_id: int, *, batch: int = 250,
                  every_s: float = 1.0, path: Path | None = None) -> None:
         self.conn = conn
+        self.path = path
         self._checkpointer = _WalCheckpointer(path) if path is not None else None
         self._rows_since_checkpoint = 0
         self._resume_point: tuple[float, str] | None = None
@@ -733,6 +738,7 @@ class RunRecorder:
         self.mark = EndMark(path, run_id) if path is not None else None
         """The run's end mark (see EndMark): reserved by RunLog when the run starts."""
         self.spill = SpillFile(path, run_id) if path is not None else None
+        self.event_spill = SpillFile(path, run_id, "events") if path is not None else None
         self._writer: BackgroundWriter | None = None
 
     def write_in_background(self) -> None:
@@ -827,7 +833,7 @@ class RunRecorder:
         start = time.monotonic()
         ok = True
         try:
-            self._write_spill_back()
+            self._write_spill_back(self.spill)
             if samples or events or point is not None:
                 self._commit(samples, events, point)
         except sqlite3.Error as exc:
@@ -865,7 +871,8 @@ class RunRecorder:
         return ok
 
     def _commit(self, samples: list[tuple[Any, ...]], events: list[tuple[Any, ...]],
-                point: tuple[float, str] | None, spill_progress: str | None = None) -> None:
+                point: tuple[float, str] | None,
+                spill_progress: tuple[str, str] | None = None) -> None:
         self.conn.execute("BEGIN")
         if samples:
             self.conn.executemany(
@@ -880,9 +887,8 @@ class RunRecorder:
         if point is not None:
             self.conn.execute("INSERT OR REPLACE INTO resume_points (run_id, t, data)"
                               " VALUES (?, ?, ?)", (self.run_id, *point))
-        if spill_progress is not None and self.spill is not None:
-            self.conn.execute("INSERT OR REPLACE INTO meta VALUES (?, ?)",
-                              (self.spill.progress_key, spill_progress))
+        if spill_progress is not None:  # (the spill's progress key, how far it got)
+            self.conn.execute("INSERT OR REPLACE INTO meta VALUES (?, ?)", spill_progress)
         self.conn.execute("COMMIT")
         if samples:
             self._unsealed = unsealed
@@ -909,18 +915,39 @@ class RunRecorder:
                 del self._samples[:drop]
                 self.dropped += drop
 
-    def _write_spill_back(self) -> None:
-        """Write the spill file's rows (oldest first), a chunk a transaction, each with how
+    def _left_behind(self) -> str:
+        files = [spill.path.name for spill in (self.spill, self.event_spill)
+                 if spill is not None and spill.exists()]
+        lost = self.pending
+        return ", ".join(files + ([f"{lost} rows could not be kept"] if lost else [])) or "none"
+
+    def _spill_events(self) -> None:
+        """The events still queued into their spill file (at close, the log still refusing);
+        kept in memory, and counted as not written, when the disk refuses that too."""
+        with self._lock:
+            events, self._events = self._events, []
+        if not events:
+            return
+        if self.event_spill is None or not self.event_spill.append(events):
+            with self._lock:
+                self._events[:0] = events
+
+    def _write_spill_back(self, spill: SpillFile | None) -> None:
+        """Write a spill file's rows (oldest first), a chunk a transaction, each with how
         far it got; then remove the file. Raises sqlite3.Error when the log still refuses."""
-        spill = self.spill
         if spill is None or not spill.exists():
             return
         row = self.conn.execute("SELECT value FROM meta WHERE key = ?",
                                 (spill.progress_key,)).fetchone()
+        events = spill.what == "events"
         try:
             for rows, progress in spill.chunks(row[0] if row else None):
-                self._commit(rows, [], None, spill_progress=progress)
-                self.samples_written += len(rows)
+                self._commit([] if events else rows, rows if events else [], None,
+                             spill_progress=(spill.progress_key, progress))
+                if events:
+                    self.events_written += len(rows)
+                else:
+                    self.samples_written += len(rows)
         except (OSError, ValueError, KeyError, TypeError):
             return  # unreadable: left in place for a person; memory goes on being written
         spill.remove()  # a later spill has another name: the progress left here is inert
@@ -1007,9 +1034,14 @@ class RunRecorder:
         if self._writer is not None:
             self._take_resume_point()
             ok = self._writer.stop(CLOSE_WAIT_S if wait_s is None else wait_s)
-            if not ok:
+            if not ok:  # what memory holds would die with the process
                 self.queue_bound = 0
-                self._spill_over_bound()  # what memory holds would die with the process
+                self._spill_over_bound()
+                self._spill_events()
+                _log.warning("The run log %s still refused at the end of run %d (%s): what "
+                             "it did not take waits beside it (%s) and is written by the "
+                             "next run that opens the log", self.path or "", self.run_id,
+                             self.trouble or "locked", self._left_behind())
         else:
             ok = self.flush(force=True)
         self._closed = True
