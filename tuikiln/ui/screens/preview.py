@@ -147,8 +147,11 @@ class PreviewScreen(Screen[None]):
         table = self.query_one(DataTable)
         table.clear(columns=True)
         predicted = self.prediction(units)
-        table.add_columns("#", "step", "from", "to", "starts", "length",
-                          *(["this oven"] if predicted is not None else []))
+        # The figures first, the step's words last: on a narrow terminal the words run off
+        # the right edge, not the times.
+        table.add_columns("#", "starts", "length",
+                          *(["this oven"] if predicted is not None else []), "from", "to",
+                          "step")
         for step in plan.steps:
             mark = f" {self.app.glyphs.plain(OPEN_MARK)}" if step.open_ended else ""
             length = ("until you acknowledge" if step.kind == "pause" else
@@ -156,12 +159,12 @@ class PreviewScreen(Screen[None]):
             oven = []
             if predicted is not None:
                 p = predicted.steps[step.index]
-                oven = ["you" if step.kind == "pause" else "never"
+                oven = ["by you" if step.kind == "pause" else "never"
                         if p.start_s is None or p.end_s is None
                         else format_duration(p.end_s - p.start_s)]
-            table.add_row(str(step.index + 1), describe_step(step.step, units),
-                          format_temp(step.from_c, units), format_temp(step.to_c, units),
-                          f"+{format_duration(step.start_s)}", length, *oven)
+            table.add_row(str(step.index + 1), f"+{format_duration(step.start_s)}", length,
+                          *oven, format_temp(step.from_c, units), format_temp(step.to_c, units),
+                          describe_step(step.step, units))
 
     def summary(self, units: str) -> Text:
         assert self.plan is not None
