@@ -18,6 +18,7 @@ from typing import Any, TypedDict
 
 from tuikiln.engine.rules import RunRules
 from tuikiln.engine.states import RunState, StepState
+from tuikiln.events import Severity
 from tuikiln.ovenmodel_plan import LiveForecast
 from tuikiln.plan import step_duration_s
 from tuikiln.profile import Cool, Pause, Ramp
@@ -52,7 +53,7 @@ SAFE_RETRY_WORDS = ("the run has ended but the controller has not yet confirmed 
 
 
 def safe_state(since: float, attempts: int, now: float) -> SafeState:
-    return {"state": SAFE_RETRYING, "severity": "critical", "since": since,
+    return {"state": SAFE_RETRYING, "severity": Severity.CRITICAL, "since": since,
             "since_s": _round(max(0.0, now - since), 1) or 0.0, "attempts": attempts,
             "words": SAFE_RETRY_WORDS}
 
