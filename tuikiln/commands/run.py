@@ -146,7 +146,6 @@ def _prepare_resume(args: argparse.Namespace, data_dir: Path) -> tuple[Any, Any,
 
 
 def run(args: argparse.Namespace) -> int:
-    from tuikiln.engine.host import settings_for
     from tuikiln.runlog import default_data_dir
 
     data_dir = default_data_dir(args.data)
@@ -156,6 +155,8 @@ def run(args: argparse.Namespace) -> int:
             kiln, profile, plan = prepared
             speed = parse_speed(args.speed, kiln.is_simulator)
             if args.headless:
+                from tuikiln.engine.host import settings_for
+
                 settings = settings_for(kiln, profile, speed=args.speed or "",
                                         auto_continue=args.auto_continue)
                 return asyncio.run(run_headless(kiln, profile, data_dir, settings, speed=speed,
@@ -170,6 +171,8 @@ def run(args: argparse.Namespace) -> int:
                         "--resume` to carry on an unfinished run)")
     kiln, profile, speed, start_index = _prepare(args)
     if args.headless:
+        from tuikiln.engine.host import settings_for
+
         settings = settings_for(kiln, profile, start_index=start_index, speed=args.speed or "",
                                 auto_continue=args.auto_continue)
         return asyncio.run(run_headless(kiln, profile, data_dir, settings, speed=speed))
