@@ -156,3 +156,35 @@ async def test_a_served_controller_that_reboots_comes_back_stopped_and_is_armed_
     assert outcome == st.COMPLETED
     assert engine.rearms >= 1, [e.message for e in sink.events]
     assert regs[4] == 0  # and the end turned it off again
+
+
+async def test_a_controller_reboot_mid_ramp_is_re_armed_at_once_and_the_run_log_says_so(tmp_path):
+    # The in-process simulator's driver writes "run" with every setpoint, so the ramp's next
+    # regular write alone would restore the rebooted controller (setpoint 0, stopped: the
+    # simulator's defaults) -- and the run log would never say it had lost its setpoint.
+    # The first reading after the silence must arm it again and say so in the log.
+    kiln = parse_kiln('name = "Test oven"\nunits = "C"\nmax = 1100\n[device]\nkind = "sim"\n'
+                      '[[device.fault]]\nat = "60m"\nkind = "controller-reboot"\nfor = "20s"\n',
+                      str(tmp_path / "kiln.toml"))
+    profile = parse_profile('name = "t"\nunits = "C"\n[[step]]\nramp = "300/h"\nto = 400\n',
+                            "p.toml", max_c=1100.0)
+    device = open_device(kiln.device, kiln.base_dir, speed=0.0)
+    async with device:
+        engine = RunEngine(device, profile, settings_for(kiln, profile),
+                           runlog=RunLog.in_folder(tmp_path))
+        outcome = await engine.run()
+    assert outcome == st.COMPLETED
+    log = RunLog.in_folder(tmp_path)
+    samples = log.samples(engine.run_id)
+    t = samples["t"] - engine.started
+    silent = t[(samples["flags"] & st.FLAG_NO_READING) != 0]
+    assert len(silent) and 3600.0 <= silent[0] and silent[-1] <= 3600.0 + 25.0, silent
+    back = silent[-1] + 1.0  # the first answered reading
+    rearmed = [e for e in log.events(engine.run_id)
+               if e["kind"] == ev.DEVICE and e["detail"].get("words") == "controller re-armed"]
+    assert [e["time"] - engine.started for e in rearmed] == [back], rearmed
+    # The controller's own output is on again within 5 s of its first answer (the ramp's
+    # setpoint is above the chamber, which cooled a little while the heater was off).
+    heating = (t >= back) & (samples["output_pct"] > 0.0)
+    assert heating.any() and t[heating][0] - back <= 5.0
+    assert engine.rearms == 1

@@ -47,7 +47,7 @@ from typing import Any
 
 from tuikiln import events as ev
 from tuikiln.drivers.base import Device, Reading
-from tuikiln.drivers.errors import DeviceError, SensorFault
+from tuikiln.drivers.errors import DeviceError, LinkLost, NoAnswer, SensorFault
 from tuikiln.engine import recovery
 from tuikiln.engine import states as st
 from tuikiln.engine.recovery import ResumePlan
@@ -372,8 +372,10 @@ class RunEngine:
             reading = await self.device.read()
         except SensorFault:
             sensor_fault = True
-        except DeviceError:
+        except DeviceError as exc:
             link_ok = False
+            if isinstance(exc, NoAnswer | LinkLost):  # silent, not garbled: it may reboot
+                self.setpoint.unanswered()
         if reading is not None:
             sensor_fault = sensor_fault or reading.sensor_fault
         # Logged as a flag, so a replay (what-if) sees a sensor fault, not a lost link.

@@ -9,8 +9,14 @@ A moving setpoint is written at most every REWRITE_AFTER_S unless it moved REWRI
 back with its own setpoint and often stopped: when it reports another setpoint than it was
 last really sent (`Device.written_setpoint_c`, never what was only asked for), or "not
 running" while the run wants heat, the next write arms it again (stop, then setpoint and
-run written afresh) and says so. Re-arms are spaced out, doubling up to REARM_SPACING_MAX_S,
-so a controller that never agrees is not stopped and started for ever.
+run written afresh) and says so. The first reading after readings that went unanswered
+(`keeper.unanswered()`: no answer or a lost link, not a garbled reply) is enough: a
+controller that fell silent and came back other than it was sent has most likely rebooted,
+and a write meanwhile either failed or was answered, so none is left in flight. Without that, the run's next
+regular write could restore a rebooted controller (a driver that writes "run" with every
+setpoint) before the readings in a row were counted, and the run record would never say the
+controller had lost its setpoint. Re-arms are spaced out, doubling up to
+REARM_SPACING_MAX_S, so a controller that never agrees is not stopped and started for ever.
 """
 
 from __future__ import annotations
@@ -49,6 +55,12 @@ class SetpointKeeper:
         self.rearms = 0
         self._rearm_spacing = REARM_SPACING_S
         self._rearm_not_before = -math.inf
+        self._unanswered = False
+        """A reading went unanswered since the last good one (a silent or rebooting controller)."""
+
+    def unanswered(self) -> None:
+        """A reading got no answer at all (the link dropped, the controller rebooted)."""
+        self._unanswered = True
 
     def forget(self) -> None:
         """Write the setpoint (and run) afresh on the next write."""
@@ -59,7 +71,11 @@ class SetpointKeeper:
         """A controller that rebooted or was changed by hand holds another setpoint than the
         one it was last really sent (`sent_c`), or has stopped its output: arm it again on
         the next write. A write the driver held back is not one the controller should hold.
-        `heat_off`: the run wants no heat now; `held`: holding safe after a restart."""
+        `heat_off`: the run wants no heat now; `held`: holding safe after a restart.
+        Right after unanswered readings one reading of either is enough."""
+        after_silence, self._unanswered = self._unanswered, False
+        drift_ticks = 1 if after_silence else DRIFT_TICKS
+        stopped_ticks = 1 if after_silence else STOPPED_TICKS
         if self._requested_c is None or held:
             self._drift_ticks = self._stopped_ticks = 0
             return
@@ -73,7 +89,7 @@ class SetpointKeeper:
             self._stopped_ticks += 1
         else:
             self._stopped_ticks = 0
-        if ((self._drift_ticks >= DRIFT_TICKS or self._stopped_ticks >= STOPPED_TICKS)
+        if ((self._drift_ticks >= drift_ticks or self._stopped_ticks >= stopped_ticks)
                 and now >= self._rearm_not_before):
             self._rearm = True
             self._drift_ticks = self._stopped_ticks = 0
