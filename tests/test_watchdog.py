@@ -6,7 +6,10 @@ from __future__ import annotations
 
 import asyncio
 
+import pytest
+
 from tests.conftest import oven_settings
+from tests.waiting import eventually
 from tuikiln import events as ev
 from tuikiln.drivers.factory import open_device
 from tuikiln.drivers.fake import FirstOrderOven, ManualClock, ScriptedDevice
@@ -188,3 +191,58 @@ async def test_a_controller_reboot_mid_ramp_is_re_armed_at_once_and_the_run_log_
     heating = (t >= back) & (samples["output_pct"] > 0.0)
     assert heating.any() and t[heating][0] - back <= 5.0
     assert engine.rearms == 1
+
+
+class Record(Events):
+    """Events and samples as the engine tells its sinks."""
+
+    def __init__(self) -> None:
+        super().__init__()
+        self.samples: list[dict] = []
+
+    def reading(self, sample) -> None:
+        self.samples.append(sample)
+
+
+@pytest.mark.parametrize("layout", ["whole-degree-coil", "fahrenheit-float"])
+async def test_a_controller_on_a_pty_rebooting_mid_ramp_heats_again_and_the_log_says_so(
+        tmp_path, layout: str) -> None:
+    # `sim serve` on a real pty in its own process, read through the layout's shipped map:
+    # a run coil (whole-degree-coil) or a mode register (fahrenheit-float), both written
+    # "run" once by the driver, both stopped after a power cycle (simulator defaults).
+    from tests.simserve import ServedSim
+
+    with ServedSim("--pty", "--speed", "1", "--layout", layout, "--seed", "1",
+                   "--fault", "controller-reboot@15s+3s") as sim:
+        kiln = parse_kiln(f'name = "Served"\nunits = "C"\nmax = 1100\n[device]\n'
+                          f'kind = "modbus"\nport = "{sim.where}"\nmap = "{layout}"\n'
+                          'poll = 1\ntimeout = 0.5\n', str(tmp_path / "kiln.toml"))
+        profile = parse_profile('name = "t"\nunits = "C"\n[[step]]\nramp = "1200/h"\n'
+                                'to = 200\n', "p.toml", max_c=1100.0)
+        device = open_device(kiln.device, kiln.base_dir)
+        record = Record()
+
+        def heating_again() -> float | None:
+            """Seconds from the controller's first answer after the silence to its output
+            on again (None: not yet)."""
+            s = record.samples
+            silent = [i for i, x in enumerate(s) if x["chamber_c"] is None]
+            if not silent or silent[-1] + 1 >= len(s):
+                return None
+            back = s[silent[-1] + 1]["time"]
+            on = [x["time"] for x in s[silent[-1] + 1:] if (x["output_pct"] or 0.0) > 0.0]
+            return on[0] - back + 1e-9 if on else None
+
+        async with device:
+            engine = RunEngine(device, profile, settings_for(kiln, profile),
+                               runlog=RunLog.in_folder(tmp_path), sinks=[record])
+            run = asyncio.create_task(engine.run())
+            took = await eventually(heating_again, 60.0, "heat again after the reboot")
+            engine.request_stop(st.ABORTED, "the test has seen enough")
+            await asyncio.wait_for(run, 30.0)
+    assert took <= 5.0
+    assert engine.rearms == 1
+    log = RunLog.in_folder(tmp_path)
+    rearmed = [e for e in log.events(engine.run_id)
+               if e["kind"] == ev.DEVICE and e["detail"].get("words") == "controller re-armed"]
+    assert len(rearmed) == 1, [e["message"] for e in log.events(engine.run_id)]

@@ -2,6 +2,7 @@
 
     keeper = SetpointKeeper(device, units, emit)
     keeper.watch(now, reading, sent_c, heat_off=..., held=...)   # every reading
+    keeper.unanswered()                                          # a poll got no answer
     if not await keeper.write(now, setpoint_c): ...              # the device refused it
 
 A moving setpoint is written at most every REWRITE_AFTER_S unless it moved REWRITE_STEP_C
@@ -12,11 +13,12 @@ running" while the run wants heat, the next write arms it again (stop, then setp
 run written afresh) and says so. The first reading after readings that went unanswered
 (`keeper.unanswered()`: no answer or a lost link, not a garbled reply) is enough: a
 controller that fell silent and came back other than it was sent has most likely rebooted,
-and a write meanwhile either failed or was answered, so none is left in flight. Without that, the run's next
-regular write could restore a rebooted controller (a driver that writes "run" with every
-setpoint) before the readings in a row were counted, and the run record would never say the
-controller had lost its setpoint. Re-arms are spaced out, doubling up to
-REARM_SPACING_MAX_S, so a controller that never agrees is not stopped and started for ever.
+and a write meanwhile either failed or was answered, so none is left in flight. Without
+that, the run's next regular write could restore a rebooted controller (a driver that
+writes "run" with every setpoint) before the readings in a row were counted, and the run
+record would never say the controller had lost its setpoint. Re-arms are spaced out,
+doubling up to REARM_SPACING_MAX_S, so a controller that never agrees is not stopped and
+started for ever.
 """
 
 from __future__ import annotations
