@@ -6,11 +6,10 @@ the model's truth is tests/test_ovenmodel.py's and test_plan_model.py's.
 
 from __future__ import annotations
 
-import asyncio
-import time
 from pathlib import Path
 
 from tests.test_ui_fakes import screen_text
+from tests.waiting import eventually
 from tuikiln.ovenmodel import OvenModel
 from tuikiln.ovenmodel_plan import predict
 from tuikiln.ovenmodel_store import save_model
@@ -37,7 +36,6 @@ async def test_home_totals_are_the_ovens(tmp_path: Path) -> None:
     wanted = "~" + format_duration(predicted)
     app = TuikilnApp(lambda: HomeScreen(launcher), units="F")
     async with app.run_test(size=(120, 30)) as pilot:
-        deadline = time.monotonic() + 10.0
-        while wanted not in screen_text(pilot.app.screen) and time.monotonic() < deadline:
-            await asyncio.sleep(0.05)
+        await eventually(lambda: wanted in screen_text(pilot.app.screen), 20,
+                         f"the home screen to show the oven's total {wanted}")
         assert wanted in screen_text(pilot.app.screen)
