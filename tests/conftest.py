@@ -15,18 +15,36 @@ Fixtures every test module may use without importing them:
 Waiting on conditions (never a fixed sleep): tests/waiting.py (`wait_until`, `eventually`,
 `writable`); a pause that is part of a test is `let_time_pass` / `time_passes`, with its
 reason (tests/test_house.py checks).
+
+For engine tests (a plain function, imported: `from tests.conftest import oven_settings`):
+
+- `oven_settings(**changes)`: the `RunSettings` most engine tests run with (`TEST_OVEN`: the
+  "Test oven", °C, 1100 °C maximum, default limits, 1 s ticks), with any field changed
+  (`tick_s=2.0`, `limits=...`, `kiln=KilnInfo(...)`). A test on a kiln file uses the
+  product's own `tuikiln.engine.host.settings_for(kiln, profile)`.
 """
 
 from __future__ import annotations
 
 from collections.abc import Callable, Iterator
+from dataclasses import replace
 from pathlib import Path
+from typing import Any
 
 import pytest
 
 from tests.mqtt_broker import mosquitto, mosquitto_factory  # noqa: F401 - fixtures
 from tests.simserve import ServedSim
+from tuikiln.engine.runner import KilnInfo, RunSettings
+from tuikiln.limits import Limits
 from tuikiln.runlog import RunLog
+
+TEST_OVEN = RunSettings(KilnInfo("Test oven", "C", 1100.0), Limits())
+
+
+def oven_settings(**changes: Any) -> RunSettings:
+    """TEST_OVEN with the given fields changed (a RunSettings field each)."""
+    return replace(TEST_OVEN, **changes)
 
 
 def pytest_addoption(parser) -> None:  # noqa: ANN001

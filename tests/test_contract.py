@@ -22,7 +22,7 @@ from tuikiln.drivers.fake import FirstOrderOven
 from tuikiln.engine import states as st
 from tuikiln.engine import status as status_module
 from tuikiln.engine.rules import RunRules, TickInput
-from tuikiln.engine.status import STATUS_KEYS, LastReading, build_status
+from tuikiln.engine.status import STATUS_KEYS, LastReading, RunFacts, build_status
 from tuikiln.errors import FileProblems
 from tuikiln.events import Event
 from tuikiln.kiln import parse_kiln
@@ -62,8 +62,8 @@ def drive_to_the_pause() -> tuple[RunRules, float]:
 
 def test_the_status_keeps_its_keys_and_its_strings() -> None:
     rules, t = drive_to_the_pause()
-    status = build_status(rules, run_id=7, kiln="bench", now=t, started=0.0,
-                          last=LastReading(chamber_c=200.0), watch_only=False)
+    status = build_status(rules, RunFacts(run_id=7, kiln="bench", started=0.0, watch_only=False),
+                          now=t, last=LastReading(chamber_c=200.0))
     # The documented keys (engine/status.py docstring), in order.
     keys_paragraph = (status_module.__doc__ or "").split("\n\n")[1]
     documented = [key.strip() for key in keys_paragraph.replace("\n", " ").split(",")]
@@ -127,23 +127,31 @@ def test_the_bells_ring_for_their_kinds() -> None:
 
 
 # Names whose values are contract strings: comparing one with a literal spells the contract
-# by hand (where "waiting-you" and "waiting-for-you" got mixed up).
-CONTRACT_NAMES = {"state", "step_state", "status", "outcome", "policy", "on_restart",
-                  "run_state"}
+# by hand (where "waiting-you" and "waiting-for-you" got mixed up). A `kind` or `severity`
+# is an event's; the other names hold states, outcomes and restart policies.
+STATE_VALUES = frozenset(m.value for enum in (st.StepState, st.RunState, st.Outcome,
+                                              st.RestartPolicy) for m in enum)
+CONTRACT_VALUES = {
+    **{name: STATE_VALUES for name in ("state", "step_state", "status", "outcome", "policy",
+                                       "on_restart", "run_state")},
+    "kind": frozenset(ev.EventKind), "severity": frozenset(ev.Severity),
+}
 
 
-def _names_a_contract_value(node: ast.expr) -> bool:
+def _contract_name(node: ast.expr) -> str | None:
+    """The contract name an expression reads (`x.state`, `state`, `d["state"]`,
+    `d.get("state")`), or None."""
+    name: object = None
     if isinstance(node, ast.Attribute):
-        return node.attr in CONTRACT_NAMES
-    if isinstance(node, ast.Name):
-        return node.id in CONTRACT_NAMES
-    if isinstance(node, ast.Subscript):
-        key = node.slice
-        return isinstance(key, ast.Constant) and key.value in CONTRACT_NAMES
-    if isinstance(node, ast.Call) and isinstance(node.func, ast.Attribute):
-        return (node.func.attr == "get" and bool(node.args)
-                and isinstance(node.args[0], ast.Constant) and node.args[0].value in CONTRACT_NAMES)
-    return False
+        name = node.attr
+    elif isinstance(node, ast.Name):
+        name = node.id
+    elif isinstance(node, ast.Subscript) and isinstance(node.slice, ast.Constant):
+        name = node.slice.value
+    elif (isinstance(node, ast.Call) and isinstance(node.func, ast.Attribute)
+          and node.func.attr == "get" and node.args and isinstance(node.args[0], ast.Constant)):
+        name = node.args[0].value
+    return name if isinstance(name, str) and name in CONTRACT_VALUES else None
 
 
 def _literals(node: ast.expr) -> list[str]:
@@ -155,15 +163,15 @@ def _literals(node: ast.expr) -> list[str]:
 
 
 def hand_spelled(source: str) -> list[tuple[int, str]]:
-    values = {m.value for enum in (st.StepState, st.RunState, st.Outcome, st.RestartPolicy)
-              for m in enum}
     found = []
     for node in ast.walk(ast.parse(source)):
         if isinstance(node, ast.Compare):
             sides = [node.left, *node.comparators]
-            if any(_names_a_contract_value(side) for side in sides):
-                found.extend((node.lineno, v) for side in sides for v in _literals(side)
-                             if v in values)
+            for side in sides:
+                name = _contract_name(side)
+                if name is not None:
+                    found.extend((node.lineno, v) for other in sides for v in _literals(other)
+                                 if v in CONTRACT_VALUES[name])
     return found
 
 
@@ -173,13 +181,18 @@ def test_the_finder_sees_a_hand_spelled_state() -> None:
     assert hand_spelled('x = run.status in ("running", "unfinished")') == [
         (1, "running"), (1, "unfinished")]
     assert hand_spelled('if step.kind == "hold": pass') == []
+    assert hand_spelled('if event["kind"] == "step-start": pass') == [(1, "step-start")]
+    assert hand_spelled('if e.severity in ("warning", "critical"): pass') == [
+        (1, "warning"), (1, "critical")]
 
 
 def test_no_module_spells_a_contract_string_by_hand() -> None:
     wrong = []
     for path in sorted((ROOT / "tuikiln").rglob("*.py")):
-        if path.name == "states.py" and path.parent.name == "engine":
+        if (path.name == "states.py" and path.parent.name == "engine") or (
+                path.name == "events.py" and path.parent.name == "tuikiln"):
             continue
         for line, value in hand_spelled(path.read_text(encoding="utf-8")):
-            wrong.append(f"{path.relative_to(ROOT)}:{line}: {value!r}: use tuikiln.engine.states")
+            wrong.append(f"{path.relative_to(ROOT)}:{line}: {value!r}: use tuikiln.engine.states "
+                         "or tuikiln.events")
     assert not wrong, "\n".join(wrong)

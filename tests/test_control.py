@@ -16,7 +16,7 @@ from tests.waiting import eventually, time_passes, wait_until
 from tuikiln import control
 from tuikiln.drivers.fake import FirstOrderOven, ScriptedDevice
 from tuikiln.engine import states as st
-from tuikiln.engine.runner import KilnInfo, RunEngine
+from tuikiln.engine.runner import KilnInfo, RunEngine, RunSettings
 from tuikiln.limits import Limits
 from tuikiln.profile import parse_profile
 from tuikiln.runlog import RunLog
@@ -52,7 +52,7 @@ async def test_commands_status_and_subscribe_over_the_socket(tmp_path):
     clock = SlowClock()
     device.clock = clock
     profile = parse_profile(PROFILE, "p.toml")
-    engine = RunEngine(device, profile, kiln=KilnInfo("Socket oven"), limits=Limits(),
+    engine = RunEngine(device, profile, RunSettings(KilnInfo("Socket oven"), Limits()),
                        runlog=RunLog.in_folder(tmp_path))
     server = control.ControlServer(engine, control.socket_path(tmp_path, "Socket oven"))
     await server.start()

@@ -12,12 +12,12 @@ import subprocess
 
 import pytest
 
+from tests.conftest import oven_settings
 from tests.waiting import wait_until
 from tuikiln import events as ev
 from tuikiln.drivers.fake import FirstOrderOven, ManualClock, ScriptedDevice
 from tuikiln.engine import states as st
-from tuikiln.engine.runner import KilnInfo, RunEngine
-from tuikiln.limits import Limits
+from tuikiln.engine.runner import RunEngine
 from tuikiln.profile import parse_profile
 from tuikiln.runlog import RunLog
 
@@ -99,8 +99,7 @@ async def test_a_full_disk_keeps_the_run_going_and_writes_everything_later(tiny_
         profile = parse_profile(PROFILE, "p.toml", max_c=1100.0)
         sink = Grower(tiny_disk)
         log = RunLog.in_folder(tiny_disk)
-        engine = RunEngine(device, profile, kiln=KilnInfo("Test oven", "C", 1100.0),
-                           limits=Limits(), runlog=log, sinks=[sink])
+        engine = RunEngine(device, profile, oven_settings(), runlog=log, sinks=[sink])
         sink.engine = engine
         outcome = await engine.run()
     finally:

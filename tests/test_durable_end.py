@@ -18,6 +18,7 @@ import subprocess
 
 import pytest
 
+from tests.conftest import oven_settings
 from tests.test_disk_trouble import PROFILE as DISK_TROUBLE_PROFILE
 from tests.test_disk_trouble import tiny_disk  # noqa: F401 - a fixture (a 160 KiB tmpfs)
 from tests.test_recovery import Sink, dead_pid
@@ -25,8 +26,7 @@ from tuikiln import events as ev
 from tuikiln.drivers.fake import FirstOrderOven, ManualClock, ScriptedDevice
 from tuikiln.engine import recovery
 from tuikiln.engine import states as st
-from tuikiln.engine.runner import KilnInfo, RunEngine
-from tuikiln.limits import Limits
+from tuikiln.engine.runner import RunEngine
 from tuikiln.profile import parse_profile
 from tuikiln.runlog import EndMark, RunLog
 
@@ -35,8 +35,8 @@ LONG_HOLD = DISK_TROUBLE_PROFILE  # a ramp to 500 °C, then a 5 h hold
 
 def engine_on(log: RunLog, device: ScriptedDevice, sink: Sink, resume=None) -> RunEngine:
     profile = parse_profile(LONG_HOLD, "p.toml", max_c=1100.0)
-    engine = RunEngine(device, profile, kiln=KilnInfo("Test oven", "C", 1100.0),
-                       limits=Limits(), runlog=log, sinks=[sink], resume=resume, tick_s=2.0)
+    engine = RunEngine(device, profile, oven_settings(tick_s=2.0), runlog=log, sinks=[sink],
+                       resume=resume)
     sink.engine = engine
     return engine
 

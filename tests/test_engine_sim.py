@@ -10,12 +10,13 @@ from __future__ import annotations
 import numpy as np
 import pytest
 
+from tests.conftest import oven_settings
 from tuikiln import events as ev
 from tuikiln.drivers.factory import open_device
 from tuikiln.engine import states as st
+from tuikiln.engine.host import settings_for
 from tuikiln.engine.runner import KilnInfo, RunEngine
 from tuikiln.kiln import parse_kiln
-from tuikiln.limits import Limits
 from tuikiln.profile import parse_profile
 from tuikiln.runlog import RunLog
 
@@ -86,9 +87,8 @@ async def simulate(tmp_path, profile_text: str, *, seed: int = 1, faults: str = 
     watcher = Watcher(abort_on)
     log = RunLog.in_folder(tmp_path)
     async with device:
-        engine = RunEngine(device, profile, kiln=KilnInfo(kiln.name, "C", kiln.max_c),
-                           limits=Limits().merged(kiln.alarms).merged(profile.limits),
-                           runlog=log, sinks=[watcher], auto_continue=True)
+        engine = RunEngine(device, profile, settings_for(kiln, profile, auto_continue=True),
+                           runlog=log, sinks=[watcher])
         watcher.engine = engine
         outcome = await engine.run()
     return outcome, watcher, engine, device, log
@@ -176,8 +176,8 @@ async def test_watch_only_follows_the_plan_without_writing(tmp_path):
     device.kiln.set_running(True)
     watcher = Watcher()
     async with device:
-        engine = RunEngine(device, profile, kiln=KilnInfo("Watched", "C", 1100.0),
-                           limits=Limits(), sinks=[watcher])
+        engine = RunEngine(device, profile, oven_settings(kiln=KilnInfo("Watched", "C", 1100.0)),
+                           sinks=[watcher])
         engine.command("abort")  # only to end the test quickly; the first tick acts on it
         await engine.run()
     assert engine.watch_only and engine.status()["watch_only"] is True
@@ -203,7 +203,7 @@ async def test_an_engine_failure_drives_safe_and_is_logged(tmp_path):
     device = ScriptedDevice(model=FirstOrderOven(), errors={50: RuntimeError("a bug")})
     profile = parse_profile(LONG_RAMP, "p.toml")
     log = RunLog.in_folder(tmp_path)
-    engine = RunEngine(device, profile, kiln=KilnInfo("k"), limits=Limits(), runlog=log)
+    engine = RunEngine(device, profile, oven_settings(kiln=KilnInfo("k")), runlog=log)
     with pytest.raises(RuntimeError):
         await engine.run()
     assert device.stop_calls  # heat off before the error went on up
@@ -216,8 +216,8 @@ async def test_a_stop_request_from_a_signal_ends_safe(tmp_path):
     from tuikiln.drivers.fake import FirstOrderOven, ScriptedDevice
 
     device = ScriptedDevice(model=FirstOrderOven())
-    engine = RunEngine(device, parse_profile(LONG_RAMP, "p.toml"), kiln=KilnInfo("k"),
-                       limits=Limits())
+    engine = RunEngine(device, parse_profile(LONG_RAMP, "p.toml"),
+                       oven_settings(kiln=KilnInfo("k")))
     engine.request_stop(st.STOPPED_BY_SIGNAL, "stopped by SIGTERM")
     assert await engine.run() == st.STOPPED_BY_SIGNAL
     assert device.stop_calls
@@ -276,8 +276,8 @@ async def test_starting_at_a_hold_heats_to_the_hold_first(tmp_path):
     kiln = parse_kiln('name = "Test oven"\n[device]\nkind = "sim"\n', str(tmp_path / "k.toml"))
     device = open_sim(kiln.device, kiln.base_dir, speed=0.0)
     async with device:
-        engine = RunEngine(device, profile, kiln=KilnInfo(kiln.name, "C", kiln.max_c),
-                           limits=Limits(), runlog=RunLog.in_folder(tmp_path), start_index=1)
+        engine = RunEngine(device, profile, settings_for(kiln, profile, start_index=1),
+                           runlog=RunLog.in_folder(tmp_path))
         assert await engine.run() == st.COMPLETED
     samples = RunLog.in_folder(tmp_path).samples(engine.run_id)
     assert np.nanmax(samples["setpoint_c"]) == pytest.approx(205.0, abs=0.1)

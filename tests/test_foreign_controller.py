@@ -22,9 +22,9 @@ from tuikiln.drivers.factory import open_device
 from tuikiln.drivers.maps import load_map
 from tuikiln.drivers.modbus import ModbusDevice, ModbusSettings
 from tuikiln.engine import states as st
-from tuikiln.engine.runner import KilnInfo, RunEngine
+from tuikiln.engine.host import settings_for
+from tuikiln.engine.runner import RunEngine
 from tuikiln.kiln import parse_kiln
-from tuikiln.limits import Limits
 from tuikiln.profile import parse_profile
 from tuikiln.runlog import RunLog
 
@@ -115,10 +115,8 @@ async def test_foreign_controller_runs_a_fast_ramp_through_its_run_coil(rig, tmp
     try:
         async with device:
             assert (await device.read()).running is False  # off until tuikiln starts it
-            engine = RunEngine(device, profile, kiln=KilnInfo(kiln.name, "C", kiln.max_c),
-                               limits=Limits().merged(kiln.alarms).merged(profile.limits),
-                               runlog=RunLog.in_folder(tmp_path), sinks=[sink],
-                               auto_continue=True)
+            engine = RunEngine(device, profile, settings_for(kiln, profile, auto_continue=True),
+                               runlog=RunLog.in_folder(tmp_path), sinks=[sink])
             outcome = await asyncio.wait_for(engine.run(), 120)
     finally:
         oven.stop.set()

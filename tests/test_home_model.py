@@ -39,3 +39,55 @@ async def test_home_totals_are_the_ovens(tmp_path: Path) -> None:
         await eventually(lambda: wanted in screen_text(pilot.app.screen), 20,
                          f"the home screen to show the oven's total {wanted}")
         assert wanted in screen_text(pilot.app.screen)
+
+
+async def test_preview_shows_what_the_learned_oven_takes_as_plan_says(tmp_path: Path) -> None:
+    """Opened from home, the preview puts the learned oven's total, end time, each step's
+    length and the model's warnings beside the plan's own figures: the same numbers
+    `tuikiln plan --json` gives for this kiln (its predicted_total_s and step ends)."""
+    import json
+    import subprocess
+    import sys
+
+    from tuikiln.ui.screens.preview import PreviewScreen
+
+    launcher = Launcher(tmp_path, None)
+    save_model(launcher.data_dir, launcher.kiln.name, INVENTED)
+    demo = next(p for p in find_profiles() if p.name == "demo-harden-temper.toml")
+    done = subprocess.run([sys.executable, "-m", "tuikiln", "plan", str(demo), "--json",
+                           "--data", str(launcher.data_dir)], capture_output=True, text=True)
+    assert done.returncode == 0, done.stderr
+    planned = json.loads(done.stdout)
+    total = planned["predicted_total_s"]
+    assert total is not None and total > planned["total_s"]  # the 'max' ramp and the waits
+    lengths = [format_duration(s["predicted_end_s"] - s["predicted_start_s"])
+               for s in planned["steps"] if s["kind"] != "pause"]
+    app = TuikilnApp(lambda: HomeScreen(launcher), units=planned["units"])
+    async with app.run_test(size=(140, 40)) as pilot:
+        home = pilot.app.screen
+        await eventually(lambda: home.profile_paths, 20, "the home screen's list of profiles")
+        row = home.profile_paths.index(demo)
+        home.query_one("#home-profiles").move_cursor(row=row)
+        home.query_one("#home-profiles").focus()
+        home.action_open()
+        await pilot.pause(0.2)
+        assert isinstance(pilot.app.screen, PreviewScreen)
+        text = screen_text(pilot.app.screen)
+        assert f"on this oven (learned): about {format_duration(total)}" in text
+        assert "this oven" in text  # the table's column
+        for length in lengths:
+            assert length in text
+        for warning in planned["warnings"]:
+            assert warning["text"][:40] in text.replace("\n", " ")
+
+
+async def test_preview_without_a_learned_oven_shows_the_plan_alone(tmp_path: Path) -> None:
+    from tuikiln.ui.screens.preview import PreviewScreen
+
+    demo = next(p for p in find_profiles() if p.name == "demo-harden-temper.toml")
+    app = TuikilnApp(lambda: PreviewScreen(demo), units="C")
+    async with app.run_test(size=(140, 40)) as pilot:
+        await pilot.pause(0.2)
+        text = screen_text(pilot.app.screen)
+        assert "total at least" in text and "counted at their shortest" in text
+        assert "on this oven" not in text and "this oven" not in text

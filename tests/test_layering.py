@@ -67,7 +67,7 @@ LAYERS: dict[str, tuple[str, ...]] = {
                "tuikiln.analysis.loading", "tuikiln.ovenmodel_store", "tuikiln.logsetup"),
     # The engine's host: the async loop, restart recovery, the safe state.
     "host": ("tuikiln.engine.runner", "tuikiln.engine.recovery", "tuikiln.engine.safety",
-             "tuikiln.engine.host"),
+             "tuikiln.engine.setpoint", "tuikiln.engine.saferetry", "tuikiln.engine.host"),
     # Screens and what feeds them.
     "ui": (
         "tuikiln.ui", "tuikiln.ui.app", "tuikiln.ui.chartdata", "tuikiln.ui.chartdraw",

@@ -9,6 +9,7 @@ from __future__ import annotations
 
 import asyncio
 
+from tests.conftest import oven_settings
 from tests.test_drivers_wire import PtyWire, holding_device, start_serial_server
 from tests.test_setpoint_truth import EEPROM_MAP, Events
 from tests.waiting import eventually
@@ -16,7 +17,8 @@ from tuikiln import events as ev
 from tuikiln.drivers.maps import parse_map
 from tuikiln.drivers.modbus import ModbusDevice, ModbusSettings
 from tuikiln.engine import states as st
-from tuikiln.engine.runner import KilnInfo, RunEngine
+from tuikiln.engine.runner import RunEngine
+from tuikiln.engine.safety import SafetyWiring
 from tuikiln.limits import Limits
 from tuikiln.profile import parse_profile
 
@@ -45,9 +47,8 @@ async def hot_hold_engine(wire: PtyWire, sink: object, **link: float) -> RunEngi
     device = ModbusDevice(settings, parse_map(EEPROM_MAP, "eeprom.toml"))
     await device.connect()
     return RunEngine(device, parse_profile(HOT_HOLD, "hot.toml", max_c=1100.0),
-                     kiln=KilnInfo("Test oven", "C", 1100.0),
-                     limits=Limits(link_lost=0.3, link_lost_safe=0.6), sinks=[sink],
-                     tick_s=0.1, watchdog_s=None)
+                     oven_settings(limits=Limits(link_lost=0.3, link_lost_safe=0.6), tick_s=0.1),
+                     sinks=[sink], safety=SafetyWiring(watchdog_s=None))
 
 async def test_safe_state_is_written_when_the_link_comes_back(tmp_path) -> None:
     wire = PtyWire(str(tmp_path / "ttyKILN"))

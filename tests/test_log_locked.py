@@ -17,13 +17,13 @@ import time
 import numpy as np
 import pytest
 
+from tests.conftest import oven_settings
 from tests.test_recovery import Sink
 from tests.waiting import eventually, wait_until
 from tuikiln import events as ev
 from tuikiln.drivers.fake import FirstOrderOven, ManualClock, ScriptedDevice
 from tuikiln.engine import states as st
-from tuikiln.engine.runner import KilnInfo, RunEngine
-from tuikiln.limits import Limits
+from tuikiln.engine.runner import RunEngine
 from tuikiln.profile import parse_profile
 from tuikiln.runlog import RunLog
 
@@ -93,8 +93,7 @@ async def test_a_locked_log_keeps_the_engine_going_and_loses_no_sample(tmp_path,
     device = ScriptedDevice(model=FirstOrderOven(tau_s=300.0), clock=ManualClock(1e6))
     sink = Locker(log.path, device, bound)
     profile = parse_profile(LONG_HOLD, "p.toml", max_c=1100.0)
-    engine = RunEngine(device, profile, kiln=KilnInfo("Test oven", "C", 1100.0),
-                       limits=Limits(), runlog=log, sinks=[sink], tick_s=2.0)
+    engine = RunEngine(device, profile, oven_settings(tick_s=2.0), runlog=log, sinks=[sink])
     sink.engine = engine
 
     def end_waits_for_the_lock() -> bool:  # the run has ended; its writer still retries
@@ -136,7 +135,7 @@ async def test_a_locked_log_keeps_the_engine_going_and_loses_no_sample(tmp_path,
     assert not engine.recorder.spill.exists() and not engine.recorder.mark.path.exists()
 
 
-def test_samples_left_in_a_spill_are_written_by_the_next_engine(tmp_path):
+def test_samples_and_events_left_in_spills_are_written_by_the_next_engine(tmp_path, caplog):
     log = RunLog.in_folder(tmp_path)
     recorder = log.start_run(kiln="k", profile="p", started=0.0)
     recorder.write_in_background()
@@ -144,15 +143,28 @@ def test_samples_left_in_a_spill_are_written_by_the_next_engine(tmp_path):
     holder.execute("BEGIN EXCLUSIVE")
     for i in range(300):
         recorder.sample(float(i), 100.0 + i, None, None, 100.0, 10.0, 0, 1, 0)
-    assert not recorder.close(wait_s=0.5)  # still locked: the queue goes to the spill
-    assert recorder.spill.exists()
+    # The alarm and the note of a run's last moments: the record a person is shown.
+    recorder.event(ev.Event(298.0, ev.ALARM_RAISED, "Too hot: 530 °C", ev.Severity.CRITICAL,
+                            {"alarm": "too-hot"}))
+    recorder.event(ev.Event(299.0, ev.NOTE, "Note: door opened", detail={"text": "door"}))
+    with caplog.at_level("WARNING", logger="tuikiln.runlog"):
+        assert not recorder.close(wait_s=0.5)  # still locked: the queues go to the spills
+    assert recorder.spill.exists() and recorder.event_spill.exists()
+    said = caplog.text
+    assert "still refused at the end of run 1" in said and recorder.spill.path.name in said
+    assert recorder.event_spill.path.name in said and "next run" in said
     holder.rollback()
     holder.close()
-    assert log.sample_count(recorder.run_id) == 0
+    assert log.sample_count(recorder.run_id) == 0 and log.events(recorder.run_id) == []
     later = log.start_run(kiln="k", profile="p", started=400.0)  # the next run's engine
-    assert not recorder.spill.exists()
+    assert not recorder.spill.exists() and not recorder.event_spill.exists()
     chamber = log.samples(recorder.run_id)["chamber_c"]
     assert len(chamber) == 300 and np.array_equal(chamber, 100.0 + np.arange(300))
+    events = log.events(recorder.run_id)
+    assert [(e["kind"], e["severity"], e["message"]) for e in events] == [
+        ("alarm-raised", "critical", "Too hot: 530 °C"), ("note", "info", "Note: door opened")]
+    assert events[0]["detail"] == {"alarm": "too-hot"} and events[1]["time"] == 299.0
+    assert log.events(later.run_id) == []  # the next run's own record stays its own
     later.close()
 
 

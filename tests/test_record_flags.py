@@ -5,12 +5,12 @@ from __future__ import annotations
 
 from pathlib import Path
 
+from tests.conftest import oven_settings
 from tuikiln.analysis.loading import from_log
 from tuikiln.analysis.whatif import compare_alarms
 from tuikiln.drivers.fake import ManualClock, ScriptedDevice
 from tuikiln.engine import states as st
-from tuikiln.engine.runner import KilnInfo, RunEngine
-from tuikiln.limits import Limits
+from tuikiln.engine.runner import RunEngine
 from tuikiln.profile import parse_profile
 from tuikiln.runlog import RunLog
 
@@ -34,8 +34,7 @@ async def test_a_sensor_fault_replays_as_a_sensor_fault(tmp_path: Path) -> None:
     device = ScriptedDevice(readings, clock=ManualClock())
     profile = parse_profile(PROFILE, "p.toml", max_c=1100.0)
     log = RunLog.in_folder(tmp_path)
-    engine = RunEngine(device, profile, kiln=KilnInfo("Test oven", "C", 1100.0),
-                       limits=Limits(), runlog=log)
+    engine = RunEngine(device, profile, oven_settings(), runlog=log)
     await engine.run()
     reader = RunLog.in_folder(tmp_path)
     run_id = engine.run_id

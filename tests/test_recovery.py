@@ -15,12 +15,12 @@ import subprocess
 
 import pytest
 
+from tests.conftest import oven_settings
 from tuikiln import events as ev
 from tuikiln.drivers.fake import FirstOrderOven, ManualClock, ScriptedDevice
 from tuikiln.engine import recovery
 from tuikiln.engine import states as st
-from tuikiln.engine.runner import KilnInfo, RunEngine
-from tuikiln.limits import Limits
+from tuikiln.engine.runner import RunEngine
 from tuikiln.profile import parse_profile
 from tuikiln.runlog import RunLog
 
@@ -89,9 +89,8 @@ def dead_pid() -> int:
 def engine_for(profile_text: str, device: ScriptedDevice, log: RunLog, sink: Sink,
                resume=None) -> RunEngine:
     profile = parse_profile(profile_text, "p.toml", max_c=1100.0)
-    engine = RunEngine(device, profile, kiln=KilnInfo("Test oven", "C", 1100.0),
-                       limits=Limits(), runlog=log, sinks=[sink], resume=resume,
-                       tick_s=2.0)
+    engine = RunEngine(device, profile, oven_settings(tick_s=2.0), runlog=log, sinks=[sink],
+                       resume=resume)
     sink.engine = engine
     return engine
 

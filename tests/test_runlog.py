@@ -30,7 +30,7 @@ def test_samples_round_trip_with_nulls_as_nan(run_log: RunLog) -> None:
     assert np.array_equal(s["t"], np.arange(n, dtype=float))
     assert math.isnan(s["load_c"][0]) and s["load_c"][1] == np.float32(19.5)
     assert s["step"][-1] == (n - 1) // 100 and s["state"][7] == 2 and s["flags"][3] == 1
-    # The row table holds the same samples, for SQL and other tools.
+    # Counted over the blocks and the rows after them (each sample is kept once).
     assert log.sample_count(rec.run_id) == n
     info = log.run(rec.run_id)
     assert info.outcome == "completed" and info.load == {"material": "AISI O1"}

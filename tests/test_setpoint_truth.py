@@ -17,13 +17,15 @@ import math
 
 import pytest
 
+from tests.conftest import oven_settings
 from tests.test_drivers_wire import PtyWire, holding_device, start_serial_server
 from tests.waiting import time_passes
 from tuikiln import events as ev
 from tuikiln.drivers.maps import parse_map
 from tuikiln.drivers.modbus import ModbusDevice, ModbusSettings
 from tuikiln.engine import states as st
-from tuikiln.engine.runner import KilnInfo, RunEngine
+from tuikiln.engine.runner import KilnInfo, RunEngine, RunSettings
+from tuikiln.engine.safety import SafetyWiring
 from tuikiln.limits import Limits
 from tuikiln.profile import parse_profile
 
@@ -119,8 +121,9 @@ async def test_fast_ramp_on_an_eeprom_setpoint_heats_and_completes(controller) -
     sink = Events()
     limits = Limits()
     async with device:
-        engine = RunEngine(device, profile, kiln=KilnInfo("EEPROM oven", "C", 1100.0),
-                           limits=limits, sinks=[sink], watchdog_s=None)
+        engine = RunEngine(device, profile, RunSettings(KilnInfo("EEPROM oven", "C", 1100.0),
+                                                        limits),
+                           sinks=[sink], safety=SafetyWiring(watchdog_s=None))
         clock.engine = engine
         outcome = await engine.run()
         guard = device.guard
@@ -195,8 +198,8 @@ async def test_a_controller_that_never_agrees_is_not_re_armed_every_few_ticks(co
     profile = parse_profile(FAST_RAMP, "fast.toml", max_c=1100.0)
     sink = Events()
     async with device:
-        engine = RunEngine(device, profile, kiln=KilnInfo("Odd oven", "C", 1100.0),
-                           limits=Limits(), sinks=[sink], watchdog_s=None)
+        engine = RunEngine(device, profile, oven_settings(kiln=KilnInfo("Odd oven", "C", 1100.0)),
+                           sinks=[sink], safety=SafetyWiring(watchdog_s=None))
         clock.engine = engine
         outcome = await engine.run()
     assert outcome == st.COMPLETED, [e.message for e in sink.events]

@@ -6,13 +6,15 @@ from __future__ import annotations
 
 import asyncio
 
+from tests.conftest import oven_settings
 from tuikiln import events as ev
 from tuikiln.drivers.factory import open_device
 from tuikiln.drivers.fake import FirstOrderOven, ManualClock, ScriptedDevice
 from tuikiln.engine import states as st
-from tuikiln.engine.runner import KilnInfo, RunEngine
+from tuikiln.engine.host import settings_for
+from tuikiln.engine.runner import RunEngine
+from tuikiln.engine.safety import SafetyWiring
 from tuikiln.kiln import parse_kiln
-from tuikiln.limits import Limits
 from tuikiln.profile import parse_profile
 from tuikiln.runlog import RunLog
 
@@ -64,8 +66,8 @@ class Events:
 def engine_on(device, tmp_path, **kw) -> tuple[RunEngine, Events]:
     profile = parse_profile(PROFILE, "p.toml", max_c=1100.0)
     sink = Events()
-    engine = RunEngine(device, profile, kiln=KilnInfo("Test oven", "C", 1100.0),
-                       limits=Limits(), runlog=RunLog.in_folder(tmp_path), sinks=[sink], **kw)
+    engine = RunEngine(device, profile, oven_settings(), runlog=RunLog.in_folder(tmp_path),
+                       sinks=[sink], safety=SafetyWiring(**kw))
     return engine, sink
 
 
@@ -87,15 +89,9 @@ async def test_when_the_device_hangs_for_good_a_second_connection_stops_the_heat
     clock = ManualClock()
     device = HangingDevice(50, stop_hangs=True, model=model, clock=clock)
     spare = ScriptedDevice(model=model, clock=clock, description="second connection")
-    engine, sink = engine_on(device, tmp_path, watchdog_s=0.3, safe_device=lambda: spare)
-    import tuikiln.engine.runner as runner
-
-    old = runner.SAFE_PATH_TIMEOUT_S
-    runner.SAFE_PATH_TIMEOUT_S = 0.3
-    try:
-        outcome = await asyncio.wait_for(engine.run(), 10.0)
-    finally:
-        runner.SAFE_PATH_TIMEOUT_S = old
+    engine, sink = engine_on(device, tmp_path, watchdog_s=0.3, second_connection=lambda: spare,
+                             path_timeout_s=0.3)
+    outcome = await asyncio.wait_for(engine.run(), 10.0)
     assert outcome == st.ENGINE_FAILED
     assert not device.stop_calls and spare.stop_calls and spare.closed
     safe = next(e for e in sink.events if e.kind == ev.SAFE_STATE)
@@ -105,8 +101,7 @@ async def test_when_the_device_hangs_for_good_a_second_connection_stops_the_heat
 async def test_a_slow_but_working_loop_does_not_trip_the_watchdog(tmp_path):
     device = ScriptedDevice(model=FirstOrderOven(tau_s=60.0), clock=ManualClock())
     profile = parse_profile(PROFILE.replace('"2h"', '"2m"'), "p.toml", max_c=1100.0)
-    engine = RunEngine(device, profile, kiln=KilnInfo("Test oven", "C", 1100.0),
-                       limits=Limits(), watchdog_s=0.3)
+    engine = RunEngine(device, profile, oven_settings(), safety=SafetyWiring(watchdog_s=0.3))
     assert await asyncio.wait_for(engine.run(), 20.0) == st.COMPLETED
 
 
@@ -121,8 +116,8 @@ async def test_a_controller_reboot_mid_hold_is_armed_again_and_the_run_completes
     device = open_device(kiln.device, kiln.base_dir, speed=0.0)
     sink = Events()
     async with device:
-        engine = RunEngine(device, profile, kiln=KilnInfo(kiln.name, "C", kiln.max_c),
-                           limits=Limits(), runlog=RunLog.in_folder(tmp_path), sinks=[sink])
+        engine = RunEngine(device, profile, settings_for(kiln, profile),
+                           runlog=RunLog.in_folder(tmp_path), sinks=[sink])
         outcome = await engine.run()
     assert outcome == st.COMPLETED
     assert engine.rearms >= 1
@@ -152,9 +147,8 @@ async def test_a_served_controller_that_reboots_comes_back_stopped_and_is_armed_
         device = open_device(kiln.device, kiln.base_dir)
         sink = Events()
         async with device:
-            engine = RunEngine(device, profile, kiln=KilnInfo(kiln.name, "C", kiln.max_c),
-                               limits=Limits(), runlog=RunLog.in_folder(tmp_path),
-                               sinks=[sink])
+            engine = RunEngine(device, profile, settings_for(kiln, profile),
+                               runlog=RunLog.in_folder(tmp_path), sinks=[sink])
             outcome = await asyncio.wait_for(engine.run(), 40.0)
         regs = sim.registers()
     finally:

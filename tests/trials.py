@@ -16,9 +16,9 @@ from hypothesis import strategies as hs
 
 from tuikiln import events as ev
 from tuikiln.drivers.factory import open_device
-from tuikiln.engine.runner import KilnInfo, RunEngine
+from tuikiln.engine.host import settings_for
+from tuikiln.engine.runner import RunEngine
 from tuikiln.kiln import parse_kiln
-from tuikiln.limits import Limits
 from tuikiln.profile import parse_profile
 from tuikiln.runlog import RunLog
 
@@ -149,8 +149,7 @@ async def run_profile(text: str, *, seed: int = 1, faults: str = "", device_extr
         device = open_device(kiln.device, kiln.base_dir, speed=0.0)
         person = Person()
         async with device:
-            engine = RunEngine(device, profile, kiln=KilnInfo(kiln.name, "C", kiln.max_c),
-                               limits=Limits().merged(kiln.alarms).merged(profile.limits),
+            engine = RunEngine(device, profile, settings_for(kiln, profile),
                                runlog=RunLog.in_folder(where), sinks=[person])
             person.engine = engine
             outcome = await engine.run()

@@ -10,32 +10,67 @@ from __future__ import annotations
 import string
 from collections.abc import Mapping
 from dataclasses import dataclass, field
-from typing import Any, Protocol
+from enum import StrEnum
+from typing import Any, Protocol, TypedDict
 
 from tuikiln.units import Units, delta_from_c, format_duration, format_rate, format_temp, symbol
 
-# Event kinds (stable strings: they are stored in run logs and sent over MQTT).
-RUN_START = "run-start"
-RUN_END = "run-end"                      # detail: outcome ("completed", "aborted", ...)
-STEP_START = "step-start"                # detail: index (0-based), kind, description
-STEP_END = "step-end"
-STEP_STATE = "step-state"                # detail: state (our own names), words
-EQUALIZED = "equalized"                  # the load has evened out; detail: index, core_c
-ALARM_RAISED = "alarm-raised"            # detail: alarm (code), severity, words
-ALARM_ACKNOWLEDGED = "alarm-acknowledged"
-ALARM_CLEARED = "alarm-cleared"
-OPERATOR_NEEDED = "operator-needed"      # a pause step waits for the person; repeated as reminders
-OPERATOR_ACKNOWLEDGED = "operator-acknowledged"
-NOTE = "note"                            # detail: text, source ("screen", "command", "mqtt")
-COMMAND = "command"                      # a command accepted; detail: name, source
-COMMAND_REFUSED = "command-refused"      # detail: name, source, reason
-SAFE_STATE = "safe-state"                # the device was driven safe; detail: reason
-GAP = "gap"                              # the engine was away; detail: seconds, before_c, after_c
-DEVICE = "device"                        # link lost/back, device rebooted; detail: words
-ALERT_FAILED = "alert-failed"            # a hook or publisher failed; detail: channel, words
-LOG_QUEUE = "log-queue"                  # samples wait for the run log; detail: queued, bound
 
-SEVERITIES = ("info", "warning", "critical")
+class EventKind(StrEnum):
+    """What happened (an event's `kind`). Stable strings: they are stored in run logs and
+    sent over MQTT; a member *is* its string, so older logs and other readers match."""
+
+    RUN_START = "run-start"
+    RUN_END = "run-end"                      # detail: outcome ("completed", "aborted", ...)
+    STEP_START = "step-start"                # detail: index (0-based), kind, description
+    STEP_END = "step-end"
+    STEP_STATE = "step-state"                # detail: state (our own names), words
+    EQUALIZED = "equalized"                  # the load has evened out; detail: index, core_c
+    ALARM_RAISED = "alarm-raised"            # detail: alarm (code), severity, words
+    ALARM_ACKNOWLEDGED = "alarm-acknowledged"
+    ALARM_CLEARED = "alarm-cleared"
+    OPERATOR_NEEDED = "operator-needed"      # a pause step waits for the person; reminders too
+    OPERATOR_ACKNOWLEDGED = "operator-acknowledged"
+    NOTE = "note"                            # detail: text, source ("screen", "command", "mqtt")
+    COMMAND = "command"                      # a command accepted; detail: name, source
+    COMMAND_REFUSED = "command-refused"      # detail: name, source, reason
+    SAFE_STATE = "safe-state"                # the device was driven safe; detail: reason
+    GAP = "gap"                              # the engine was away; detail: seconds, before/after
+    DEVICE = "device"                        # link lost/back, device rebooted; detail: words
+    ALERT_FAILED = "alert-failed"            # a hook or publisher failed; detail: channel, words
+    LOG_QUEUE = "log-queue"                  # samples wait for the run log; detail: queued, bound
+
+
+class Severity(StrEnum):
+    """How much an event matters (an event's and an alarm's `severity`)."""
+
+    INFO = "info"
+    WARNING = "warning"
+    CRITICAL = "critical"
+
+
+# Short names the code uses (members, not copies of the strings).
+RUN_START = EventKind.RUN_START
+RUN_END = EventKind.RUN_END
+STEP_START = EventKind.STEP_START
+STEP_END = EventKind.STEP_END
+STEP_STATE = EventKind.STEP_STATE
+EQUALIZED = EventKind.EQUALIZED
+ALARM_RAISED = EventKind.ALARM_RAISED
+ALARM_ACKNOWLEDGED = EventKind.ALARM_ACKNOWLEDGED
+ALARM_CLEARED = EventKind.ALARM_CLEARED
+OPERATOR_NEEDED = EventKind.OPERATOR_NEEDED
+OPERATOR_ACKNOWLEDGED = EventKind.OPERATOR_ACKNOWLEDGED
+NOTE = EventKind.NOTE
+COMMAND = EventKind.COMMAND
+COMMAND_REFUSED = EventKind.COMMAND_REFUSED
+SAFE_STATE = EventKind.SAFE_STATE
+GAP = EventKind.GAP
+DEVICE = EventKind.DEVICE
+ALERT_FAILED = EventKind.ALERT_FAILED
+LOG_QUEUE = EventKind.LOG_QUEUE
+
+SEVERITIES: tuple[Severity, ...] = tuple(Severity)
 
 # Units as data: an event's words keep their numbers apart. detail["template"] is the
 # message with "{name}" where a number goes; detail["numbers"] holds each as {"kind": ...,
@@ -141,6 +176,31 @@ def event_text(event: Mapping[str, Any], units: Units) -> str:
     return str(event.get("message") or event.get("kind") or "")
 
 
+class EventDict(TypedDict):
+    """An event as JSON (`Event.as_dict`; the run log's `events()` adds its row `id`; MQTT
+    and `--json` send it as it is)."""
+
+    time: float
+    kind: str
+    message: str
+    severity: str
+    detail: dict[str, Any]
+    run: int | None
+
+
+class SampleDict(TypedDict):
+    """One reading as the engine hands it to each sink's `reading`."""
+
+    time: float
+    chamber_c: float | None
+    load_c: float | None
+    core_c: float | None
+    setpoint_c: float | None
+    output_pct: float | None
+    step: int
+    step_state: str
+
+
 @dataclass(frozen=True)
 class Event:
     time: float
@@ -148,11 +208,11 @@ class Event:
     kind: str
     message: str
     """Plain words for a person, e.g. 'Holding at 1750 °F for 30 min'."""
-    severity: str = "info"
+    severity: str = Severity.INFO
     detail: Mapping[str, Any] = field(default_factory=dict)
     run_id: int | None = None
 
-    def as_dict(self) -> dict[str, Any]:
+    def as_dict(self) -> EventDict:
         return {
             "time": self.time,
             "kind": self.kind,
@@ -171,8 +231,9 @@ class AlertSink(Protocol):
     def state(self, state: Mapping[str, Any]) -> None:
         """The live status (the same JSON object `tuikiln status --json` prints)."""
 
-    def reading(self, sample: Mapping[str, Any]) -> None:
-        """One sample: time, chamber_c, load_c, setpoint_c, output_pct, step, step_state."""
+    def reading(self, sample: SampleDict) -> None:
+        """One sample: time, chamber_c, load_c, core_c, setpoint_c, output_pct, step,
+        step_state."""
 
     async def start(self) -> None: ...
 

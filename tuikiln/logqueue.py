@@ -98,16 +98,23 @@ class BackgroundWriter:
 
 
 class SpillFile:
-    """Queued sample rows beyond the memory bound, in order, beside the database.
+    """Queued rows beyond the memory bound (samples), or left when a run's process ended
+    with the log still locked or full (samples and events), in order, beside the database.
 
     JSON lines: a first line naming this file (its creation time, so a new spill is never
     mistaken for an older one), then one row a line, appended and synced. `chunks` reads
     them back and says how far each chunk goes ("<name>:<offset>"); the writer commits that
     with the chunk, so a crash while writing the spill back never writes a row twice."""
 
-    def __init__(self, db_path: Path, run_id: int) -> None:
-        self.path = db_path.with_name(f"{db_path.name}.run-{run_id}.spill")
-        self.progress_key = f"spill-progress-{run_id}"
+    SUFFIXES = {"samples": "spill", "events": "events-spill"}
+    """A spill of each kind of row: `runs.sqlite.run-N.spill` holds samples and
+    `runs.sqlite.run-N.events-spill` the events still queued when a run's process ended."""
+
+    def __init__(self, db_path: Path, run_id: int, what: str = "samples") -> None:
+        self.what = what
+        self.path = db_path.with_name(f"{db_path.name}.run-{run_id}.{self.SUFFIXES[what]}")
+        self.progress_key = (f"spill-progress-{run_id}" if what == "samples"
+                             else f"spill-progress-{what}-{run_id}")
         """The meta table's key for how far the spill has been written back."""
 
     def exists(self) -> bool:

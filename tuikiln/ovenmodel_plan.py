@@ -208,6 +208,14 @@ def _load_watch(profile: Profile, limits: Limits | None, units: Units) -> Any:
     return make_load_watch(profile, merged, units)
 
 
+def predict_on_kiln(plan: Plan, model: OvenModel, alarms: Any, units: Units = "C"
+                    ) -> Prediction:
+    """`predict` with the limits a run of this plan on this kiln has: the built-in ones,
+    the kiln file's `alarms` over them, the profile's over those."""
+    limits = Limits().merged(alarms).merged(plan.profile.limits)
+    return predict(plan, model, limits.band, units, limits=limits)
+
+
 def predict(plan: Plan, model: OvenModel, band_c: float, units: Units = "C",
             lining_c: float | None = None, limits: Limits | None = None) -> Prediction:
     """Every step's predicted start and end on this oven, and what it cannot do. The oven

@@ -33,8 +33,10 @@ tuikiln/logqueue.py): its loop only queues rows, so a log another program holds 
 minutes, or a slow fsync, never delays a reading or a setpoint. The queue is bounded
 (MEMORY_QUEUE_ROWS, the engine warns at QUEUE_WARN_FRACTION of it); past the bound the oldest
 samples spill to `runs.sqlite.run-N.spill` and are written back first, so the order holds.
-A spill still there when the run's process ends (CLOSE_WAIT_S) is written by the next
-engine that opens the log. Events and the end are not spilled: the end has its mark.
+When the run's process ends with the log still refusing (CLOSE_WAIT_S), the samples and the
+events still queued go to spill files (`runs.sqlite.run-N.spill`, `.events-spill`), which
+the next engine that opens the log writes back before anything of its own. The end is not
+spilled: it has its mark.
 
 A run's end must survive a disk that is full at that moment: otherwise the run would look
 unfinished and a restart with `on_restart = "continue"` would heat the oven again after an
@@ -45,12 +47,18 @@ blocks are needed, so a full disk takes it), synced, then into the database; onc
 database has it the mark is removed. Recovery reads a mark that is left (`RunLog.end_mark`)
 and ends the run instead of carrying it on.
 
-Reading a week of samples (604,800 rows) row by row through sqlite3 takes over a second in
-Python, so each sample is stored twice: as a row in `samples` (for SQL, exports, other tools)
-and packed into `sample_blocks`, BLOBs of up to BLOCK_ROWS samples in columns (t as float64,
-temperatures and output as float32, step, state and flags as integers), written in the same
-transaction. `samples()` reads the blocks: a few hundred BLOBs and `numpy.frombuffer`. The
-last block is rewritten as it grows, so a live run's reader sees every committed sample.
+Each sample is written once, as a row of `samples`, and kept once. Reading a week of
+samples (604,800 rows) row by row through sqlite3 takes over a second in Python, so once a
+run has BLOCK_ROWS rows past its last block, the commit that crosses that line also packs
+them into one row of `sample_blocks` (a BLOB in columns: t as float64, temperatures and
+output as float32, step, state and flags as integers) and deletes those rows, in the same
+transaction. A block is never rewritten: a commit costs the new rows, not the growing block
+(before, each commit rewrote a block of up to 1,024 rows, some 40 KB a second on an SD card).
+`samples()` reads, in one read transaction, the run's blocks (a few hundred BLOBs and
+`numpy.frombuffer`) and the rows after the last block (fewer than BLOCK_ROWS), so a live
+run's reader sees every committed sample. Logs from before this (every sample a row, and
+the same samples in blocks that grew) read the same way: their rows all lie within the blocks.
+To read samples with SQL alone, `tuikiln export` writes them as CSV.
 
 Sample times `t` and event times are the engine's clock (epoch seconds; simulated time in a
 simulated run); `runs.started` is on the same clock, `runs.wall_started` on the wall clock.
@@ -60,11 +68,13 @@ from __future__ import annotations
 
 import contextlib
 import json
+import logging
+import math
 import os
 import sqlite3
 import threading
 import time
-from collections.abc import Callable, Mapping
+from collections.abc import Callable, Iterator, Mapping
 from dataclasses import dataclass
 from pathlib import Path
 from typing import Any
@@ -73,7 +83,7 @@ import numpy as np
 
 from tuikiln.engine.states import Outcome, RunState
 from tuikiln.errors import UserError
-from tuikiln.events import Event
+from tuikiln.events import Event, Severity
 from tuikiln.logqueue import BackgroundWriter, SpillFile
 from tuikiln.plaintext import plain, plain_tree
 
@@ -345,8 +355,14 @@ class RunLog:
         return None if row is None else _run_info(row)
 
     def sample_count(self, run_id: int) -> int:
-        return int(self._conn.execute("SELECT COUNT(*) FROM samples WHERE run_id = ?",
-                                      (run_id,)).fetchone()[0])
+        with _snapshot(self._conn):
+            packed, sealed_t = self._conn.execute(
+                "SELECT COALESCE(SUM(n), 0), MAX(last_t) FROM sample_blocks WHERE run_id = ?",
+                (run_id,)).fetchone()
+            tail = self._conn.execute(
+                "SELECT COUNT(*) FROM samples WHERE run_id = ? AND t > ?",
+                (run_id, _before_all(sealed_t))).fetchone()[0]
+        return int(packed) + int(tail)
 
     def samples(self, run_id: int, since_t: float | None = None) -> dict[str, np.ndarray]:
         """Samples (after `since_t`, if given) as numpy arrays, one per column; NaN = none.
@@ -354,16 +370,14 @@ class RunLog:
         Temperatures and output come back as float64 (stored as float32: 0.0001 °C steps at
         1000 °C, far below any thermocouple's resolution).
         """
-        where = "run_id = ?"
-        params: list[float] = [run_id]
-        if since_t is not None:
-            where += " AND last_t > ?"
-            params.append(since_t)
-        rows = self._conn.execute(f"SELECT n, data FROM sample_blocks WHERE {where} ORDER BY id",
-                                  params).fetchall()
+        with _snapshot(self._conn):
+            blocks, tail = _blocks_and_tail(self._conn, run_id, since_t)
         parts: dict[str, list[np.ndarray]] = {name: [] for name, _ in _BLOCK_TYPES}
-        for n, data in rows:
+        for n, data in blocks:
             for name, array in _unpack_block(n, data).items():
+                parts[name].append(array)
+        if tail:
+            for name, array in _rows_as_columns(tail).items():
                 parts[name].append(array)
         out: dict[str, np.ndarray] = {}
         for name, kind in _BLOCK_TYPES:
@@ -378,9 +392,21 @@ class RunLog:
 
     def last_sample(self, run_id: int) -> dict[str, Any] | None:
         """The run's newest committed sample (time and readings), or None."""
-        row = self._conn.execute(
-            "SELECT t, chamber_c, load_c, setpoint_c, step, state FROM samples "
-            "WHERE run_id = ? ORDER BY t DESC LIMIT 1", (run_id,)).fetchone()
+        with _snapshot(self._conn):
+            row = self._conn.execute(
+                "SELECT t, chamber_c, load_c, setpoint_c, step, state FROM samples "
+                "WHERE run_id = ? ORDER BY t DESC LIMIT 1", (run_id,)).fetchone()
+            block = self._conn.execute(
+                "SELECT n, data FROM sample_blocks WHERE run_id = ? ORDER BY last_t DESC"
+                " LIMIT 1", (run_id,)).fetchone()
+        if block is not None:
+            columns = _unpack_block(*block)
+            if row is None or columns["t"][-1] > row[0]:
+                def last(name: str) -> Any:
+                    value = columns[name][-1].item()
+                    return None if isinstance(value, float) and math.isnan(value) else value
+                row = tuple(last(name) for name in
+                            ("t", "chamber_c", "load_c", "setpoint_c", "step", "state"))
         if row is None:
             return None
         return {"t": row[0], "chamber_c": row[1], "load_c": row[2], "setpoint_c": row[3],
@@ -454,15 +480,15 @@ class RunLog:
     def _take_in_spills(self, conn: sqlite3.Connection) -> None:
         """Samples an earlier engine left in spill files (the log was locked or full when
         its run ended) are written now, before anything new."""
-        for path in sorted(self.path.parent.glob(f"{self.path.name}.run-*.spill")):
-            try:
-                run_id = int(path.name.rsplit(".run-", 1)[1].split(".")[0])
-            except ValueError:
-                continue
-            late = RunRecorder(conn, run_id)
-            late.spill = SpillFile(self.path, run_id)
-            with contextlib.suppress(sqlite3.Error):
-                late._write_spill_back()
+        for what, suffix in SpillFile.SUFFIXES.items():
+            for path in sorted(self.path.parent.glob(f"{self.path.name}.run-*.{suffix}")):
+                try:
+                    run_id = int(path.name.rsplit(".run-", 1)[1].split(".")[0])
+                except ValueError:
+                    continue
+                late = RunRecorder(conn, run_id)
+                with contextlib.suppress(sqlite3.Error):
+                    late._write_spill_back(SpillFile(self.path, run_id, what))
 
 
 _RUN_FIELDS = ("id, kiln, profile, started, ended, outcome, units, device, speed, watch_only,"
@@ -478,9 +504,53 @@ def _run_info(row: tuple[Any, ...]) -> RunInfo:
         load=json.loads(row[14]) if row[14] else None, pid=row[15])
 
 
+_SAMPLE_FIELDS = ", ".join(SAMPLE_COLUMNS)
+_log = logging.getLogger(__name__)
+
+
+@contextlib.contextmanager
+def _snapshot(conn: sqlite3.Connection) -> Iterator[None]:
+    """One read transaction: the blocks and the rows after them are read as of one commit
+    (a commit that seals a block moves rows between the two)."""
+    if conn.in_transaction:
+        yield
+        return
+    conn.execute("BEGIN")
+    try:
+        yield
+    finally:
+        with contextlib.suppress(sqlite3.Error):
+            conn.execute("COMMIT")
+
+
+def _before_all(sealed_t: float | None) -> float:
+    """The time after which a run's rows are not yet in a block (every time, if none is)."""
+    return -math.inf if sealed_t is None else float(sealed_t)
+
+
+def _blocks_and_tail(conn: sqlite3.Connection, run_id: int, since_t: float | None
+                     ) -> tuple[list[tuple[int, bytes]], list[tuple[Any, ...]]]:
+    """A run's blocks (ending after `since_t`) and its rows after the last block (and after
+    `since_t`), both in time order: read inside one `_snapshot`."""
+    sealed_t = conn.execute("SELECT MAX(last_t) FROM sample_blocks WHERE run_id = ?",
+                            (run_id,)).fetchone()[0]
+    after = _before_all(sealed_t) if since_t is None else max(_before_all(sealed_t), since_t)
+    blocks = conn.execute("SELECT n, data FROM sample_blocks WHERE run_id = ? AND last_t > ?"
+                          " ORDER BY id", (run_id, _before_all(since_t))).fetchall()
+    tail = conn.execute(f"SELECT {_SAMPLE_FIELDS} FROM samples WHERE run_id = ? AND t > ?"
+                        " ORDER BY t, rowid", (run_id, after)).fetchall()
+    return blocks, tail
+
+
+def _rows_as_columns(rows: list[tuple[Any, ...]]) -> dict[str, np.ndarray]:
+    """Rows (SAMPLE_COLUMNS) as a block's columns, rounded as a block stores them: a sample
+    reads the same before and after its block is sealed."""
+    return _unpack_block(len(rows), _pack_block(rows))
+
+
 def _pack_block(rows: list[tuple[Any, ...]]) -> bytes:
-    """Rows as stored in `samples` (run_id first) -> one packed block."""
-    table = np.array([row[1:] for row in rows], dtype=np.float64)  # None -> NaN
+    """Rows (SAMPLE_COLUMNS, in order) -> one packed block."""
+    table = np.array(rows, dtype=np.float64)  # None -> NaN
     chunks = []
     for column, (_, kind) in enumerate(_BLOCK_TYPES):
         values = table[:, column]
@@ -629,6 +699,7 @@ class RunRecorder:
     def __init__(self, conn: sqlite3.Connection, run_id: int, *, batch: int = 250,
                  every_s: float = 1.0, path: Path | None = None) -> None:
         self.conn = conn
+        self.path = path
         self._checkpointer = _WalCheckpointer(path) if path is not None else None
         self._rows_since_checkpoint = 0
         self._resume_point: tuple[float, str] | None = None
@@ -643,9 +714,9 @@ class RunRecorder:
         self._in_hand = 0
         """Samples the writer has taken out of `_samples` for the write it is trying; they
         still wait (a commit to a locked log can take the whole busy timeout)."""
-        self._block: list[tuple[Any, ...]] = []
-        """Rows of the last, still growing block (already written)."""
-        self._block_id: int | None = None
+        self._unsealed: int | None = None
+        """Rows of this run in `samples` not yet packed into a block (None: not counted yet;
+        the first commit counts them, as a resumed run may have left some)."""
         self._events: list[tuple[Any, ...]] = []
         self._end_request: tuple[str, float] | None = None
         self._last_flush = time.monotonic()
@@ -667,6 +738,7 @@ class RunRecorder:
         self.mark = EndMark(path, run_id) if path is not None else None
         """The run's end mark (see EndMark): reserved by RunLog when the run starts."""
         self.spill = SpillFile(path, run_id) if path is not None else None
+        self.event_spill = SpillFile(path, run_id, "events") if path is not None else None
         self._writer: BackgroundWriter | None = None
 
     def write_in_background(self) -> None:
@@ -707,7 +779,7 @@ class RunRecorder:
                json.dumps(plain_tree(dict(event.detail)), default=str))
         with self._lock:
             self._events.append(row)
-        if urgent or event.severity == "critical":
+        if urgent or event.severity == Severity.CRITICAL:
             if self._writer is not None:
                 self._writer.wake()
             else:
@@ -761,7 +833,7 @@ class RunRecorder:
         start = time.monotonic()
         ok = True
         try:
-            self._write_spill_back()
+            self._write_spill_back(self.spill)
             if samples or events or point is not None:
                 self._commit(samples, events, point)
         except sqlite3.Error as exc:
@@ -799,14 +871,15 @@ class RunRecorder:
         return ok
 
     def _commit(self, samples: list[tuple[Any, ...]], events: list[tuple[Any, ...]],
-                point: tuple[float, str] | None, spill_progress: str | None = None) -> None:
+                point: tuple[float, str] | None,
+                spill_progress: tuple[str, str] | None = None) -> None:
         self.conn.execute("BEGIN")
         if samples:
             self.conn.executemany(
                 "INSERT INTO samples (run_id, t, chamber_c, load_c, core_c, setpoint_c,"
                 " output_pct, step, state, flags) VALUES (?, ?, ?, ?, ?, ?, ?, ?, ?, ?)",
                 samples)
-            block, block_id = self._write_blocks(samples)
+            unsealed = self._seal_blocks(len(samples))
         if events:
             self.conn.executemany(
                 "INSERT INTO events (run_id, t, kind, severity, message, detail)"
@@ -814,12 +887,11 @@ class RunRecorder:
         if point is not None:
             self.conn.execute("INSERT OR REPLACE INTO resume_points (run_id, t, data)"
                               " VALUES (?, ?, ?)", (self.run_id, *point))
-        if spill_progress is not None and self.spill is not None:
-            self.conn.execute("INSERT OR REPLACE INTO meta VALUES (?, ?)",
-                              (self.spill.progress_key, spill_progress))
+        if spill_progress is not None:  # (the spill's progress key, how far it got)
+            self.conn.execute("INSERT OR REPLACE INTO meta VALUES (?, ?)", spill_progress)
         self.conn.execute("COMMIT")
         if samples:
-            self._block, self._block_id = block, block_id
+            self._unsealed = unsealed
 
     def _spill_over_bound(self) -> None:
         """Past the memory bound, the oldest queued samples go to the spill file (older
@@ -843,43 +915,72 @@ class RunRecorder:
                 del self._samples[:drop]
                 self.dropped += drop
 
-    def _write_spill_back(self) -> None:
-        """Write the spill file's rows (oldest first), a chunk a transaction, each with how
+    def _left_behind(self) -> str:
+        files = [spill.path.name for spill in (self.spill, self.event_spill)
+                 if spill is not None and spill.exists()]
+        lost = self.pending
+        return ", ".join(files + ([f"{lost} rows could not be kept"] if lost else [])) or "none"
+
+    def _spill_events(self) -> None:
+        """The events still queued into their spill file (at close, the log still refusing);
+        kept in memory, and counted as not written, when the disk refuses that too."""
+        with self._lock:
+            events, self._events = self._events, []
+        if not events:
+            return
+        if self.event_spill is None or not self.event_spill.append(events):
+            with self._lock:
+                self._events[:0] = events
+
+    def _write_spill_back(self, spill: SpillFile | None) -> None:
+        """Write a spill file's rows (oldest first), a chunk a transaction, each with how
         far it got; then remove the file. Raises sqlite3.Error when the log still refuses."""
-        spill = self.spill
         if spill is None or not spill.exists():
             return
         row = self.conn.execute("SELECT value FROM meta WHERE key = ?",
                                 (spill.progress_key,)).fetchone()
+        events = spill.what == "events"
         try:
             for rows, progress in spill.chunks(row[0] if row else None):
-                self._commit(rows, [], None, spill_progress=progress)
-                self.samples_written += len(rows)
+                self._commit([] if events else rows, rows if events else [], None,
+                             spill_progress=(spill.progress_key, progress))
+                if events:
+                    self.events_written += len(rows)
+                else:
+                    self.samples_written += len(rows)
         except (OSError, ValueError, KeyError, TypeError):
             return  # unreadable: left in place for a person; memory goes on being written
         spill.remove()  # a later spill has another name: the progress left here is inert
 
-    def _write_blocks(self, samples: list[tuple[Any, ...]]
-                      ) -> tuple[list[tuple[Any, ...]], int | None]:
-        """Append samples to the growing block; returns the new growing block."""
-        rows = self._block + samples
-        block_id = self._block_id
-        while rows:
-            chunk, rows = rows[:BLOCK_ROWS], rows[BLOCK_ROWS:]
-            values = (chunk[0][1], chunk[-1][1], len(chunk), _pack_block(chunk))
-            if block_id is None:
-                cursor = self.conn.execute(
-                    "INSERT INTO sample_blocks (run_id, first_t, last_t, n, data)"
-                    " VALUES (?, ?, ?, ?, ?)", (self.run_id, *values))
-                block_id = int(cursor.lastrowid or 0)
-            else:
-                self.conn.execute("UPDATE sample_blocks SET first_t = ?, last_t = ?, n = ?,"
-                                  " data = ? WHERE id = ?", (*values, block_id))
-            if len(chunk) == BLOCK_ROWS:
-                block_id = None
-            else:
-                return chunk, block_id
-        return [], None
+    def _seal_blocks(self, added: int) -> int:
+        """Inside the commit that added `added` rows: pack each BLOCK_ROWS of the run's rows
+        past its last block into a new block and delete those rows (module docstring).
+        Returns how many rows are left unsealed. A block ends at a change of time, so rows
+        of one instant never straddle a block's end (readers take rows after `last_t`)."""
+        run = self.run_id
+        sealed_t = self.conn.execute("SELECT MAX(last_t) FROM sample_blocks WHERE run_id = ?",
+                                     (run,)).fetchone()[0]
+        if self._unsealed is None:
+            unsealed = int(self.conn.execute(
+                "SELECT COUNT(*) FROM samples WHERE run_id = ? AND t > ?",
+                (run, _before_all(sealed_t))).fetchone()[0])
+        else:
+            unsealed = self._unsealed + added
+        while unsealed >= BLOCK_ROWS:
+            after = _before_all(sealed_t)
+            last_t = self.conn.execute(
+                "SELECT t FROM samples WHERE run_id = ? AND t > ? ORDER BY t LIMIT 1 OFFSET ?",
+                (run, after, BLOCK_ROWS - 1)).fetchone()[0]
+            span = "run_id = ? AND t > ? AND t <= ?"
+            rows = self.conn.execute(f"SELECT {_SAMPLE_FIELDS} FROM samples WHERE {span}"
+                                     " ORDER BY t, rowid", (run, after, last_t)).fetchall()
+            self.conn.execute("INSERT INTO sample_blocks (run_id, first_t, last_t, n, data)"
+                              " VALUES (?, ?, ?, ?, ?)",
+                              (run, rows[0][0], last_t, len(rows), _pack_block(rows)))
+            self.conn.execute(f"DELETE FROM samples WHERE {span}", (run, after, last_t))
+            unsealed -= len(rows)
+            sealed_t = last_t
+        return unsealed
 
     @property
     def pending(self) -> int:
@@ -933,9 +1034,14 @@ class RunRecorder:
         if self._writer is not None:
             self._take_resume_point()
             ok = self._writer.stop(CLOSE_WAIT_S if wait_s is None else wait_s)
-            if not ok:
+            if not ok:  # what memory holds would die with the process
                 self.queue_bound = 0
-                self._spill_over_bound()  # what memory holds would die with the process
+                self._spill_over_bound()
+                self._spill_events()
+                _log.warning("The run log %s still refused at the end of run %d (%s): what "
+                             "it did not take waits beside it (%s) and is written by the "
+                             "next run that opens the log", self.path or "", self.run_id,
+                             self.trouble or "locked", self._left_behind())
         else:
             ok = self.flush(force=True)
         self._closed = True

@@ -20,7 +20,7 @@ import time
 from pathlib import Path
 
 from tuikiln.drivers.factory import open_device
-from tuikiln.engine.runner import KilnInfo, RunEngine
+from tuikiln.engine.runner import KilnInfo, RunEngine, RunSettings
 from tuikiln.limits import Limits
 from tuikiln.profile import parse_profile
 from tuikiln.runlog import RunLog
@@ -62,8 +62,8 @@ async def _one(quick: bool) -> dict[str, float]:
     with tempfile.TemporaryDirectory() as folder:
         log = RunLog.in_folder(Path(folder))
         async with device:
-            engine = RunEngine(device, profile, kiln=KilnInfo("bench", "C", 1200.0),
-                               limits=Limits(), runlog=log)
+            engine = RunEngine(device, profile, RunSettings(KilnInfo("bench", "C", 1200.0),
+                                                            Limits()), runlog=log)
             wall, cpu = time.perf_counter(), time.process_time()
             outcome = await engine.run()
             wall, cpu = time.perf_counter() - wall, time.process_time() - cpu

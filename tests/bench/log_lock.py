@@ -21,7 +21,7 @@ from collections.abc import Callable
 from pathlib import Path
 
 from tuikiln.drivers.fake import FirstOrderOven, ScriptedDevice
-from tuikiln.engine.runner import KilnInfo, RunEngine
+from tuikiln.engine.runner import KilnInfo, RunEngine, RunSettings
 from tuikiln.limits import Limits
 from tuikiln.profile import parse_profile
 from tuikiln.runlog import RunLog
@@ -79,8 +79,8 @@ async def one_case(folder: Path, lock_s: float, end_inside: bool) -> dict[str, f
     log = RunLog.in_folder(folder)
     device = ScriptedDevice(model=FirstOrderOven(tau_s=60.0), clock=RealTimeClock())  # type: ignore[arg-type]
     engine = RunEngine(device, parse_profile(PROFILE, "bench.toml", max_c=1100.0),
-                       kiln=KilnInfo("Bench oven", "C", 1100.0), limits=Limits(), runlog=log,
-                       tick_s=TICK_S)
+                       RunSettings(KilnInfo("Bench oven", "C", 1100.0), Limits(), tick_s=TICK_S),
+                       runlog=log)
     worst = [0.0]
     stop = asyncio.Event()
     beat = asyncio.create_task(heartbeat(worst, stop))

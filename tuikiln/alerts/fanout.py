@@ -13,10 +13,11 @@ from typing import Any, TextIO
 
 from tuikiln import events as ev
 from tuikiln.engine.states import TERMINAL_BELL
-from tuikiln.events import AlertSink, Event
+from tuikiln.events import AlertSink, Event, Severity
 from tuikiln.plaintext import plain
 
 log = logging.getLogger(__name__)
+TERMINAL_MARK: dict[str, str] = {Severity.CRITICAL: "!!", Severity.WARNING: "! "}
 
 
 
@@ -110,7 +111,7 @@ class TerminalSink(EventsOnlySink):
         if event.kind in self._skip:
             return
         stream = self._stream or sys.stdout
-        mark = {"critical": "!!", "warning": "! "}.get(event.severity, "  ")
+        mark = TERMINAL_MARK.get(event.severity, "  ")
         ring = "\a" if self.bell and event.kind in TERMINAL_BELL else ""
         try:
             stream.write(f"{ring}{self._format_time(event.time)} {mark} {plain(event.message)}\n")

@@ -39,7 +39,7 @@ from tuikiln.alerts.settings import (
     HookSpec,
     fill_placeholders,
 )
-from tuikiln.events import Event
+from tuikiln.events import Event, Severity
 from tuikiln.units import format_temp
 
 log = logging.getLogger(__name__)
@@ -202,7 +202,7 @@ class HookRunner:
         message = f"{job.hook.label}: {words}"
         log.warning("%s", message)
         event = Event(time=self._clock(), kind=ev.ALERT_FAILED, message=message,
-                      severity="warning", detail={"channel": "hook", "hook": job.hook.index,
+                      severity=Severity.WARNING, detail={"channel": "hook", "hook": job.hook.index,
                                                   "words": words},
                       run_id=int(job.values["run"]) if job.values["run"].isdigit() else None)
         if self._emit_callback is not None:

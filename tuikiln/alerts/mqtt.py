@@ -51,7 +51,7 @@ from tuikiln.alerts.discovery import discovery_messages
 from tuikiln.alerts.payloads import state_and_attributes, with_iso_times
 from tuikiln.alerts.remote import Refusal, RemoteCommand, parse_command
 from tuikiln.alerts.settings import MqttSettings, read_password
-from tuikiln.events import Event
+from tuikiln.events import Event, Severity
 
 log = logging.getLogger(__name__)
 
@@ -288,7 +288,8 @@ class MqttPublisher:
         if self._sink_errors == 1:
             log.exception("MQTT publisher could not queue a %s (further errors counted)", what)
 
-    def _emit(self, kind: str, message: str, severity: str = "warning", **detail: Any) -> None:
+    def _emit(self, kind: str, message: str, severity: str = Severity.WARNING,
+              **detail: Any) -> None:
         event = Event(time=self._clock(), kind=kind, message=message, severity=severity,
                       detail=detail, run_id=self._run_id)
         log.warning("%s", message)

@@ -18,6 +18,7 @@ from html import escape
 import numpy as np
 
 from tuikiln.analysis.replay import Replay, clock
+from tuikiln.events import Severity
 from tuikiln.plan import plan_profile
 from tuikiln.thinning import thin
 from tuikiln.units import symbol
@@ -157,7 +158,7 @@ def chart_svg(result: Replay) -> str:
         if not 0.0 <= hours <= end_h:
             continue
         x = float(sx(hours))
-        colour = "#b00020" if alarm.severity == "critical" else "#d97700"
+        colour = "#b00020" if alarm.severity == Severity.CRITICAL else "#d97700"
         words = escape(f"{clock(alarm.raised_t - trace.start_t)} {alarm.words}")
         out.append(f'<g><title>{words}</title><line x1="{x:.1f}" y1="{TOP}" x2="{x:.1f}" '
                    f'y2="{TOP + plot_h}" stroke="{colour}" stroke-dasharray="3 3"/>'

@@ -71,9 +71,8 @@ def _forecast(args: argparse.Namespace, plan: Plan, kiln: Any, units: str) -> Fo
     there is none."""
     from pathlib import Path
 
-    from tuikiln.limits import Limits
     from tuikiln.ovenmodel import OvenModel
-    from tuikiln.ovenmodel_plan import predict, temper_warnings
+    from tuikiln.ovenmodel_plan import predict_on_kiln, temper_warnings
     from tuikiln.ovenmodel_store import model_path, read_model, saved_model
     from tuikiln.runlog import default_data_dir
 
@@ -90,8 +89,7 @@ def _forecast(args: argparse.Namespace, plan: Plan, kiln: Any, units: str) -> Fo
                         f'no oven model for "{kiln.name}": the times of "max" ramps, free '
                         "cools and the waits for the load to even out are unknown (counted as "
                         "nothing); learn the oven from a run with `tuikiln learn RUN --save`")
-    limits = Limits().merged(kiln.alarms).merged(plan.profile.limits)
-    prediction = predict(plan, model, limits.band, units, limits=limits)
+    prediction = predict_on_kiln(plan, model, kiln.alarms, units)
     return Forecast(prediction, str(path), list(prediction.warnings), "")
 
 

@@ -32,10 +32,13 @@ import subprocess
 import sys
 import time
 from pathlib import Path
-from typing import Any
+from typing import TYPE_CHECKING, Any
 
 from tuikiln.errors import UserError
 from tuikiln.units import format_duration, format_temp
+
+if TYPE_CHECKING:
+    from tuikiln.engine.runner import RunSettings
 
 EXIT_COMPLETED = 0
 EXIT_ABORTED = 2
@@ -152,9 +155,12 @@ def run(args: argparse.Namespace) -> int:
             kiln, profile, plan = prepared
             speed = parse_speed(args.speed, kiln.is_simulator)
             if args.headless:
-                return asyncio.run(run_headless(kiln, profile, data_dir, speed=speed,
-                                                auto_continue=args.auto_continue,
-                                                speed_text=args.speed or "", resume=plan))
+                from tuikiln.engine.host import settings_for
+
+                settings = settings_for(kiln, profile, speed=args.speed or "",
+                                        auto_continue=args.auto_continue)
+                return asyncio.run(run_headless(kiln, profile, data_dir, settings, speed=speed,
+                                                resume=plan))
             return start_background(args, kiln, profile, data_dir)
         if args.profile is None:
             print("Nothing to resume: no unfinished run for this kiln "
@@ -165,10 +171,11 @@ def run(args: argparse.Namespace) -> int:
                         "--resume` to carry on an unfinished run)")
     kiln, profile, speed, start_index = _prepare(args)
     if args.headless:
-        return asyncio.run(run_headless(kiln, profile, data_dir, speed=speed,
-                                        start_index=start_index,
-                                        auto_continue=args.auto_continue,
-                                        speed_text=args.speed or ""))
+        from tuikiln.engine.host import settings_for
+
+        settings = settings_for(kiln, profile, start_index=start_index, speed=args.speed or "",
+                                auto_continue=args.auto_continue)
+        return asyncio.run(run_headless(kiln, profile, data_dir, settings, speed=speed))
     return start_background(args, kiln, profile, data_dir)
 
 
@@ -294,19 +301,17 @@ def _announce(active: Any, kiln: Any, profile: Any, log_path: Path,
 # ----- headless -----
 
 
-async def run_headless(kiln: Any, profile: Any, data_dir: Path, *, speed: float | None,
-                       start_index: int = 0, auto_continue: bool = False,
-                       speed_text: str = "", stream: Any = None, resume: Any = None,
-                       watchdog_s: float | None = None) -> int:
+async def run_headless(kiln: Any, profile: Any, data_dir: Path, settings: RunSettings, *,
+                       speed: float | None, stream: Any = None, resume: Any = None) -> int:
+    """The run in this process: `settings` (tuikiln.engine.host.settings_for) are the
+    engine's, `speed` the simulator's (None: the kiln file's)."""
     from tuikiln import control
     from tuikiln.drivers.errors import DeviceError
     from tuikiln.drivers.factory import open_device
     from tuikiln.engine import states as st
     from tuikiln.engine.host import host_engine
-    from tuikiln.limits import Limits
 
     out = stream or sys.stdout
-    limits = Limits().merged(kiln.alarms).merged(profile.limits)
     lock = control.KilnLock(data_dir, kiln.name)
     lock.acquire()
     try:
@@ -333,18 +338,8 @@ async def run_headless(kiln: Any, profile: Any, data_dir: Path, *, speed: float 
                 print("Watching only: this device cannot take a setpoint, so tuikiln follows "
                       "the plan and tells you what the oven should be doing.", file=out,
                       flush=True)
-            def spare_device() -> Any:
-                # The watchdog's separate path to the heat: a second connection.
-                return open_device(kiln.device, kiln.base_dir, speed=speed)
-
-            extra: dict[str, Any] = {}
-            if watchdog_s is not None:
-                extra["watchdog_s"] = watchdog_s
-            engine = host_engine(kiln, profile, device, data_dir, limits=limits, terminal=out,
-                                 start_index=start_index, speed=speed_text,
-                                 auto_continue=auto_continue, resume=resume,
-                                 safe_device=None if kiln.is_simulator else spare_device,
-                                 **extra)
+            engine = host_engine(kiln, profile, device, data_dir, settings, terminal=out,
+                                 resume=resume)
             sinks = engine.sinks
             return await _serve_run(engine, kiln, data_dir, sinks, out, st)
         finally:

@@ -20,7 +20,7 @@ from typing import Any
 from tuikiln import events as ev
 from tuikiln.engine import states as st
 from tuikiln.engine.checks import ALARM_KINDS, CRITICAL, WARNING, Check, judge_all, make_checks
-from tuikiln.events import Event, Said, say
+from tuikiln.events import Event, Said, Severity, say
 from tuikiln.limits import Limits
 from tuikiln.units import Units
 
@@ -80,7 +80,7 @@ def raised_event(now: float, code: str, words: str, said: Said | None = None) ->
 
 def cleared_event(now: float, code: str, acknowledged: bool) -> Event:
     severity, name = ALARMS[code]
-    return Event(now, ev.ALARM_CLEARED, f"Cleared: {name}", "info",
+    return Event(now, ev.ALARM_CLEARED, f"Cleared: {name}", Severity.INFO,
                  {"alarm": code, "severity": severity, "acknowledged": acknowledged})
 
 
@@ -211,7 +211,7 @@ class AlarmRules:
             if (code is None or alarm.code == code) and not alarm.acknowledged:
                 alarm.acknowledged = True
                 out.append(Event(now, ev.ALARM_ACKNOWLEDGED, f"Acknowledged: {alarm.words}",
-                                 "info", {"alarm": alarm.code, "severity": alarm.severity}))
+                                 Severity.INFO, {"alarm": alarm.code, "severity": alarm.severity}))
         return out
 
     def critical(self) -> Alarm | None:

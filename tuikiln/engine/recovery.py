@@ -2,7 +2,7 @@
 
     unfinished = find_unfinished(runlog, kiln.name)        # latest run with no end, dead pid
     plan = plan_resume(runlog, unfinished, kiln.on_restart, now=time.time())
-    engine = RunEngine(device, profile, ..., resume=plan)   # appends to the same run id
+    engine = RunEngine(device, profile, settings, resume=plan)   # appends to the same run
 
 What the engine stores so it can be carried on: with every commit of the run log, the
 stepper's *resume point* (`snapshot`): step index, step state, hold clock, time out of

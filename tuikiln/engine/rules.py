@@ -17,7 +17,7 @@ from tuikiln import events as ev
 from tuikiln.engine import states as st
 from tuikiln.engine.alarms import AlarmRules, Observation
 from tuikiln.engine.stepper import DetectorFactory, Stepper
-from tuikiln.events import Event
+from tuikiln.events import Event, Severity
 from tuikiln.limits import Limits
 from tuikiln.plaintext import plain
 from tuikiln.profile import Profile, Ramp
@@ -243,7 +243,8 @@ class RunRules:
             text = (arg or "").strip()
             if not text:
                 return self._refuse(now, name, source, "a note needs some text")
-            event = Event(now, ev.NOTE, f"Note: {text}", "info", {"text": text, "source": source})
+            event = Event(now, ev.NOTE, f"Note: {text}", Severity.INFO,
+                          {"text": text, "source": source})
             return CommandResult(True, "Note added", [event])
         return self._refuse(now, name, source, f'unknown command "{name}"')
 
@@ -264,11 +265,11 @@ class RunRules:
         return result
 
     def _accept(self, now: float, name: str, source: str, message: str) -> CommandResult:
-        return CommandResult(True, message, [Event(now, ev.COMMAND, message, "info",
+        return CommandResult(True, message, [Event(now, ev.COMMAND, message, Severity.INFO,
                                                    {"name": name, "source": source})])
 
     def _refuse(self, now: float, name: str, source: str, reason: str) -> CommandResult:
         return CommandResult(False, reason, [Event(now, ev.COMMAND_REFUSED,
-                                                   f"Refused {name}: {reason}", "info",
+                                                   f"Refused {name}: {reason}", Severity.INFO,
                                                    {"name": name, "source": source,
                                                     "reason": reason})])

@@ -1,7 +1,13 @@
 """The run loop: read the device, apply the rules, write the setpoint, log, tell the sinks.
 
-    engine = RunEngine(device, profile, kiln=KilnInfo(...), limits=limits, runlog=log)
+    settings = RunSettings(KilnInfo("Shop oven", "C", 1100.0), limits, speed="max")
+    engine = RunEngine(device, profile, settings, runlog=log, sinks=[fanout])
     outcome = await engine.run()          # the device must be connected already
+
+`RunSettings` is what the run is told (the kiln, the alarm limits, the tick, the first step,
+the speed as written, whether pauses answer themselves); `SafetyWiring` (safety.py) is how the
+heat is reached when the loop cannot (the watchdog, a second connection); `resume` carries on
+an unfinished run. tuikiln/engine/host.py builds all of them from a kiln file.
 
 Time comes from `device.clock` (wall time for real ovens, simulated time for the in-process
 simulator), so a simulated day runs in seconds. Every tick: one read, one `RunRules.tick`,
@@ -12,10 +18,12 @@ Anything unexpected inside the loop drives the device safe, records the failure 
 raised again: a bug must never leave an oven heating unattended.
 
 A watchdog task beside the loop watches the wall clock: when a tick has not finished within
-`watchdog_s` (a read that hangs despite the driver's own timeout), it cancels the loop,
-stops heating through a separate path (the same device once the stuck call is cancelled,
-else a fresh connection from `safe_device`) and ends the run (engine-failed, exit 5). It
-cannot help when the event loop itself is blocked by a call that never yields.
+`SafetyWiring.watchdog_s` (a read that hangs despite the driver's own timeout), it cancels
+the loop, stops heating through a separate path (safety.py `stop_heat_separately`: the same
+device once the stuck call is cancelled, else a fresh connection) and ends the run
+(engine-failed, exit 5). It cannot help when the event loop itself is blocked by a call that
+never yields. A run that ended without reaching the controller keeps trying the safe state
+(saferetry.py).
 
 After a restart (`resume=ResumePlan`, see recovery.py) the engine appends to the same run,
 writes a GAP event on its first reading and carries on, holds safe or ends per the kiln
@@ -23,15 +31,13 @@ file's `on_restart`. With every commit the stepper's resume point goes into the 
 
 A controller that rebooted comes back with its own setpoint and often stopped: when it
 reports another setpoint than ours, or "not running" while the run wants heat, the engine
-arms it again (stop, then setpoint and run written afresh) and says so.
+arms it again (stop, then setpoint and run written afresh) and says so (setpoint.py).
 """
 
 from __future__ import annotations
 
 import asyncio
-import contextlib
 import logging
-import math
 import sqlite3
 import time
 from collections.abc import Callable
@@ -41,14 +47,23 @@ from typing import Any
 
 from tuikiln import events as ev
 from tuikiln.drivers.base import Device, Reading
-from tuikiln.drivers.errors import DeviceError, NotSupported, SensorFault
+from tuikiln.drivers.errors import DeviceError, SensorFault
 from tuikiln.engine import recovery
 from tuikiln.engine import states as st
 from tuikiln.engine.recovery import ResumePlan
 from tuikiln.engine.rules import REMOTE_SOURCES, CommandResult, Decision, RunRules, TickInput
-from tuikiln.engine.safety import SafeResult, drive_safe
+from tuikiln.engine.saferetry import RETRY_WORDS, SafeRetry
+from tuikiln.engine.safety import (
+    DEFAULT_SAFETY,
+    WATCHDOG_S,
+    SafeResult,
+    SafetyWiring,
+    drive_safe,
+    stop_heat_separately,
+)
+from tuikiln.engine.setpoint import SetpointKeeper
 from tuikiln.engine.states import RestartPolicy
-from tuikiln.engine.status import LastReading, Status, build_status, safe_state
+from tuikiln.engine.status import LastReading, RunFacts, Status, build_status
 from tuikiln.errors import UserError
 from tuikiln.events import Event
 from tuikiln.limits import Limits
@@ -60,18 +75,7 @@ from tuikiln.units import format_duration, format_temp
 log = logging.getLogger(__name__)
 
 STATUS_EVERY_WALL_S = 1.0
-REWRITE_AFTER_S = 5.0      # a moving setpoint is written at most this often ...
-REWRITE_STEP_C = 1.0       # ... unless it moved at least this much
-DEVICE_DRIFT_C = 1.0       # the device holds another setpoint than ours: write it again
-DRIFT_TICKS = 3            # ... after this many readings in a row (a write may be in flight)
-REARM_SPACING_S = 60.0     # a second re-arm waits this long after the first, the next twice as
-REARM_SPACING_MAX_S = 1800.0  # ... long, up to this: a controller that never agrees (a map
-                              # reading another register) is not stopped and started for ever
-STOPPED_TICKS = 2          # readings of "not running" in a row before the controller is re-armed
-WATCHDOG_S = 30.0          # a tick unfinished this long (wall time): the loop is stalled
-SAFE_PATH_TIMEOUT_S = 10.0  # the watchdog's own attempt to stop the heat, per path
 SUSPENDED = "suspended"     # not an outcome in the log: the run stays unfinished, to resume
-SAFE_RETRY_MAX_S = 30.0     # after a run ended unable to stop the heat: retry at least this often
 COMMIT_EVERY_S = 0.5       # the run log commits at least this often: a one-second tick commits
                            # every tick, so a kill loses at most the tick under way
 
@@ -85,10 +89,29 @@ class CannotLog(UserError):
 
 @dataclass(frozen=True)
 class KilnInfo:
+    """The oven as the run log and the status name it."""
+
     name: str
     units: str = "C"
     max_c: float | None = None
     text: str = ""
+    """The kiln file as written, kept with the run."""
+
+
+@dataclass(frozen=True)
+class RunSettings:
+    """What a run is told besides its device and its profile."""
+
+    kiln: KilnInfo
+    limits: Limits
+    tick_s: float = 1.0
+    """A reading every this many seconds of the device's clock."""
+    start_index: int = 0
+    """The profile's step to begin with (0: the first)."""
+    speed: str = ""
+    """The simulator's speed as the person wrote it, for the run log ("" at real time)."""
+    auto_continue: bool = False
+    """A pause step that waits for a person is answered at once (demos, trials)."""
 
 
 Listener = Callable[[str, dict[str, Any]], None]
@@ -96,38 +119,28 @@ Listener = Callable[[str, dict[str, Any]], None]
 
 
 class RunEngine:
-    def __init__(
-        self,
-        device: Device,
-        profile: Profile,
-        *,
-        kiln: KilnInfo,
-        limits: Limits,
-        runlog: RunLog | None = None,
-        sinks: list[Any] | None = None,
-        tick_s: float = 1.0,
-        start_index: int = 0,
-        speed: str = "",
-        auto_continue: bool = False,
-        resume: ResumePlan | None = None,
-        watchdog_s: float | None = WATCHDOG_S,
-        safe_device: Callable[[], Device] | None = None,
-    ) -> None:
+    def __init__(self, device: Device, profile: Profile, settings: RunSettings, *,
+                 runlog: RunLog | None = None, sinks: list[Any] | None = None,
+                 resume: ResumePlan | None = None, safety: SafetyWiring = DEFAULT_SAFETY,
+                 ) -> None:
+        """`runlog`: where the run is recorded (None: nowhere); `sinks`: the alert fan-out
+        (tuikiln.events.AlertSink); `resume`: carry on this unfinished run (recovery.py)."""
         self.device = device
         self.clock = device.clock
         self.profile = profile
-        self.kiln = kiln
-        self.limits = limits
-        self.tick_s = tick_s
+        self.settings = settings
+        self.kiln = settings.kiln
         self.watch_only = not device.capabilities.can_write_setpoint
-        self.rules = RunRules(profile, limits, max_c=kiln.max_c, units=kiln.units,
-                              start_index=start_index)
+        self.rules = RunRules(profile, settings.limits, max_c=self.kiln.max_c,
+                              units=self.kiln.units, start_index=settings.start_index)
         self.runlog = runlog
         self.recorder: RunRecorder | None = None
         self.sinks = list(sinks or [])
         self.listeners: list[Listener] = []
-        self.speed = speed
-        self.auto_continue = auto_continue
+        self.safety = safety
+        self.setpoint = SetpointKeeper(device, self.kiln.units, self._emit)
+        self.safe_retry = SafeRetry(device, self._emit, self._publish_now,
+                                    timeout_s=safety.path_timeout_s)
         self.last = LastReading()
         self._sensor_fault = False
         self.started = 0.0
@@ -135,11 +148,6 @@ class RunEngine:
         self.outcome: str | None = None
         self.end_words = ""
         self._stop_request: tuple[str, str] | None = None
-        self._requested_c: float | None = None
-        """The setpoint last handed to the driver; its write guard may still hold it back,
-        so the device is held against `device.written_setpoint_c`, never against this."""
-        self._written_at = -math.inf
-        self._drift_ticks = 0
         self._status_at = 0.0
         self._log_trouble = False
         self._log_queue_near = False
@@ -150,22 +158,19 @@ class RunEngine:
         self._resume_pending = resume is not None
         self.held_for_restart = False
         """Hold safe after a restart: heat off, clocks stopped, until `resume` or `ack`."""
-        self._stopped_ticks = 0
-        self._rearm = False
-        self.rearms = 0
-        self._rearm_spacing = REARM_SPACING_S
-        self._rearm_not_before = -math.inf
-        self.watchdog_s = watchdog_s
-        self.safe_device = safe_device
         self._tick_began: float | None = None
         self._stalled = False
         self._suspend_request: str | None = None
-        self._stop_asks = 0  # signals and stop requests so far: a new one ends the safe retries
-        self.safe_pending = False
+
+    @property
+    def rearms(self) -> int:
+        """How often the controller was armed again (it rebooted, or was changed by hand)."""
+        return self.setpoint.rearms
+
+    @property
+    def safe_pending(self) -> bool:
         """The run has ended but the heat could not be turned off: retrying until it is."""
-        self.safe_attempts = 0  # tries at the safe state since the run ended unable to
-        self._safe_since: float | None = None  # ... reach the controller, and since when
-        self._stop_asked: asyncio.Event | None = None  # wakes the retrying at a stop request
+        return self.safe_retry.pending
 
     # ----- outside -----
 
@@ -173,7 +178,7 @@ class RunEngine:
         """Apply a person's command at once; returns {"ok", "message"}."""
         now = self.clock.now()
         if self.safe_pending and name in ("abort", "stop"):
-            return self._abort_safe_retry(name, source)
+            return self.safe_retry.command(name, source)
         if self.held_for_restart:
             held = self._command_while_held(now, name, arg, source)
             if held is not None:
@@ -187,7 +192,7 @@ class RunEngine:
 
     def request_stop(self, outcome: str, reason: str) -> None:
         """From a signal handler: stop at the next tick, driving the device safe."""
-        self._ask_stop()
+        self.safe_retry.ask_stop()
         if self._stop_request is None:
             self._stop_request = (outcome, reason)
 
@@ -195,35 +200,15 @@ class RunEngine:
         """From a service manager's SIGTERM (a reboot, `systemctl stop`): drive the device
         safe at the next tick and leave the run unfinished, to be carried on (per the kiln
         file's on_restart) when the engine starts again."""
-        self._ask_stop()
+        self.safe_retry.ask_stop()
         if self._suspend_request is None and self._stop_request is None:
             self._suspend_request = reason
 
-    def _ask_stop(self) -> None:
-        self._stop_asks += 1
-        if self._stop_asked is not None:
-            self._stop_asked.set()
-
-    def _abort_safe_retry(self, name: str, source: str) -> dict:
-        """`abort` after a run that ended unable to turn the heat off: a local one ends the
-        trying (as Ctrl-C does) and says to switch off by hand; a remote one cannot, since
-        giving up on the safe state never makes the oven safer."""
-        if source in REMOTE_SOURCES:
-            message = (f"Refused {name} from {source}: the run has ended and tuikiln keeps "
-                       "trying to turn the heat off; only a local abort ends that")
-            self._emit(Event(self.clock.now(), ev.COMMAND_REFUSED, message, "warning",
-                             {"command": name, "source": source}))
-            return {"ok": False, "message": message}
-        self._ask_stop()
-        return {"ok": True, "message": STOPPED_TRYING_WORDS}
-
     def status(self) -> Status:
         now = self.clock.now()
-        safe = (safe_state(self._safe_since, self.safe_attempts, now)
-                if self.safe_pending and self._safe_since is not None else None)
-        return build_status(self.rules, run_id=self.run_id, kiln=self.kiln.name,
-                            now=now, started=self.started, last=self.last,
-                            watch_only=self.watch_only, forecast=self.forecast, safe=safe)
+        facts = RunFacts(self.run_id, self.kiln.name, self.started, self.watch_only)
+        return build_status(self.rules, facts, now=now, last=self.last,
+                            forecast=self.forecast, safe=self.safe_retry.state(now))
 
     # ----- the run -----
 
@@ -238,7 +223,7 @@ class RunEngine:
             raise await self._cannot_log(exc) from exc
         loop_task = asyncio.create_task(self._loop())
         watchdog = (asyncio.create_task(self._watchdog(loop_task))
-                    if self.watchdog_s else None)
+                    if self.safety.watchdog_s else None)
         try:
             try:
                 await loop_task
@@ -316,13 +301,13 @@ class RunEngine:
                 kiln=self.kiln.name, profile=p.name, started=self.started,
                 profile_path=p.path, profile_text=p.source, kiln_text=self.kiln.text,
                 load=load, units=self.kiln.units, device=self.device.description,
-                speed=self.speed, watch_only=self.watch_only))
+                speed=self.settings.speed, watch_only=self.watch_only))
         watch = " (watching only: this device cannot take a setpoint)" if self.watch_only else ""
         self._emit(Event(self.started, ev.RUN_START, f"Run started: {self.profile.name} on "
                          f"{self.kiln.name}{watch}", "info",
                          {"profile": self.profile.name, "kiln": self.kiln.name,
                           "device": self.device.description, "watch_only": self.watch_only,
-                          "speed": self.speed}))
+                          "speed": self.settings.speed}))
 
     async def _loop(self) -> None:
         next_t = self.clock.now()
@@ -347,7 +332,7 @@ class RunEngine:
                 await self._suspend(self._suspend_request)
                 return
             self._emit_all(decision.events)
-            if self.rules.stepper.waiting_for_operator and self.auto_continue:
+            if self.rules.stepper.waiting_for_operator and self.settings.auto_continue:
                 self._emit_all(self.rules.command(now, "ack", None, "auto-continue").events)
             self._sample(now, decision.setpoint_c, decision.heat_off)
             if self.recorder is not None:
@@ -360,7 +345,7 @@ class RunEngine:
                     await self._complete(outcome)
                 if self.safe_pending:
                     self._tick_began = None  # no tick under way: the watchdog stands by
-                    await self._keep_trying_safe(now)
+                    await self.safe_retry.keep_trying(now, self.settings.tick_s)
                 return
             if (decision.setpoint_c is not None and not self.watch_only
                     and not self.held_for_restart):
@@ -369,9 +354,9 @@ class RunEngine:
             self._publish_status()
             self.ticks += 1
             self._tick_began = None
-            next_t += self.tick_s
+            next_t += self.settings.tick_s
             delay = next_t - self.clock.now()
-            if delay < -10 * self.tick_s:
+            if delay < -10 * self.settings.tick_s:
                 next_t = self.clock.now()  # far behind (a suspended laptop): do not race
                 delay = 0.0
             await self.clock.sleep(max(0.0, delay))
@@ -398,7 +383,8 @@ class RunEngine:
             self.last.chamber_c = chamber
             self.last.load_c = reading.load_c
             self.last.output_pct = reading.output_pct
-            self._watch_device_setpoint(now, reading, sent_c)
+            self.setpoint.watch(now, reading, sent_c, heat_off=self.rules.stepper.heat_off,
+                                held=self.held_for_restart)
         else:
             chamber = None
             self.last.chamber_c = None
@@ -407,75 +393,11 @@ class RunEngine:
                          output_pct=None if reading is None else reading.output_pct,
                          link_ok=link_ok, sensor_fault=sensor_fault)
 
-    def _watch_device_setpoint(self, now: float, reading: Reading,
-                                sent_c: float | None) -> None:
-        """A controller that rebooted or was changed by hand holds another setpoint than the
-        one it was last really sent, or has stopped its output: arm it again on this tick's
-        write. A write the driver held back is not one the controller should hold."""
-        if self._requested_c is None or self.held_for_restart:
-            self._drift_ticks = self._stopped_ticks = 0
-            return
-        if (reading.setpoint_c is not None and sent_c is not None
-                and abs(reading.setpoint_c - sent_c) > DEVICE_DRIFT_C):
-            self._drift_ticks += 1
-        else:
-            self._drift_ticks = 0
-        wants_heat = self._requested_c > 0.0 and not self.rules.stepper.heat_off
-        if reading.running is False and wants_heat:
-            self._stopped_ticks += 1
-        else:
-            self._stopped_ticks = 0
-        if ((self._drift_ticks >= DRIFT_TICKS or self._stopped_ticks >= STOPPED_TICKS)
-                and now >= self._rearm_not_before):
-            self._rearm = True
-            self._drift_ticks = self._stopped_ticks = 0
-
     async def _write(self, now: float, setpoint_c: float) -> None:
-        if self._rearm:
-            await self._rearm_device(now, setpoint_c)
-            return
-        resolution = self.device.capabilities.setpoint_resolution_c
-        last = self._requested_c
-        if last is not None:
-            change = abs(setpoint_c - last)
-            if change < resolution * 0.5:
-                return
-            if change < REWRITE_STEP_C and now - self._written_at < REWRITE_AFTER_S:
-                return
-        try:
-            await self.device.write_setpoint(setpoint_c)
-        except NotSupported:
+        if not await self.setpoint.write(now, setpoint_c):
             self.watch_only = True
             self._emit(Event(now, ev.DEVICE, "The device refused a setpoint: watching only from "
                              "now on", "warning", {"words": "setpoint not supported"}))
-            return
-        except DeviceError:
-            return  # the next tick tries again; lost links are the alarms' business
-        self._requested_c = setpoint_c
-        self._written_at = now
-
-    async def _rearm_device(self, now: float, setpoint_c: float) -> None:
-        """Stop, then setpoint and run afresh: a driver that wrote "run" once writes it
-        again after a stop, so a controller that came back stopped starts again."""
-        device = self.device
-        held = "another setpoint" if self._requested_c is None else (
-            f"another setpoint or stopped (ours {format_temp(self._requested_c, self.kiln.units)})")
-        try:
-            if device.capabilities.can_stop_heating:
-                await device.stop_heating()
-            await device.write_setpoint(setpoint_c)
-        except DeviceError:
-            return  # the next tick tries again
-        self._rearm = False
-        self.rearms += 1
-        self._rearm_not_before = now + self._rearm_spacing
-        self._rearm_spacing = min(self._rearm_spacing * 2.0, REARM_SPACING_MAX_S)
-        self._requested_c = setpoint_c
-        self._written_at = now
-        self._emit(Event(now, ev.DEVICE, f"The controller held {held}: it may have rebooted. "
-                         f"Setpoint {format_temp(setpoint_c, self.kiln.units)} and run written "
-                         "again", "warning", {"words": "controller re-armed",
-                                              "setpoint_c": setpoint_c}))
 
     def _sample(self, now: float, setpoint_c: float | None, heat_off: bool) -> None:
         if self.recorder is None and not self.sinks:
@@ -538,7 +460,7 @@ class RunEngine:
         words = "heat off"
         if not self.watch_only:
             result = await drive_safe(self.device)
-            self.safe_pending = result.unreached and not result.done
+            self.safe_retry.pending = result.unreached and not result.done
             words = "heat off" if result.done else result.words + (
                 RETRY_WORDS if self.safe_pending else "")
         self._end(now, outcome, f"Run complete: every step is done; {words}")
@@ -555,7 +477,7 @@ class RunEngine:
         else:
             result_words, done = result.words, result.done
             if not done and result.unreached:
-                self.safe_pending = True
+                self.safe_retry.pending = True
                 result_words += RETRY_WORDS
         self._emit(Event(now, ev.SAFE_STATE, f"Safe state: {reason}; {result_words}",
                          "critical" if not done or outcome != st.ABORTED else "warning",
@@ -570,58 +492,6 @@ class RunEngine:
         if self.recorder is not None:
             self.recorder.end(outcome, now)
         self._publish_status(force=True)
-
-    async def _keep_trying_safe(self, since: float) -> None:
-        """The run has ended without reaching the controller (a lost link): keep trying the
-        safe state, so that an oven whose link comes back is not left heating. A new stop
-        request (a signal, Ctrl-C) ends the trying; the person was told to switch off."""
-        asks = self._stop_asks
-        self._stop_asked = asyncio.Event()
-        self._safe_since = since
-        self.safe_attempts = 1  # the try at the run's end
-        self._publish_status(force=True)
-        wait = max(self.tick_s, 0.1)
-        while self._stop_asks == asks:
-            await self._sleep_unless_stopped(wait)
-            wait = min(wait * 2.0, SAFE_RETRY_MAX_S)
-            if self._stop_asks != asks:
-                break
-            self.safe_attempts += 1
-            try:
-                result = await asyncio.wait_for(drive_safe(self.device, attempts=1),
-                                                SAFE_PATH_TIMEOUT_S)
-            except TimeoutError:
-                self._publish_status(force=True)
-                continue
-            if not result.done:
-                self._publish_status(force=True)  # the attempts and the time since, over MQTT
-            if result.done:
-                self.safe_pending = False
-                now = self.clock.now()
-                self._emit(Event(now, ev.SAFE_STATE, "The controller answers again: "
-                                 f"{result.words}, {format_duration(now - since)} after the run "
-                                 "ended", "warning",
-                                 {"reason": "link back", "done": True, "words": result.words,
-                                  "after_end": True}))
-                self._publish_status(force=True)
-                return
-        self.safe_pending = False
-        self._emit(Event(self.clock.now(), ev.SAFE_STATE, STOPPED_TRYING_WORDS,
-                         "critical", {"reason": "stopped trying", "done": False,
-                                      "words": "not reached", "after_end": True,
-                                      "attempts": self.safe_attempts}))
-        self._publish_status(force=True)
-
-    async def _sleep_unless_stopped(self, seconds: float) -> None:
-        """The retry's wait (up to SAFE_RETRY_MAX_S), cut short by a stop request."""
-        assert self._stop_asked is not None
-        nap = asyncio.ensure_future(self.clock.sleep(seconds))
-        stop = asyncio.ensure_future(self._stop_asked.wait())
-        try:
-            await asyncio.wait({nap, stop}, return_when=asyncio.FIRST_COMPLETED)
-        finally:
-            nap.cancel()
-            stop.cancel()
 
     async def _suspend(self, reason: str) -> None:
         result = await drive_safe(self.device) if not self.watch_only else None
@@ -701,7 +571,7 @@ class RunEngine:
         assert plan is not None
         self.held_for_restart = False
         words = recovery.restore_stepper(self.rules.stepper, plan, now, self.last.chamber_c)
-        self._requested_c = None  # write the setpoint (and run) afresh on the next tick
+        self.setpoint.forget()  # write the setpoint (and run) afresh on the next tick
         message = f"Carrying on after the restart: {words}"
         events = [Event(now, ev.COMMAND, message, "info", {"name": name, "source": source})]
         events.extend(self.rules.alarms.set_condition("paused-too-long", False, now))
@@ -710,7 +580,7 @@ class RunEngine:
     # ----- the watchdog -----
 
     async def _watchdog(self, loop_task: asyncio.Task[None]) -> None:
-        limit = float(self.watchdog_s or WATCHDOG_S)
+        limit = float(self.safety.watchdog_s or WATCHDOG_S)
         every = min(1.0, limit / 4.0)
         while not loop_task.done():
             await asyncio.sleep(every)
@@ -722,7 +592,7 @@ class RunEngine:
                 return
 
     async def _end_stalled(self) -> None:
-        limit = float(self.watchdog_s or WATCHDOG_S)
+        limit = float(self.safety.watchdog_s or WATCHDOG_S)
         reason = (f"the device loop stalled: no tick finished within {limit:g} s "
                   "(a device call that hangs)")
         now = self.clock.now()
@@ -731,34 +601,9 @@ class RunEngine:
         await self._safe_and_end(st.ENGINE_FAILED, reason, result)
 
     async def _stop_heat_separately(self) -> SafeResult:
-        """The stuck call is cancelled: try the same device once, then a fresh connection."""
         if self.watch_only:
             return SafeResult(False, "watching only")
-        try:
-            first = await asyncio.wait_for(drive_safe(self.device, attempts=1),
-                                           SAFE_PATH_TIMEOUT_S)
-            if first.done:
-                return first
-        except TimeoutError:
-            first = SafeResult(False, "the device did not answer the stop")
-        if self.safe_device is None:
-            return first
-        spare: Device | None = None
-        try:
-            spare = self.safe_device()
-            await asyncio.wait_for(spare.connect(), SAFE_PATH_TIMEOUT_S)
-            result = await asyncio.wait_for(drive_safe(spare), SAFE_PATH_TIMEOUT_S * 3)
-            if result.done:
-                return SafeResult(True, f"{result.words} (through a second connection)")
-            return result
-        except (TimeoutError, DeviceError) as exc:
-            return SafeResult(False, f"could not reach the controller through a second "
-                              f"connection either ({exc or type(exc).__name__}). Switch the "
-                              "oven off by hand now")
-        finally:
-            if spare is not None:
-                with contextlib.suppress(Exception):
-                    await spare.close()
+        return await stop_heat_separately(self.device, self.safety)
 
     # ----- telling the world -----
 
@@ -797,12 +642,9 @@ class RunEngine:
         for listener in list(self.listeners):
             _safe_call(listener, "status", status)
 
+    def _publish_now(self) -> None:
+        self._publish_status(force=True)
 
-STOPPED_TRYING_WORDS = ("Stopped trying to turn the heat off: the oven may still be heating. "
-                        "Switch it off by hand now")
-
-RETRY_WORDS = ("; tuikiln keeps trying to turn it off while it runs, and says so when the "
-               "controller answers")
 
 _URGENT = frozenset({ev.ALARM_RAISED, ev.SAFE_STATE, ev.RUN_END, ev.OPERATOR_NEEDED,
                      ev.RUN_START})

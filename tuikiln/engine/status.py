@@ -18,6 +18,7 @@ from typing import Any, TypedDict
 
 from tuikiln.engine.rules import RunRules
 from tuikiln.engine.states import RunState, StepState
+from tuikiln.events import Severity
 from tuikiln.ovenmodel_plan import LiveForecast
 from tuikiln.plan import step_duration_s
 from tuikiln.profile import Cool, Pause, Ramp
@@ -52,7 +53,7 @@ SAFE_RETRY_WORDS = ("the run has ended but the controller has not yet confirmed 
 
 
 def safe_state(since: float, attempts: int, now: float) -> SafeState:
-    return {"state": SAFE_RETRYING, "severity": "critical", "since": since,
+    return {"state": SAFE_RETRYING, "severity": Severity.CRITICAL, "since": since,
             "since_s": _round(max(0.0, now - since), 1) or 0.0, "attempts": attempts,
             "words": SAFE_RETRY_WORDS}
 
@@ -98,6 +99,16 @@ class LastReading:
     load_c: float | None = None
     core_c: float | None = None
     output_pct: float | None = None
+
+
+@dataclass(frozen=True)
+class RunFacts:
+    """What the status says about the run that its rules do not know."""
+
+    run_id: int | None
+    kiln: str
+    started: float
+    watch_only: bool
 
 
 def _round(value: float | None, digits: int = 2) -> float | None:
@@ -159,24 +170,14 @@ def remaining_plan_s(rules: RunRules, forecast: LiveForecast | None = None
     return left, to_operator, to_end
 
 
-def build_status(
-    rules: RunRules,
-    *,
-    run_id: int | None,
-    kiln: str,
-    now: float,
-    started: float,
-    last: LastReading,
-    watch_only: bool,
-    forecast: LiveForecast | None = None,
-    safe: SafeState | None = None,
-) -> Status:
+def build_status(rules: RunRules, facts: RunFacts, *, now: float, last: LastReading,
+                 forecast: LiveForecast | None = None, safe: SafeState | None = None) -> Status:
     s = rules.stepper
     step = s.step
     to_next, to_operator, to_end = remaining_plan_s(rules, forecast)
     return {
-        "run": run_id,
-        "kiln": kiln,
+        "run": facts.run_id,
+        "kiln": facts.kiln,
         "profile": rules.profile.name,
         "units": rules.units,
         "state": rules.run_state,
@@ -197,7 +198,7 @@ def build_status(
         "time_to_end_s": _round(to_end, 0),
         "alarms": rules.alarms.as_list(),
         "time": now,
-        "started": started,
-        "watch_only": watch_only,
+        "started": facts.started,
+        "watch_only": facts.watch_only,
         "safe_state": safe,
     }

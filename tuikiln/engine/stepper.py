@@ -38,7 +38,7 @@ from typing import Any
 
 from tuikiln import events as ev
 from tuikiln.engine import states as st
-from tuikiln.events import Event, Said, literal, say
+from tuikiln.events import Event, Said, Severity, literal, say
 from tuikiln.limits import Limits
 from tuikiln.profile import Cool, Hold, Pause, Profile, Ramp, Step, describe_step_said
 from tuikiln.units import ROOM_C, Units, format_duration
@@ -87,7 +87,7 @@ def step_start_event(now: float, steps: tuple[Step, ...], index: int, units: Uni
     said = describe_step_said(step)
     label = f" ({step.label})" if step.label else ""
     message = said.after(f"Step {index + 1} of {len(steps)}{label}: ")
-    return Event(now, ev.STEP_START, message.text(units), "info",
+    return Event(now, ev.STEP_START, message.text(units), Severity.INFO,
                  {"index": index, "kind": step.kind, "description": said.text(units),
                   "label": step.label, **message.as_detail()})
 
@@ -105,7 +105,7 @@ def step_end_event(now: float, steps: tuple[Step, ...], index: int, started_at: 
         if out_of_band_s >= 1.0:
             extra = f" ({format_duration(out_of_band_s)} out of the band)"
     how = "skipped" if skipped else "done"
-    return Event(now, ev.STEP_END, f"Step {index + 1} {how}{extra}", "info", detail)
+    return Event(now, ev.STEP_END, f"Step {index + 1} {how}{extra}", Severity.INFO, detail)
 
 
 class Stepper:
@@ -241,7 +241,7 @@ class Stepper:
 
     # ----- inside -----
 
-    def _emit(self, now: float, event_kind: str, message: str, severity: str = "info",
+    def _emit(self, now: float, event_kind: str, message: str, severity: str = Severity.INFO,
               **detail: Any) -> None:
         self._pending.append(Event(now, event_kind, message, severity, detail))
 
@@ -325,7 +325,7 @@ class Stepper:
         step = self.step
         assert isinstance(step, Pause)
         again = "" if first else "Reminder: "
-        self._emit(now, ev.OPERATOR_NEEDED, f"{again}{step.message}", "warning",
+        self._emit(now, ev.OPERATOR_NEEDED, f"{again}{step.message}", Severity.WARNING,
                    index=self.index, text=step.message, reminder=not first)
         self.next_reminder_at = now + self.limits.pause_remind
 

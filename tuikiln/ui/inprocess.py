@@ -14,10 +14,9 @@ from pathlib import Path
 from typing import Any
 
 from tuikiln.drivers.factory import open_device
-from tuikiln.engine.host import host_engine
+from tuikiln.engine.host import host_engine, settings_for
 from tuikiln.engine.runner import RunEngine
 from tuikiln.kiln import Kiln
-from tuikiln.limits import Limits
 from tuikiln.profile import Profile
 
 
@@ -44,10 +43,9 @@ def build_engine(kiln: Kiln, profile: Profile, data_dir: Path, speed: float | No
     with `alerts`, the kiln file's MQTT, hooks and channels (no terminal lines: the screen is
     the terminal). Start and stop `engine.sinks`."""
     device = open_device(kiln.device, kiln.base_dir, speed=speed)
-    limits = Limits().merged(kiln.alarms).merged(profile.limits)
     shown = "max" if speed is None else f"{speed:g}"
-    return host_engine(kiln, profile, device, data_dir, limits=limits, terminal=None,
-                       alerts=alerts, speed=shown, tick_s=tick_s)
+    settings = settings_for(kiln, profile, tick_s=tick_s, speed=shown)
+    return host_engine(kiln, profile, device, data_dir, settings, terminal=None, alerts=alerts)
 
 
 async def run_engine(engine: RunEngine) -> str:

@@ -10,7 +10,7 @@ from collections.abc import Mapping
 from typing import Any
 
 from tuikiln.engine.states import RunState, StepState
-from tuikiln.events import said_text
+from tuikiln.events import Severity, said_text
 from tuikiln.plan import Plan
 from tuikiln.profile import Cool, Hold, Pause, Ramp
 from tuikiln.ui.runfeed import finite
@@ -112,8 +112,8 @@ def times_ahead(status: Mapping[str, Any]) -> list[tuple[str, str]]:
 
 def alarm_line(alarm: Mapping[str, Any], units: Units) -> str:
     """One alarm, readable without colour: a symbol, its severity in capitals, the words."""
-    severity = str(alarm.get("severity", "warning"))
-    symbol = "✖" if severity == "critical" else "▲"
+    severity = str(alarm.get("severity", Severity.WARNING))
+    symbol = "✖" if severity == Severity.CRITICAL else "▲"
     seen = "seen" if alarm.get("acknowledged") else f"press {ACK_KEY} to acknowledge"
     words = said_text(alarm, units) or str(alarm.get("words", alarm.get("code", "alarm")))
     return f"{symbol} {severity.upper()} ALARM: {words}  ({seen})"

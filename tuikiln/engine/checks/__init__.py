@@ -19,14 +19,15 @@ import importlib
 import pkgutil
 from typing import TYPE_CHECKING, ClassVar
 
+from tuikiln.events import Severity
 from tuikiln.units import Units, delta_from_c, format_temp, symbol
 
 if TYPE_CHECKING:
     from tuikiln.engine.alarms import AlarmRules, Observation
     from tuikiln.limits import Limits
 
-WARNING = "warning"
-CRITICAL = "critical"
+WARNING = Severity.WARNING
+CRITICAL = Severity.CRITICAL
 
 ALARM_KINDS: dict[str, tuple[str, str]] = {}
 """code -> (severity, short name): every alarm, built-in and registered."""

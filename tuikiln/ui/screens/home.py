@@ -18,8 +18,7 @@ from textual.widgets import DataTable, Static
 from tuikiln.control import ActiveRun
 from tuikiln.engine.states import Outcome, RunState
 from tuikiln.errors import UserError
-from tuikiln.limits import Limits
-from tuikiln.ovenmodel_plan import predict
+from tuikiln.ovenmodel_plan import predict_on_kiln
 from tuikiln.ovenmodel_store import quiet_saved_model
 from tuikiln.plan import plan_profile
 from tuikiln.profile import load_profile
@@ -171,8 +170,7 @@ class HomeScreen(Screen[None]):
                 continue
             total = format_duration(plan.total_s) + ("+" if plan.open_ended else "")
             if model is not None:
-                limits = Limits().merged(kiln.alarms).merged(plan.profile.limits)
-                predicted = predict(plan, model, limits.band, limits=limits).total_s
+                predicted = predict_on_kiln(plan, model, kiln.alarms).total_s
                 total = "never" if predicted is None else "~" + format_duration(predicted)
             rows.append((plan.profile.name[:40], format_temp(plan.peak_c, units), total,
                          path.name))
@@ -194,8 +192,10 @@ class HomeScreen(Screen[None]):
             self.notify("No profiles found: put .toml files in the profiles folder.")
             return
         path = self.profile_paths[table.cursor_row]
-        self.app.push_screen(PreviewScreen(path, max_c=self.launcher.kiln.max_c,
-                                           start=self.start_run))
+        kiln = self.launcher.kiln
+        self.app.push_screen(PreviewScreen(
+            path, max_c=kiln.max_c, start=self.start_run, alarms=kiln.alarms,
+            model=quiet_saved_model(self.launcher.data_dir, kiln.name)))
 
     def on_data_table_row_selected(self, event: DataTable.RowSelected) -> None:
         self.action_open()

@@ -6,7 +6,7 @@ from __future__ import annotations
 import time
 from collections.abc import Callable
 from pathlib import Path
-from typing import TYPE_CHECKING
+from typing import TYPE_CHECKING, Any
 
 from rich.text import Text
 from textual.app import ComposeResult
@@ -16,6 +16,8 @@ from textual.screen import Screen
 from textual.widgets import DataTable, Static
 
 from tuikiln.errors import FileProblems, UserError
+from tuikiln.ovenmodel import OvenModel
+from tuikiln.ovenmodel_plan import Prediction, predict_on_kiln
 from tuikiln.plan import Plan, load_words, plan_profile
 from tuikiln.profile import describe_step, load_profile
 from tuikiln.ui.chartdata import preview_chart
@@ -34,19 +36,34 @@ ABOUT = ("A profile before it runs. Steps marked … are open-ended: their lengt
          "only at run time (a 'max' ramp, waiting for the load to even out, a free cool, a "
          "pause for you), so the total and the end time are the earliest they can be.")
 OPEN_MARK = "…"
+WARN_MARK = "▲"
 
 
-def summary_text(plan: Plan, units: str, now: float, open_mark: str = OPEN_MARK) -> Text:
-    """Total, end clock time if started now, peak, and what 'open-ended' means here."""
+def summary_text(plan: Plan, units: str, now: float, open_mark: str = OPEN_MARK,
+                 prediction: Prediction | None = None, warn_mark: str = WARN_MARK) -> Text:
+    """Total, end clock time if started now, peak, and what 'open-ended' means here; with a
+    learned oven (`prediction`), what this oven takes and what it cannot do."""
     text = Text()
     total = format_duration(plan.total_s)
     end = time.strftime("%a %H:%M", time.localtime(now + plan.total_s))
     at_least = "at least " if plan.open_ended else ""
     text.append(f"total {at_least}{total} · ends {at_least.strip() or 'at'} {end} if started "
                 f"now · peak {format_temp(plan.peak_c, units)}", style="bold")
+    if prediction is not None:
+        oven = prediction.total_s
+        if oven is None:
+            text.append("\non this oven (learned): never ends: see below", style="bold")
+        else:
+            ends = time.strftime("%a %H:%M", time.localtime(now + oven))
+            text.append(f"\non this oven (learned): about {format_duration(oven)} · ends "
+                        f"about {ends}", style="bold")
     if plan.open_ended:
         count = sum(1 for s in plan.steps if s.open_ended)
-        text.append(f"\n{open_mark} {count} open-ended step(s): counted at their shortest.")
+        counted = ("the learned oven's estimate beside them" if prediction is not None
+                   else "counted at their shortest")
+        text.append(f"\n{open_mark} {count} open-ended step(s): {counted}.")
+    for warning in prediction.warnings if prediction is not None else ():
+        text.append(f"\n{warn_mark} step {warning.step + 1}: {warning.text}")
     load = load_words(plan.profile.load)
     if load:
         text.append(f"\nload: {load}")
@@ -67,12 +84,17 @@ class PreviewScreen(Screen[None]):
     ]
 
     def __init__(self, path: str | Path, *, max_c: float | None = None,
-                 start: Callable[[str], None] | None = None) -> None:
+                 start: Callable[[str], None] | None = None, model: OvenModel | None = None,
+                 alarms: Any = None) -> None:
+        """`model`: the kiln's learned oven (its times go beside the plan's), with the kiln
+        file's `alarms` (the band the prediction waits for)."""
         super().__init__()
         self.path = str(path)
         self.max_c = max_c
         self.start = start
         self.plan: Plan | None = None
+        self.model, self.alarms = model, alarms
+        self._predictions: dict[str, Prediction | None] = {}
         self.problems: list[str] = []
         try:
             self.plan = plan_profile(load_profile(self.path, max_c=max_c))
@@ -80,6 +102,19 @@ class PreviewScreen(Screen[None]):
             self.problems = [str(p) for p in exc.problems]
         except UserError as exc:
             self.problems = [str(exc)]
+
+    def prediction(self, units: str) -> Prediction | None:
+        """The plan on the learned oven (its warnings in `units`), None without a model."""
+        if self.plan is None or self.model is None:
+            return None
+        if units not in self._predictions:
+            try:
+                found: Prediction | None = predict_on_kiln(self.plan, self.model, self.alarms,
+                                                           "F" if units == "F" else "C")
+            except (ValueError, ArithmeticError):
+                found = None  # a model that cannot say: the plan alone, as before
+            self._predictions[units] = found
+        return self._predictions[units]
 
     def compose(self) -> ComposeResult:
         yield Static("", id="preview-title")
@@ -108,18 +143,34 @@ class PreviewScreen(Screen[None]):
         plan = self.plan
         title.update(f"Profile: {plan.profile.name}  ({self.path})")
         self.query_one(TemperatureChart).spec = preview_chart(plan, units)
-        self.query_one("#preview-summary", Static).update(
-            summary_text(plan, units, time.time(), self.app.glyphs.plain(OPEN_MARK)))
+        self.query_one("#preview-summary", Static).update(self.summary(units))
         table = self.query_one(DataTable)
         table.clear(columns=True)
-        table.add_columns("#", "step", "from", "to", "starts", "length")
+        predicted = self.prediction(units)
+        # The figures first, the step's words last: on a narrow terminal the words run off
+        # the right edge, not the times.
+        table.add_columns("#", "starts", "length",
+                          *(["this oven"] if predicted is not None else []), "from", "to",
+                          "step")
         for step in plan.steps:
             mark = f" {self.app.glyphs.plain(OPEN_MARK)}" if step.open_ended else ""
             length = ("until you acknowledge" if step.kind == "pause" else
                       f"{format_duration(step.duration_s)}{mark}")
-            table.add_row(str(step.index + 1), describe_step(step.step, units),
-                          format_temp(step.from_c, units), format_temp(step.to_c, units),
-                          f"+{format_duration(step.start_s)}", length)
+            oven = []
+            if predicted is not None:
+                p = predicted.steps[step.index]
+                oven = ["by you" if step.kind == "pause" else "never"
+                        if p.start_s is None or p.end_s is None
+                        else format_duration(p.end_s - p.start_s)]
+            table.add_row(str(step.index + 1), f"+{format_duration(step.start_s)}", length,
+                          *oven, format_temp(step.from_c, units), format_temp(step.to_c, units),
+                          describe_step(step.step, units))
+
+    def summary(self, units: str) -> Text:
+        assert self.plan is not None
+        glyphs = self.app.glyphs
+        return summary_text(self.plan, units, time.time(), glyphs.plain(OPEN_MARK),
+                            self.prediction(units), glyphs.plain(WARN_MARK))
 
     def action_start(self) -> None:
         if self.plan is None:
@@ -129,8 +180,7 @@ class PreviewScreen(Screen[None]):
             self.notify("Starting runs is not available here.", severity="warning")
             return
         units = self.app.units
-        details = summary_text(self.plan, units, time.time(),
-                               self.app.glyphs.plain(OPEN_MARK)).plain + "\n\n" + "\n".join(
+        details = self.summary(units).plain + "\n\n" + "\n".join(
             f"{s.index + 1}. {describe_step(s.step, units)}" for s in self.plan.steps
         ) + f"\n\n{SAFETY}"
         path, start = self.path, self.start

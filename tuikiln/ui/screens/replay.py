@@ -18,6 +18,8 @@ from textual.css.query import NoMatches
 from textual.screen import Screen
 from textual.widgets import Static
 
+from tuikiln.analysis.replay import MET, MISSED, NOT_YET, REMARKS, UNDER_WAY
+from tuikiln.events import EventKind
 from tuikiln.profile import describe_step
 from tuikiln.ui.chartdata import replay_chart
 from tuikiln.ui.runfeed import RunHeader, RunLink, SampleBuffer
@@ -35,15 +37,17 @@ if TYPE_CHECKING:
 ABOUT = ("Replay of a past run. The dashed line is the plan, each step drawn from the "
          "moment it really began. Move the cursor with ← → (Shift: ten times further), "
          "Home/End; the readings under it show on the right.")
-VERDICT_MARK = {"met": "✔", "met with remarks": "▲", "missed": "✖"}
-KEPT_KINDS = ("note", "alarm-raised", "alarm-acknowledged", "alarm-cleared", "step-start",
-              "operator-needed", "operator-acknowledged", "run-end", "safe-state", "gap")
+VERDICT_MARK = {MET: "✔", REMARKS: "▲", MISSED: "✖", UNDER_WAY: "…", NOT_YET: "·"}
+KEPT_KINDS = (EventKind.NOTE, EventKind.ALARM_RAISED, EventKind.ALARM_ACKNOWLEDGED,
+              EventKind.ALARM_CLEARED, EventKind.STEP_START, EventKind.OPERATOR_NEEDED,
+              EventKind.OPERATOR_ACKNOWLEDGED, EventKind.RUN_END, EventKind.SAFE_STATE,
+              EventKind.GAP)
 
 
 def step_starts(events: Sequence[Mapping[str, Any]]) -> dict[int, float]:
     starts: dict[int, float] = {}
     for event in events:
-        if event.get("kind") == "step-start":
+        if event.get("kind") == EventKind.STEP_START:
             index = (event.get("detail") or {}).get("index")
             if isinstance(index, int):
                 starts.setdefault(index, float(event["time"]))

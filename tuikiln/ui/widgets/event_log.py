@@ -10,13 +10,15 @@ from rich.text import Text
 from textual.reactive import reactive
 from textual.widgets import RichLog
 
-from tuikiln.events import event_text
+from tuikiln.events import EventKind, Severity, event_text
 from tuikiln.plaintext import plain
 from tuikiln.ui.glyphs import BRAILLE_GLYPHS, Glyphs
 from tuikiln.units import Units
 
-SEVERITY_MARK = {"critical": "✖", "warning": "▲", "info": "·"}
-KIND_MARK = {"note": "✎", "operator-needed": "☛", "step-start": "▶", "run-end": "■"}
+SEVERITY_MARK: dict[str, str] = {Severity.CRITICAL: "✖", Severity.WARNING: "▲", Severity.INFO: "·"}
+KIND_MARK: dict[str, str] = {EventKind.NOTE: "✎", EventKind.OPERATOR_NEEDED: "☛",
+                             EventKind.STEP_START: "▶", EventKind.RUN_END: "■"}
+SEVERITY_STYLE: dict[str, str] = {Severity.CRITICAL: "bold reverse", Severity.WARNING: "bold"}
 
 
 def event_line(event: Mapping[str, Any], units: Units, started: float | None,
@@ -29,12 +31,12 @@ def event_line(event: Mapping[str, Any], units: Units, started: float | None,
         stamp = f"+{minutes // 60}h{minutes % 60:02d}"
     else:
         stamp = time.strftime("%H:%M", time.localtime(when))
-    severity = str(event.get("severity") or "info")
+    severity = str(event.get("severity") or Severity.INFO)
     kind = str(event.get("kind") or "")
     mark = KIND_MARK.get(kind, SEVERITY_MARK.get(severity, "·"))
-    if severity in ("warning", "critical"):
+    if severity in (Severity.WARNING, Severity.CRITICAL):
         mark = SEVERITY_MARK[severity]
-    style = {"critical": "bold reverse", "warning": "bold"}.get(severity, "")
+    style = SEVERITY_STYLE.get(severity, "")
     text = Text(f"{stamp:>6} {glyphs.plain(mark)} ", style="dim")
     # Its numbers in the screen's units (an older log's events: their stored words); plain:
     # a remote note's escape codes must not reach the terminal.
