@@ -8,7 +8,7 @@ from __future__ import annotations
 
 from pathlib import Path
 
-from tests.test_ui_fakes import screen_text
+from tests.test_ui_fakes import shown
 from tests.waiting import eventually
 from tuikiln.ovenmodel import OvenModel
 from tuikiln.ovenmodel_plan import predict
@@ -36,9 +36,7 @@ async def test_home_totals_are_the_ovens(tmp_path: Path) -> None:
     wanted = "~" + format_duration(predicted)
     app = TuikilnApp(lambda: HomeScreen(launcher), units="F")
     async with app.run_test(size=(120, 30)) as pilot:
-        await eventually(lambda: wanted in screen_text(pilot.app.screen), 20,
-                         f"the home screen to show the oven's total {wanted}")
-        assert wanted in screen_text(pilot.app.screen)
+        assert wanted in await shown(pilot, wanted)
 
 
 async def test_preview_shows_what_the_learned_oven_takes_as_plan_says(tmp_path: Path) -> None:
@@ -70,9 +68,9 @@ async def test_preview_shows_what_the_learned_oven_takes_as_plan_says(tmp_path: 
         home.query_one("#home-profiles").move_cursor(row=row)
         home.query_one("#home-profiles").focus()
         home.action_open()
-        await pilot.pause(0.2)
+        text = await shown(pilot, f"on this oven (learned): about {format_duration(total)}",
+                           *lengths, screen=PreviewScreen)
         assert isinstance(pilot.app.screen, PreviewScreen)
-        text = screen_text(pilot.app.screen)
         assert f"on this oven (learned): about {format_duration(total)}" in text
         assert "this oven" in text  # the table's column
         for length in lengths:
@@ -87,7 +85,6 @@ async def test_preview_without_a_learned_oven_shows_the_plan_alone(tmp_path: Pat
     demo = next(p for p in find_profiles() if p.name == "demo-harden-temper.toml")
     app = TuikilnApp(lambda: PreviewScreen(demo), units="C")
     async with app.run_test(size=(140, 40)) as pilot:
-        await pilot.pause(0.2)
-        text = screen_text(pilot.app.screen)
+        text = await shown(pilot, "total at least", "counted at their shortest")
         assert "total at least" in text and "counted at their shortest" in text
         assert "on this oven" not in text and "this oven" not in text
