@@ -21,9 +21,11 @@ The tests keep a house rule of their own (DEVELOPERS.md, "Tests"): no fixed slee
 waits on the condition it needs (tests/waiting.py: `wait_until`, `await eventually`, `await
 writable`); a pause that is part of what a test does goes through `let_time_pass(seconds,
 why)` / `await time_passes(seconds, why)` with its reason written beside it, so every
-remaining one is visible. tests/bench/ is left out (benchmarks measure time on purpose), and
-so is tests/waiting.py, where the helpers themselves sleep. Code in a string (a script a
-test writes out for a child process) is the child's, not the test's.
+remaining one is visible; a screen test waits with tests/test_ui_fakes.py `shown`, never
+Textual's `pilot.pause(delay)` (`pilot.pause()`, until the app is idle, is a condition).
+tests/bench/ is left out (benchmarks measure time on purpose), and so is tests/waiting.py,
+where the helpers themselves sleep. Code in a string (a script a test writes out for a child
+process) is the child's, not the test's.
 """
 
 from __future__ import annotations
@@ -136,7 +138,8 @@ def scanned_files() -> list[Path]:
 
 
 def bare_sleeps(source: str, filename: str = "<test>") -> list[str]:
-    """`file:line what` for each use of time.sleep / asyncio.sleep (called or passed on)."""
+    """`file:line what` for each use of time.sleep / asyncio.sleep (called or passed on)
+    and each Textual `pilot.pause(delay)`."""
     tree = ast.parse(source, filename=filename)
     names = set(SLEEPY_MODULES)  # what the modules are called here (`import time as t`)
     for node in ast.walk(tree):
@@ -150,6 +153,11 @@ def bare_sleeps(source: str, filename: str = "<test>") -> list[str]:
         elif isinstance(node, ast.ImportFrom) and node.module in SLEEPY_MODULES:
             if any(a.name in ("sleep", "*") for a in node.names):
                 found.append((node.lineno, f"from {node.module} import sleep"))
+        elif (isinstance(node, ast.Call) and isinstance(node.func, ast.Attribute)
+              and node.func.attr == "pause" and isinstance(node.func.value, ast.Name)
+              and node.func.value.id == "pilot" and (node.args or node.keywords)):
+            # Textual's pilot.pause(delay) sleeps; pilot.pause() waits for the app to be idle
+            found.append((node.lineno, "pilot.pause(delay)"))
     return [f"{filename}:{line} {what}" for line, what in sorted(found)]
 
 
@@ -185,10 +193,14 @@ def test_the_checker_sees_every_form_of_a_bare_sleep() -> None:
         "    subprocess.run(['sleep', '1'])\n"          # a program, not a pause of ours
         "    device.clock.sleep(60.0)\n"                # a simulated clock: no real time
         "    script = 'import time; time.sleep(60)'\n"  # a child's code
+        "    await pilot.pause(0.1)\n"
+        "    await pilot.pause()\n"                     # until the app is idle: a condition
     )
     assert [line.split(" ", 1)[1] for line in bare_sleeps(source)] == [
-        "from time import sleep", "time.sleep", "asyncio.sleep", "clock.sleep", "time.sleep"]
-    assert [f.split(":")[1].split()[0] for f in bare_sleeps(source)] == ["4", "6", "7", "8", "9"]
+        "from time import sleep", "time.sleep", "asyncio.sleep", "clock.sleep", "time.sleep",
+        "pilot.pause(delay)"]
+    assert [f.split(":")[1].split()[0] for f in bare_sleeps(source)] == [
+        "4", "6", "7", "8", "9", "13"]
     pauses = ("let_time_pass(1, 'paces the fake oven')\nlet_time_pass(1, '')\n"
               "let_time_pass(1, why=reason)\nawait time_passes(0.01, why=f'{n} ticks')\n")
     assert [f.split(":")[1].split()[0] for f in unexplained_pauses(pauses)] == ["2", "3"]
@@ -205,5 +217,5 @@ def test_no_fixed_sleeps_in_tests_outside_the_helpers() -> None:
         found += bare_sleeps(source, name) + unexplained_pauses(source, name)
     assert not found, (
         "fixed sleeps in tests: wait on the condition (tests/waiting.py wait_until / "
-        "eventually), or, where time must pass on purpose, say why with let_time_pass / "
-        "time_passes:\n" + "\n".join(found))
+        "eventually; a screen: tests/test_ui_fakes.py shown), or, where time must pass on "
+        "purpose, say why with let_time_pass / time_passes:\n" + "\n".join(found))
