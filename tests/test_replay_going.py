@@ -17,6 +17,7 @@ import numpy as np
 import pytest
 
 from tests.conftest import oven_settings
+from tests.test_link_returns import HOT_HOLD
 from tests.test_recovery import Sink
 from tests.test_replay_sim import _replay, door_log  # noqa: F401 - a fixture
 from tuikiln.analysis.replay import MET, MISSED, NOT_YET, UNDER_WAY, Trace, replay_run
@@ -28,14 +29,7 @@ from tuikiln.limits import Limits
 from tuikiln.profile import parse_profile
 from tuikiln.runlog import RunLog
 
-HEAT_HOLD_COOL = """
-name = "going"
-units = "C"
-[[step]]
-ramp = "max"
-to = 400
-[[step]]
-hold = "2h"
+HEAT_HOLD_COOL = HOT_HOLD + """
 [[step]]
 cool = "free"
 to = 100
