@@ -12,7 +12,9 @@ Fixtures every test module may use without importing them:
 - `mosquitto`, `mosquitto_factory`: a real mosquitto broker on a free loopback port
   (tests/mqtt_broker.py); the tests skip when mosquitto is not installed.
 
-Waiting on conditions (never a fixed sleep): tests/waiting.py (`wait_until`, `eventually`).
+Waiting on conditions (never a fixed sleep): tests/waiting.py (`wait_until`, `eventually`,
+`writable`); a pause that is part of a test is `let_time_pass` / `time_passes`, with its
+reason (tests/test_house.py checks).
 
 For engine tests (a plain function, imported: `from tests.conftest import oven_settings`):
 

@@ -35,13 +35,16 @@ import sys
 import tempfile
 import threading
 import time
+from collections.abc import Callable
 from dataclasses import dataclass, field
 from pathlib import Path
+from typing import Any
 
 REPO = Path(__file__).resolve().parents[1]
 sys.path.insert(0, str(REPO))  # run as a script too: `python tests/crash_trials.py`
 
 from tests.simserve import ServedSim  # noqa: E402
+from tests.waiting import let_time_pass, wait_until  # noqa: E402
 
 PYTHON = sys.executable
 TICK_S = 1.0
@@ -155,35 +158,34 @@ class Trial:
             cwd=REPO, stdout=log, stderr=subprocess.STDOUT, text=True,
             env={**os.environ, "INVOCATION_ID": ""})
 
-    def _wait_samples(self, proc: subprocess.Popen[str], at_least: int, timeout: float) -> None:
+    def _wait_log(self, proc: subprocess.Popen[str], what: str, timeout: float,
+                  check: Callable[[Any, Any], bool]) -> None:
+        """Until `check(log, latest run)` holds or the engine exits (the caller sees which);
+        AssertionError after `timeout` s. Each look opens the log: ten a second."""
         from tuikiln.runlog import RunLog
 
-        deadline = time.monotonic() + timeout
-        while time.monotonic() < deadline and proc.poll() is None:
+        def seen() -> bool:
+            if proc.poll() is not None:
+                return True
             path = self.data / "runs.sqlite"
-            if path.exists():
-                log = RunLog(path)
-                try:
-                    run = log.latest_run()
-                    if run is not None and log.sample_count(run.id) >= at_least:
-                        return
-                finally:
-                    log.close()
-            time.sleep(0.1)
-
-    def _wait_event(self, proc: subprocess.Popen[str], kind: str, timeout: float) -> None:
-        from tuikiln.runlog import RunLog
-
-        deadline = time.monotonic() + timeout
-        while time.monotonic() < deadline and proc.poll() is None:
-            log = RunLog(self.data / "runs.sqlite")
+            if not path.exists():
+                return False
+            log = RunLog(path)
             try:
                 run = log.latest_run()
-                if run is not None and any(e["kind"] == kind for e in log.events(run.id)):
-                    return
+                return run is not None and check(log, run)
             finally:
                 log.close()
-            time.sleep(0.1)
+
+        wait_until(seen, timeout, what, every=0.1)
+
+    def _wait_samples(self, proc: subprocess.Popen[str], at_least: int, timeout: float) -> None:
+        self._wait_log(proc, f"{at_least} samples in the log", timeout,
+                       lambda log, run: log.sample_count(run.id) >= at_least)
+
+    def _wait_event(self, proc: subprocess.Popen[str], kind: str, timeout: float) -> None:
+        self._wait_log(proc, f"a {kind} event in the log", timeout,
+                       lambda log, run: any(e["kind"] == kind for e in log.events(run.id)))
 
     def run(self) -> TrialResult:
         start = time.monotonic()
@@ -199,9 +201,9 @@ class Trial:
                     # Cut the power once the oven is at its first hold (a cut mid heat-up
                     # would still rise a little on the elements' stored heat).
                     self._wait_event(proc, "step-end", 30.0)
-                    time.sleep(self.rng.uniform(0.0, 1.5))
+                    let_time_pass(self.rng.uniform(0.0, 1.5), "a random moment into the hold")
                 else:
-                    time.sleep(self.rng.uniform(0.0, 4.0))
+                    let_time_pass(self.rng.uniform(0.0, 4.0), "a random moment of the run")
                 if proc.poll() is not None:
                     self.result.problems.append("the run ended before the kill")
                     break
@@ -210,11 +212,14 @@ class Trial:
                 proc.wait(timeout=10)
                 if self.power_cut:
                     sim.run_off()
-                    time.sleep(2.0)  # the oven cools meanwhile (speed x 2 s simulated)
+                    # How long the power is off is the scenario, not a wait: the check is the
+                    # GAP's drop. (Cooling on until the restart reads it; a deeper cut, out of
+                    # the hold's band, makes the run wait for the load and take ~20 s longer.)
+                    let_time_pass(2.0, "the power cut lasts 2 s (4 min simulated at 120x)")
                 proc = self._engine("--resume")
                 samples += 4
             if self.policy == "hold":
-                self._resume_when_held(proc)
+                self._resume_when_held(proc, sim)
             code = proc.wait(timeout=120)
             expected = 2 if self.policy == "end" else 0
             if code != expected:
@@ -234,28 +239,29 @@ class Trial:
                 self._tmp.cleanup()
         return self.result
 
-    def _resume_when_held(self, proc: subprocess.Popen[str]) -> None:
-        from tuikiln.runlog import RunLog
+    def _resume_when_held(self, proc: subprocess.Popen[str], sim: TrialSim) -> None:
+        def asks(log: Any, run: Any) -> bool:
+            kinds = [e["kind"] for e in log.events(run.id)]
+            return kinds.count("gap") >= self.kills and "operator-needed" in kinds[-5:]
 
-        deadline = time.monotonic() + 30
-        while time.monotonic() < deadline and proc.poll() is None:
-            log = RunLog(self.data / "runs.sqlite")
-            try:
-                run = log.latest_run()
-                kinds = [e["kind"] for e in log.events(run.id)] if run else []
-            finally:
-                log.close()
-            if kinds.count("gap") >= self.kills and "operator-needed" in kinds[-5:]:
-                time.sleep(1.5)  # held a moment: the heat must stay off meanwhile
-                done = subprocess.run(
-                    [PYTHON, "-m", "tuikiln", "--data", str(self.data), "--kiln",
-                     str(self.folder / "kiln.toml"), "resume"], cwd=REPO,
-                    capture_output=True, text=True, timeout=30)
-                if done.returncode != 0:
-                    self.result.problems.append(f"tuikiln resume failed: {done.stderr}")
-                return
-            time.sleep(0.2)
-        self.result.problems.append("the resumed engine never asked to be resumed")
+        try:
+            self._wait_log(proc, "the resumed engine to ask to be resumed", 30.0, asks)
+            asked = proc.poll() is None
+        except AssertionError:
+            asked = False
+        if not asked:
+            self.result.problems.append("the resumed engine never asked to be resumed")
+            return
+        let_time_pass(1.5, "held a moment before a person resumes: the heat stays off")
+        regs = sim.registers()
+        if regs[4] != 0 or regs[1] != 0:
+            self.result.problems.append(f"heat not off while held: {regs}")
+        done = subprocess.run(
+            [PYTHON, "-m", "tuikiln", "--data", str(self.data), "--kiln",
+             str(self.folder / "kiln.toml"), "resume"], cwd=REPO,
+            capture_output=True, text=True, timeout=30)
+        if done.returncode != 0:
+            self.result.problems.append(f"tuikiln resume failed: {done.stderr}")
 
     # ----- the verdict -----
 

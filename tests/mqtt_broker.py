@@ -5,22 +5,28 @@ The broker runs Debian's /usr/sbin/mosquitto with a generated config (`allow_ano
 a password file made by `mosquitto_passwd`). Started as root, mosquitto drops to the user
 "mosquitto", so its folder is a fresh 0755 folder under /tmp owned by that user (pytest's own
 tmp folders are 0700 and not traversable by it). Stopped by PID: SIGTERM, then SIGKILL.
+
+Its log is a signal to wait on: `start` returns once the port takes a connection,
+`subscribed(client, topic)` tells a subscription is in place (a client such as mosquitto_sub
+says nothing when it is), `refused_logins()` counts logins turned away.
 """
 
 from __future__ import annotations
 
 import os
 import pwd
+import re
 import shutil
 import signal
 import socket
 import subprocess
 import tempfile
-import time
 from collections.abc import Callable, Iterator
 from dataclasses import dataclass, field
 
 import pytest
+
+from tests.waiting import wait_until
 
 MOSQUITTO = shutil.which("mosquitto") or (
     "/usr/sbin/mosquitto" if os.path.exists("/usr/sbin/mosquitto") else None
@@ -74,6 +80,7 @@ class Broker:
             "log_type error",
             "log_type warning",
             "log_type notice",
+            "log_type subscribe",  # `subscribed` reads these lines
         ]
         if self.persistence:
             lines += ["persistence true", f"persistence_location {self.folder}/",
@@ -90,22 +97,28 @@ class Broker:
                 os.chown(path, entry.pw_uid, entry.pw_gid)
             os.chmod(passwd, 0o600)
 
-    def start(self, wait: float = 5.0) -> None:
+    def start(self, wait: float = 20.0) -> None:
         log = open(self.log_path, "ab")
-        self.process = subprocess.Popen([MOSQUITTO, "-c", self.config_path],
-                                        stdout=log, stderr=log, stdin=subprocess.DEVNULL)
+        process = self.process = subprocess.Popen([MOSQUITTO, "-c", self.config_path],
+                                                  stdout=log, stderr=log,
+                                                  stdin=subprocess.DEVNULL)
         log.close()
-        deadline = time.monotonic() + wait
-        while time.monotonic() < deadline:
-            if self.process.poll() is not None:
+
+        def listening() -> bool:
+            if process.poll() is not None:
                 raise RuntimeError(f"mosquitto exited at start:\n{self.read_log()}")
             try:
                 with socket.create_connection((self.host, self.port), timeout=0.2):
-                    return
+                    return True
             except OSError:
-                time.sleep(0.02)
-        self.stop()
-        raise RuntimeError(f"mosquitto did not open port {self.port}:\n{self.read_log()}")
+                return False
+
+        try:
+            wait_until(listening, wait, f"mosquitto to open port {self.port}", every=0.02)
+        except AssertionError:
+            self.stop()
+            raise RuntimeError(f"mosquitto did not open port {self.port}:\n"
+                               f"{self.read_log()}") from None
 
     def stop(self) -> None:
         process, self.process = self.process, None
@@ -124,6 +137,16 @@ class Broker:
                 return handle.read()
         except OSError:
             return ""
+
+    def subscribed(self, client_id: str, topic: str) -> bool:
+        """The broker has `client_id`'s subscription to `topic` (its "subscribe" log line)."""
+        # mosquitto logs "<time>: <client id> <QoS> <topic>" for each subscription
+        line = re.compile(rf"^\d+: {re.escape(client_id)} [0-2] {re.escape(topic)}$", re.M)
+        return line.search(self.read_log()) is not None
+
+    def refused_logins(self) -> int:
+        """Connections the broker turned away for a wrong or missing login, so far."""
+        return self.read_log().count("disconnected, not authorised")
 
     def mqtt_table(self, password_file: str, **extra: object) -> dict[str, object]:
         """A kiln file's [mqtt] table pointing at this broker as the "kiln" user."""

@@ -15,6 +15,8 @@ from typing import TYPE_CHECKING
 
 import pytest
 
+from tests.waiting import wait_until
+
 if TYPE_CHECKING:
     from tests.mqtt_broker import Broker
 
@@ -45,22 +47,25 @@ class Watcher:
         self.handle = self.out.open("w")
         self.process = subprocess.Popen(
             [SUB or "mosquitto_sub", "-h", broker.host, "-p", str(broker.port), "-u", "watcher",
-             "-P", broker.users["watcher"], "-t", f"{BASE}/#", "-v", "-q", "1"],
+             "-P", broker.users["watcher"], "-t", f"{BASE}/#", "-v", "-q", "1",
+             "-i", "watcher-sub"],
             stdout=self.handle,
         )
-        time.sleep(0.7)  # mosquitto_sub gives no "subscribed" signal
+        # mosquitto_sub itself gives no "subscribed" signal: the broker's log does
+        wait_until(lambda: broker.subscribed("watcher-sub", f"{BASE}/#"), 20,
+                   "the broker to have mosquitto_sub's subscription", every=0.02)
 
     def lines(self) -> list[str]:
         self.handle.flush()
         return self.out.read_text().splitlines()
 
-    def wait_for(self, predicate, timeout: float) -> bool:  # noqa: ANN001
-        deadline = time.monotonic() + timeout
-        while time.monotonic() < deadline:
-            if any(predicate(line) for line in self.lines()):
-                return True
-            time.sleep(0.1)
-        return False
+    def wait_for(self, predicate, timeout: float, what: str) -> None:  # noqa: ANN001
+        """Until a line mosquitto_sub wrote meets `predicate`; AssertionError after `timeout`."""
+        try:
+            wait_until(lambda: any(predicate(line) for line in self.lines()), timeout, what,
+                       every=0.05)
+        except AssertionError as exc:
+            raise AssertionError(f"{exc}; last lines: {self.lines()[-5:]}") from None
 
     def events(self) -> list[dict]:
         return [json.loads(line.split(" ", 1)[1]) for line in self.lines()
@@ -94,7 +99,8 @@ def test_a_run_publishes_online_state_every_step_and_the_end(
                                       "--auto-continue"),
                           capture_output=True, text=True, timeout=120, cwd=ROOT)
     assert done.returncode == 0, done.stderr
-    assert watcher.wait_for(lambda line: line == f"{BASE}/status offline", 10)
+    watcher.wait_for(lambda line: line == f"{BASE}/status offline", 20,
+                     "the engine's own goodbye (status offline)")
     lines = watcher.lines()
     assert f"{BASE}/status online" in lines
     states = [json.loads(line.split(" ", 1)[1]) for line in lines
@@ -116,12 +122,14 @@ def test_kill_9_of_the_engine_makes_the_broker_say_offline(
                                           "--speed", "30"),
                               stdout=subprocess.DEVNULL, stderr=subprocess.DEVNULL, cwd=ROOT)
     try:
-        assert watcher.wait_for(lambda line: line.startswith(f"{BASE}/state "), 30)
+        watcher.wait_for(lambda line: line.startswith(f"{BASE}/state "), 30,
+                         "the engine's first state")
         os.kill(engine.pid, signal.SIGKILL)
         engine.wait(5)
         killed = time.monotonic()
         # The Last Will: the broker itself announces the engine is gone.
-        assert watcher.wait_for(lambda line: line == f"{BASE}/status offline", 10)
+        watcher.wait_for(lambda line: line == f"{BASE}/status offline", 20,
+                         "the broker's Last Will (status offline)")
         assert time.monotonic() - killed < 10
     finally:
         if engine.poll() is None:
@@ -143,9 +151,11 @@ def test_remote_abort_works_and_remote_resume_is_refused(
                        check=True, timeout=10)
 
     try:
-        assert watcher.wait_for(lambda line: line.startswith(f"{BASE}/state "), 30)
+        watcher.wait_for(lambda line: line.startswith(f"{BASE}/state "), 30,
+                         "the engine's first state")
         send({"command": "resume"})
-        assert watcher.wait_for(lambda line: "command-refused" in line, 10)
+        watcher.wait_for(lambda line: "command-refused" in line, 20,
+                         "the engine to refuse the remote resume")
         send({"command": "abort", "reason": "test"})
         assert engine.wait(30) == 2  # documented: aborted
     finally:

@@ -19,6 +19,7 @@ import aiomqtt
 import pytest
 from aiomqtt.exceptions import MqttConnectError
 
+from tests.waiting import eventually, time_passes
 from tuikiln import events as ev
 from tuikiln.alerts.mqtt import MqttPublisher
 from tuikiln.alerts.settings import MqttSettings, check_mqtt_settings
@@ -84,12 +85,12 @@ class Watcher:
     def on(self, topic: str) -> list[str]:
         return [payload for t, payload, _ in self.messages if t == topic]
 
-    async def wait_for(self, check: Callable[[], bool], timeout: float = 5.0) -> None:
-        deadline = time.monotonic() + timeout
-        while not check():
-            if time.monotonic() > deadline:
-                raise AssertionError(f"timed out; messages seen: {self.messages[-10:]}")
-            await asyncio.sleep(0.02)
+    async def wait_for(self, check: Callable[[], bool], timeout: float = 15.0,
+                       what: str = "the messages awaited") -> None:
+        try:
+            await eventually(check, timeout, what, every=0.02)
+        except AssertionError as exc:
+            raise AssertionError(f"{exc}; messages seen: {self.messages[-10:]}") from None
 
 
 def event(n: int, kind: str = ev.NOTE, severity: str = "info") -> Event:
@@ -170,9 +171,15 @@ async def test_state_is_retained_throttled_and_status_is_retained(
         for n in range(40):  # 40 changes in about 1 s
             publisher.state({"n": n})
             publisher.reading({"n": n})  # readings = false: nothing sent
-            await asyncio.sleep(0.025)
-        await asyncio.sleep(1.3)  # then no change: still republished at least once a second
-        states = [json.loads(p)["n"] for p in watcher.on(f"{BASE}/state")]
+            await time_passes(0.025, "the state changes faster than it may be sent (0.5 s)")
+
+        def sent_states() -> list[int]:
+            return [json.loads(p)["n"] for p in watcher.on(f"{BASE}/state")]
+
+        # then no change: still republished at least once a second (the last one twice)
+        await watcher.wait_for(lambda: sent_states().count(39) >= 2,
+                               what="the last state, sent again with no change")
+        states = sent_states()
         # At most one state per 0.5 s of the time it really took (a loaded machine
         # stretches the 40 sleeps), plus the first and one in flight: 6 when unloaded.
         most = int((time.monotonic() - started) / 0.5) + 2
@@ -258,10 +265,8 @@ async def test_broker_outage_queues_events_in_order_and_republishes_state(
         await watcher.wait_for(lambda: len(watcher.on(f"{BASE}/event")) == 1)
 
     broker.stop()
-    deadline = time.monotonic() + 5
-    while publisher.connected and time.monotonic() < deadline:
-        await asyncio.sleep(0.02)
-    assert not publisher.connected
+    await eventually(lambda: not publisher.connected, 15,
+                     "the publisher to see the broker gone", every=0.02)
     # The calls never wait on the broker: each event is in the outbox when event() returns
     # (plain calls, no await). What they cost is a figure: tests/bench/mqtt_outage.py.
     outage_end = time.monotonic() + 3.0
@@ -273,7 +278,7 @@ async def test_broker_outage_queues_events_in_order_and_republishes_state(
         publisher.reading({"n": n})
         publisher.state({"phase": "during", "n": n})
         n += 1
-        await asyncio.sleep(0.05)
+        await time_passes(0.05, "events come in through the outage, 20 a second")
     last = n - 1
     assert publisher.queued >= last  # still held, nothing lost
     broker.start()
@@ -327,8 +332,11 @@ async def test_anonymous_and_wrong_password_clients_are_refused(
     assert settings is not None and not problems
     emitted: list[Event] = []
     publisher = MqttPublisher(settings, emit=emitted.append, retry_min=0.1, retry_max=0.2)
+    refused_before = mosquitto.refused_logins()
     await publisher.start()
-    await asyncio.sleep(1.0)
+    # it keeps trying: three logins refused (the broker's log counts them)
+    await eventually(lambda: mosquitto.refused_logins() >= refused_before + 3, 15,
+                     "the publisher to try its wrong login three times", every=0.02)
     publisher.event(event(1))
     assert not publisher.connected
     await publisher.stop()
@@ -363,10 +371,8 @@ async def test_remote_commands_only_make_things_safer(mosquitto: Broker, tmp_pat
                               password=mosquitto.users["watcher"]) as remote:
         for payload in sent:
             await remote.publish(topic, payload, qos=1)
-        for _ in range(250):
-            if len(calls) == 2:
-                break
-            await asyncio.sleep(0.02)
+        # the allowed two come last: every refusal is in by then
+        await eventually(lambda: len(calls) == 2, 15, "the two allowed commands", every=0.02)
     await publisher.stop()
 
     assert calls == [("abort", {}, "mqtt"), ("note", {"text": "checked from the phone"}, "mqtt")]
@@ -384,10 +390,8 @@ async def test_remote_commands_only_make_things_safer(mosquitto: Broker, tmp_pat
                                    emit=emitted.append, on_command=on_command)
         await publisher2.start()
         assert await publisher2.wait_connected(5)
-        for _ in range(100):
-            if len(emitted) > len(refused):
-                break
-            await asyncio.sleep(0.02)
+        await eventually(lambda: len(emitted) > len(refused), 15,
+                         "the retained command to be refused", every=0.02)
         await publisher2.stop()
         await remote.publish(topic, b"", qos=1, retain=True)  # clear it from the broker
     assert len(calls) == 2

@@ -196,3 +196,66 @@ def test_no_module_spells_a_contract_string_by_hand() -> None:
             wrong.append(f"{path.relative_to(ROOT)}:{line}: {value!r}: use tuikiln.engine.states "
                          "or tuikiln.events")
     assert not wrong, "\n".join(wrong)
+
+
+def _answering(folder: Path, answer: bytes) -> tuple[str, object]:
+    """A Unix socket in a private folder that answers each request with `answer` (another
+    program, or a broken one, on the run's socket)."""
+    import os
+    import socket
+    import threading
+
+    folder.mkdir(mode=0o700)
+    path = folder / "run.sock"
+    server = socket.socket(socket.AF_UNIX, socket.SOCK_STREAM)
+    server.bind(str(path))
+    os.chmod(path, 0o600)
+    server.listen()
+
+    def serve() -> None:
+        while True:
+            try:
+                peer, _ = server.accept()
+            except OSError:
+                return
+            with peer:
+                peer.recv(65536)
+                peer.sendall(answer)
+
+    threading.Thread(target=serve, daemon=True).start()
+    return str(path), server
+
+
+@pytest.mark.parametrize("answer", [
+    b'{"ok": true, "status": [1, 2, 3]}\n',
+    b'{"ok": true, "status": {"state": "running"}}\n',  # keys missing
+    b'{"ok": true, "status": "running"}\n',
+    b'{"ok": true}\n',
+    b'{"ok": false, "error": "no"}\n',
+])
+async def test_a_status_that_is_not_one_reads_as_none(tmp_path: Path, answer: bytes) -> None:
+    """The screens' link to a run checks the status it is sent (every key of Status) and
+    gives None for anything else: the screen shows no status rather than failing."""
+    from tuikiln.ui.controllink import SocketControl
+
+    path, server = _answering(tmp_path / "sock", answer)
+    try:
+        assert await SocketControl(path).status() is None
+    finally:
+        server.close()
+
+
+async def test_a_whole_status_from_the_socket_reads_as_it_was_sent(tmp_path: Path) -> None:
+    from tuikiln.ui.controllink import SocketControl
+
+    rules, t = drive_to_the_pause()
+    sent = json.loads(json.dumps(build_status(
+        rules, RunFacts(run_id=3, kiln="bench", started=0.0, watch_only=False), now=t,
+        last=LastReading(chamber_c=200.0))))
+    path, server = _answering(tmp_path / "sock", json.dumps({"ok": True, "status": sent}
+                                                               ).encode() + b"\n")
+    try:
+        got = await SocketControl(path).status()
+    finally:
+        server.close()
+    assert got == sent and got["step_state"] == st.StepState.WAITING_YOU

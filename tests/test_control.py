@@ -12,7 +12,7 @@ import sys
 
 import pytest
 
-from tests.waiting import eventually, wait_until
+from tests.waiting import eventually, time_passes, wait_until
 from tuikiln import control
 from tuikiln.drivers.fake import FirstOrderOven, ScriptedDevice
 from tuikiln.engine import states as st
@@ -42,7 +42,7 @@ class SlowClock:
         return self.t
 
     async def sleep(self, seconds: float) -> None:
-        await asyncio.sleep(0.001)
+        await time_passes(0.001, "a simulated tick takes a real millisecond: commands come in")
         self.t += seconds
 
 

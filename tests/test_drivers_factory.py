@@ -2,7 +2,6 @@
 
 from __future__ import annotations
 
-import asyncio
 import time
 
 import pytest
@@ -129,4 +128,3 @@ async def test_simulator_faults_map_to_device_errors() -> None:
     kiln.inject("tc-open", for_s=30.0)
     reading = await device.read()
     assert reading.sensor_fault and reading.chamber_c is None
-    await asyncio.sleep(0)

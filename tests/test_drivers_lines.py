@@ -9,7 +9,7 @@ import tty
 
 import pytest
 
-from tests.waiting import eventually
+from tests.waiting import eventually, time_passes
 from tuikiln.drivers.base import Reading
 from tuikiln.drivers.errors import BadReply, LinkLost, NoAnswer, NotSupported
 from tuikiln.drivers.lines import ChannelSpec, LineSettings, LineThermometer
@@ -132,7 +132,7 @@ async def test_unplug_link_lost_then_recovers_without_blocking(meter) -> None:
         nonlocal ticks
         while True:
             ticks += 1
-            await asyncio.sleep(0.01)
+            await time_passes(0.01, "a ticker's period: it counts while the loop runs")
 
     task = asyncio.create_task(ticker())
     async with dev:

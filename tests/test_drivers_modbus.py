@@ -16,7 +16,7 @@ from tests.test_drivers_wire import (
     start_serial_server,
     start_tcp_server,
 )
-from tests.waiting import eventually
+from tests.waiting import eventually, time_passes
 from tuikiln.drivers.base import Reading
 from tuikiln.drivers.errors import BadReply, LinkLost, NoAnswer, SettingsError
 from tuikiln.drivers.maps import parse_map
@@ -193,7 +193,7 @@ async def test_unplug_mid_poll_reports_link_lost_then_recovers_by_itself(tmp_pat
         nonlocal ticks
         while True:
             ticks += 1
-            await asyncio.sleep(0.01)
+            await time_passes(0.01, "a ticker's period: it counts while the loop runs")
 
     task = asyncio.create_task(ticker())
     try:

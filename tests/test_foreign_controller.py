@@ -16,6 +16,7 @@ import pytest
 from pymodbus.simulator import DataType, SimData, SimDevice
 
 from tests.test_drivers_wire import PtyWire, start_serial_server
+from tests.waiting import time_passes
 from tuikiln import events as ev
 from tuikiln.drivers.factory import open_device
 from tuikiln.drivers.maps import load_map
@@ -74,7 +75,7 @@ class TinyOven:
             self.peak = max(self.peak, self.chamber)
             await self.server.async_setValues(1, 4, 0, [round(self.chamber), round(self.chamber),
                                                         output])
-            await asyncio.sleep(step_s)
+            await time_passes(step_s, "the tiny oven's own time step (real time)")
 
 
 @pytest.fixture

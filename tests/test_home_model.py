@@ -6,11 +6,10 @@ the model's truth is tests/test_ovenmodel.py's and test_plan_model.py's.
 
 from __future__ import annotations
 
-import asyncio
-import time
 from pathlib import Path
 
-from tests.test_ui_fakes import screen_text
+from tests.test_ui_fakes import shown
+from tests.waiting import eventually
 from tuikiln.ovenmodel import OvenModel
 from tuikiln.ovenmodel_plan import predict
 from tuikiln.ovenmodel_store import save_model
@@ -37,10 +36,7 @@ async def test_home_totals_are_the_ovens(tmp_path: Path) -> None:
     wanted = "~" + format_duration(predicted)
     app = TuikilnApp(lambda: HomeScreen(launcher), units="F")
     async with app.run_test(size=(120, 30)) as pilot:
-        deadline = time.monotonic() + 10.0
-        while wanted not in screen_text(pilot.app.screen) and time.monotonic() < deadline:
-            await asyncio.sleep(0.05)
-        assert wanted in screen_text(pilot.app.screen)
+        assert wanted in await shown(pilot, wanted)
 
 
 async def test_preview_shows_what_the_learned_oven_takes_as_plan_says(tmp_path: Path) -> None:
@@ -67,16 +63,14 @@ async def test_preview_shows_what_the_learned_oven_takes_as_plan_says(tmp_path: 
     app = TuikilnApp(lambda: HomeScreen(launcher), units=planned["units"])
     async with app.run_test(size=(140, 40)) as pilot:
         home = pilot.app.screen
-        deadline = time.monotonic() + 10.0
-        while not home.profile_paths and time.monotonic() < deadline:
-            await asyncio.sleep(0.05)
+        await eventually(lambda: home.profile_paths, 20, "the home screen's list of profiles")
         row = home.profile_paths.index(demo)
         home.query_one("#home-profiles").move_cursor(row=row)
         home.query_one("#home-profiles").focus()
         home.action_open()
-        await pilot.pause(0.2)
+        text = await shown(pilot, f"on this oven (learned): about {format_duration(total)}",
+                           *lengths, screen=PreviewScreen)
         assert isinstance(pilot.app.screen, PreviewScreen)
-        text = screen_text(pilot.app.screen)
         assert f"on this oven (learned): about {format_duration(total)}" in text
         assert "this oven" in text  # the table's column
         for length in lengths:
@@ -91,7 +85,6 @@ async def test_preview_without_a_learned_oven_shows_the_plan_alone(tmp_path: Pat
     demo = next(p for p in find_profiles() if p.name == "demo-harden-temper.toml")
     app = TuikilnApp(lambda: PreviewScreen(demo), units="C")
     async with app.run_test(size=(140, 40)) as pilot:
-        await pilot.pause(0.2)
-        text = screen_text(pilot.app.screen)
+        text = await shown(pilot, "total at least", "counted at their shortest")
         assert "total at least" in text and "counted at their shortest" in text
         assert "on this oven" not in text and "this oven" not in text

@@ -120,7 +120,8 @@ def test_a_remote_ack_does_not_heat_a_run_held_after_a_restart(mosquitto, watche
             [sys.executable, "-m", "tuikiln", "--kiln", str(kiln), "--data", str(data), "run",
              "--resume", "--headless", "--speed", "20"],
             stdout=subprocess.DEVNULL, stderr=subprocess.PIPE, cwd=ROOT)
-        assert watcher.wait_for(lambda line: '"operator-needed"' in line, 60)
+        watcher.wait_for(lambda line: '"operator-needed"' in line, 60,
+                         "the resumed engine to ask for the operator")
         held = wait_until(lambda: status(data), 20, "the resumed engine's status")
         assert held["setpoint_c"] is None or held["setpoint_c"] <= 25.0, held
 
@@ -132,8 +133,9 @@ def test_a_remote_ack_does_not_heat_a_run_held_after_a_restart(mosquitto, watche
 
         refusals = sum('"command-refused"' in line for line in watcher.lines())
         publish({"command": "ack"})
-        assert watcher.wait_for(lambda _: sum('"command-refused"' in line
-                                              for line in watcher.lines()) > refusals, 20)
+        watcher.wait_for(lambda _: sum('"command-refused"' in line
+                                       for line in watcher.lines()) > refusals, 20,
+                         "the engine to refuse the remote ack")
         still = status(data)
         assert still is not None
         assert still["setpoint_c"] is None or still["setpoint_c"] <= 25.0, still

@@ -213,7 +213,7 @@ pause = "[/b] load \\u001b[2J the [red]oven"
 
 
 async def test_the_live_screen_shows_markup_like_names_as_they_are(tmp_path):
-    from tests.test_ui_fakes import ScriptedEngine, screen_text
+    from tests.test_ui_fakes import ScriptedEngine, shown
     from tuikiln.ui.app import TuikilnApp
     from tuikiln.ui.screens.live import LiveScreen
 
@@ -224,8 +224,8 @@ async def test_the_live_screen_shows_markup_like_names_as_they_are(tmp_path):
     engine.event("note", "Note: \x1b]0;pwned\x07remote [/y] words")
     app = TuikilnApp(lambda: LiveScreen(engine.link(), poll_s=0.1), units="C")
     async with app.run_test(size=(120, 30)) as pilot:
-        await pilot.pause(0.3)
-        text = screen_text(pilot.app.screen)
+        # shown as written: a name read as markup would never show these words
+        text = await shown(pilot, "[/x] [bold]not bold", "remote [/y] words")
         assert "[/x] [bold]not bold" in text  # shown as written, not read as markup
         assert "remote [/y] words" in text and "\x1b" not in text and "\x07" not in text
 

@@ -13,13 +13,13 @@ moves the chamber register towards the setpoint while the run register says "on"
 
 from __future__ import annotations
 
-import asyncio
 import math
 
 import pytest
 
 from tests.conftest import oven_settings
 from tests.test_drivers_wire import PtyWire, holding_device, start_serial_server
+from tests.waiting import time_passes
 from tuikiln import events as ev
 from tuikiln.drivers.maps import parse_map
 from tuikiln.drivers.modbus import ModbusDevice, ModbusSettings
@@ -85,7 +85,7 @@ class OvenClock:
         target = max(setpoint_c, ROOM_C) if running else ROOM_C
         self.chamber_c = target + (self.chamber_c - target) * math.exp(-seconds / OVEN_TAU_S)
         await self.server.async_setValues(1, 3, 0, [round(self.chamber_c * 10) & 0xFFFF])
-        await asyncio.sleep(0)
+        await time_passes(0, "a simulated sleep still gives the loop a turn, as a real one")
 
 
 class Events:

@@ -10,8 +10,11 @@ and must give good readings again by itself once the fault stops.
 from __future__ import annotations
 
 import asyncio
+import fcntl
 import os
+import struct
 import sys
+import termios
 import threading
 import time
 import tty
@@ -23,6 +26,7 @@ import pytest
 import pytest_asyncio
 
 from tests.faultrelay import FaultRelay
+from tests.waiting import eventually, time_passes, writable
 from tuikiln.drivers.errors import BadReply, DeviceError, LinkLost, NoAnswer
 from tuikiln.drivers.lines import MAX_LINE, ChannelSpec, LineSettings, LineThermometer
 from tuikiln.drivers.maps import load_map
@@ -75,7 +79,7 @@ class LoopWatch:
         loop = asyncio.get_running_loop()
         last = loop.time()
         while True:
-            await asyncio.sleep(0.01)
+            await time_passes(0.01, "the ticker's period: how late it wakes is the loop's stall")
             now = loop.time()
             self.worst_gap = max(self.worst_gap, now - last - 0.01)
             last = now
@@ -148,7 +152,8 @@ class Rig:
                 assert result.chamber_c is not None
                 assert SANE_C[0] < result.chamber_c < SANE_C[1]
                 return attempt
-            await asyncio.sleep(0.05)
+            await time_passes(0.05, "polls come at an interval, as the engine's do: the "
+                              "driver's reconnect backoff (50 ms) runs between them")
         raise AssertionError(f"no good reading in {RECOVER_POLLS} polls after the fault; "
                              f"errors: {[str(e) for e in self.errors[-3:]]}")
 
@@ -224,8 +229,10 @@ async def test_modbus_driver_survives_fault_through_relay(rig: Rig, fault: str) 
 async def test_modbus_driver_survives_garbage_out_of_the_blue(rig: Rig) -> None:
     with LoopWatch() as watch:
         for _ in range(4):
+            rig.device._rx_seen = False  # the driver's own "bytes came in" mark (its trace)
             rig.relay.garbage_now(32)  # noise while no request is in flight
-            await asyncio.sleep(0.02)
+            await eventually(lambda: rig.device._rx_seen, 10,
+                             "the driver to take in the noise before the next request")
             result = await rig.poll()
             assert not isinstance(result, Exception) or isinstance(result, LINE_ERRORS)
         took = await rig.recovers()
@@ -302,6 +309,10 @@ class Meter:
         """A short write (a line or two): a pty takes a few KiB at once."""
         os.write(self.master, data)
 
+    def unread(self) -> int:
+        """Bytes in the port's input queue that the driver has not read yet (FIONREAD)."""
+        return struct.unpack("i", fcntl.ioctl(self.slave, termios.FIONREAD, b"\0" * 4))[0]
+
     async def feed(self, data: bytes) -> None:
         """All of `data`, as fast as the driver drains the pty (the loop runs meanwhile)."""
         view = memoryview(data)
@@ -309,7 +320,7 @@ class Meter:
             try:
                 view = view[os.write(self.master, view):]
             except BlockingIOError:
-                await asyncio.sleep(0.001)
+                await writable(self.master, 10, "room in the meter's pty (the driver drains it)")
 
     def close(self) -> None:
         os.close(self.master)
@@ -378,7 +389,8 @@ async def test_line_driver_buffer_stays_bounded_under_endless_bytes(meter) -> No
     high = 0
     for _ in range(200):  # 800 KiB with no newline at all
         await m.feed(b"7" * 4096)
-        await asyncio.sleep(0.001)
+        await eventually(lambda: m.unread() == 0, 10, "the driver to take the bytes in",
+                         every=0.001)
         high = max(high, len(device._buffer))
     assert high <= MAX_LINE + 4096
     assert device.bad_lines >= 1 and "end of line" in device.last_bad
@@ -410,7 +422,9 @@ def test_zz_fault_totals(capsys) -> None:
 async def test_tail_of_an_overlong_line_is_not_a_reading(meter) -> None:
     m, device = meter
     await m.feed(b"1," * (MAX_LINE * 4) + b"\n")  # 32 KiB of "1,1,1,..." then a newline
-    await asyncio.sleep(0.05)
+    # the driver has counted the line bad and read on to its end (the newline)
+    await eventually(lambda: device.bad_lines >= 1 and not device._skipping, 10,
+                     "the driver to read to the end of the overlong line", every=0.001)
     try:
         reading = await device.read()
     except LINE_ERRORS:

@@ -157,3 +157,24 @@ def screen_text(screen: Any) -> str:
             content = widget.content
             parts.append(getattr(content, "plain", None) or str(content))
     return "\n".join(parts)
+
+
+async def shown(pilot: Any, *words: str, screen: type | None = None,
+                absent: tuple[str, ...] = (), timeout: float = 20.0) -> str:
+    """The screen's text once it is a `screen` (when given) showing every one of `words` and
+    none of `absent`: a test waits for what it is about to check, not a fixed pause."""
+    from tests.waiting import eventually
+
+    def ready() -> str | None:
+        current = pilot.app.screen
+        if screen is not None and not isinstance(current, screen):
+            return None
+        text = screen_text(current)
+        if all(w in text for w in words) and not any(w in text for w in absent):
+            return text or " "  # an empty screen that was all we waited for is still shown
+        return None
+
+    name = screen.__name__ if screen is not None else "the screen"
+    wanted = ", ".join(repr(w) for w in words) or "itself"
+    wanted += "".join(f", without {w!r}" for w in absent)
+    return await eventually(ready, timeout, f"{name} to show {wanted}")

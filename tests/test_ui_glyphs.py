@@ -132,7 +132,7 @@ async def test_alarm_banner_on_the_linux_console_keeps_to_its_font() -> None:
     from textual.app import ComposeResult
     from textual.screen import Screen
 
-    from tests.test_ui_fakes import screen_text
+    from tests.test_ui_fakes import shown
     from tuikiln.ui.app import TuikilnApp
     from tuikiln.ui.widgets.alarm_banner import AlarmBanner
 
@@ -150,8 +150,7 @@ async def test_alarm_banner_on_the_linux_console_keeps_to_its_font() -> None:
             banner = pilot.app.screen.query_one(AlarmBanner)
             banner.units = "F"
             banner.alarms = alarms
-            await pilot.pause(0.05)
-            text = screen_text(pilot.app.screen)
+            text = await shown(pilot, "CRITICAL ALARM: chamber 1530 °F", "WARNING ALARM")
         assert "CRITICAL ALARM: chamber 1530 °F" in text and "WARNING ALARM" in text
         if glyphs is BLOCK_GLYPHS:
             text.encode("cp437")  # code page 437: the Linux console's font (from memory)

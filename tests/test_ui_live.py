@@ -7,7 +7,8 @@ from pathlib import Path
 
 from textual.widgets import Input
 
-from tests.test_ui_fakes import OVERSHOOT, ScriptedEngine, screen_text
+from tests.test_ui_fakes import OVERSHOOT, ScriptedEngine, screen_text, shown
+from tests.waiting import eventually
 from tuikiln.ui.app import TuikilnApp
 from tuikiln.ui.chartdraw import strips_text
 from tuikiln.ui.screens.confirm import ConfirmScreen
@@ -23,16 +24,23 @@ def make_app(engine: ScriptedEngine, units: str = "F") -> TuikilnApp:
     return TuikilnApp(lambda: LiveScreen(engine.link(), poll_s=0.1), units=units)
 
 
-async def settle(pilot, seconds: float = 0.2) -> None:
-    await pilot.pause(seconds)
+async def sent(engine: ScriptedEngine, command: tuple[str, str | None]) -> None:
+    """Until the screen's last command to the engine is `command`."""
+    await eventually(lambda: engine.commands[-1:] == [command], 20, f"the command {command}")
+
+
+async def laid_out(pilot) -> None:  # noqa: ANN001
+    """Until the app is idle: the layout after what was awaited is done (regions checked)."""
+    await pilot.pause()
 
 
 async def test_shows_chart_temperatures_and_step(tmp_path: Path) -> None:
     engine = ScriptedEngine(tmp_path)
     engine.advance(1800)  # 30 min at 0.2 °C/s: 380 °C
     async with make_app(engine).run_test(size=SIZE) as pilot:
-        await settle(pilot, 0.3)
-        text = screen_text(pilot.app.screen)
+        text = await shown(pilot, f"chamber {c_to_f(engine.chamber_c):.0f} °F",
+                           "heating to 1200 °F at 900°F/h", "step 1 of 8: ramp (preheat)",
+                           "━━ chamber", "│ now", "next step", "you're needed")
         assert f"chamber {c_to_f(engine.chamber_c):.0f} °F" in text
         assert "heating to 1200 °F at 900°F/h" in text  # the demo profile's first step
         assert "step 1 of 8: ramp (preheat)" in text
@@ -45,16 +53,17 @@ async def test_alarm_shows_without_colour_and_is_acknowledged(tmp_path: Path) ->
     engine = ScriptedEngine(tmp_path)
     engine.advance(60)
     async with make_app(engine).run_test(size=SIZE) as pilot:
-        await settle(pilot)
+        await shown(pilot, "step 1 of 8")  # the screen has read the log once
         engine.raise_alarm("overshoot", OVERSHOOT)
-        await settle(pilot)
         banner = pilot.app.screen.query_one(AlarmBanner)
+        await eventually(lambda: banner.display and "WARNING ALARM" in str(banner.content), 20,
+                         "the alarm banner")
         assert banner.display and banner.has_class("-active")
         words = str(banner.content)
         assert "▲ WARNING ALARM: chamber 1530 °F, 40 °F above the target" in words
         assert "press a to acknowledge" in words
         await pilot.press("a")
-        await settle(pilot)
+        await eventually(lambda: "(seen)" in str(banner.content), 20, "the alarm marked seen")
         assert ("ack", None) in engine.commands
         assert "(seen)" in str(banner.content) and banner.has_class("-seen")
 
@@ -64,11 +73,12 @@ async def test_unit_switch_converts_every_value(tmp_path: Path) -> None:
     engine.advance(1800)
     engine.raise_alarm("overshoot", OVERSHOOT)
     async with make_app(engine, units="F").run_test(size=SIZE) as pilot:
-        await settle(pilot, 0.3)
-        fahrenheit = screen_text(pilot.app.screen)
+        fahrenheit = await shown(pilot, "chamber 1530 °F, 40 °F above the target",
+                                 f"chamber {c_to_f(engine.chamber_c):.0f} °F", "heating to 1200 °F")
         await pilot.press("u")
-        await settle(pilot)
-        celsius = screen_text(pilot.app.screen)
+        celsius = await shown(pilot, "chamber 832 °C, 22 °C above the target",
+                              f"chamber {engine.chamber_c:.0f} °C", "heating to 649 °C",
+                              absent=("°F",))
     assert "°F" in fahrenheit
     assert "°F" not in celsius, [line for line in celsius.splitlines() if "°F" in line]
     # 1530 °F = 832 °C; a 40 °F difference is 22 K (not 4 °C): differences convert as such.
@@ -83,41 +93,45 @@ async def test_controls_send_commands_and_confirm_first(tmp_path: Path) -> None:
     engine = ScriptedEngine(tmp_path)
     engine.advance(60)
     async with make_app(engine).run_test(size=SIZE) as pilot:
-        await settle(pilot)
+        await shown(pilot, "step 1 of 8")
         await pilot.press("p")
-        await settle(pilot)
+        await sent(engine, ("pause", None))
         assert engine.commands[-1] == ("pause", None)
-        assert "PAUSED by you" in screen_text(pilot.app.screen)
+        assert "PAUSED by you" in await shown(pilot, "PAUSED by you")
         await pilot.press("r")
-        await settle(pilot)
+        await sent(engine, ("resume", None))
         assert engine.commands[-1] == ("resume", None)
         await pilot.press("s")
-        await settle(pilot)
+        await shown(pilot, "Skip step 1", screen=ConfirmScreen)
         assert isinstance(pilot.app.screen, ConfirmScreen)
         assert "Skip step 1" in screen_text(pilot.app.screen)
         await pilot.press("n")
-        await settle(pilot)
+        await shown(pilot, screen=LiveScreen)
+        await pilot.pause()  # whatever "no" would send is sent by now
         assert engine.commands[-1] == ("resume", None)  # said no: nothing sent
         await pilot.press("s", "y")
-        await settle(pilot)
+        await sent(engine, ("skip", None))
         assert engine.commands[-1] == ("skip", None)
         await pilot.press("x")
-        await settle(pilot)
+        await shown(pilot, screen=ConfirmScreen)
         assert isinstance(pilot.app.screen, ConfirmScreen)
         await pilot.press("escape")
-        await settle(pilot)
+        await shown(pilot, screen=LiveScreen)
+        await pilot.pause()
         assert all(name != "abort" for name, _ in engine.commands)
         await pilot.press("n")
-        await settle(pilot)
+        await shown(pilot, screen=NoteScreen)
         assert isinstance(pilot.app.screen, NoteScreen)
         pilot.app.screen.query_one(Input).value = "into the oil"  # typing is Input's own job
         await pilot.press("enter")
-        await settle(pilot, 0.3)
+        await sent(engine, ("note", "into the oil"))
         assert engine.commands[-1] == ("note", "into the oil")
-        assert "into the oil" in screen_text(pilot.app.screen)  # back from the log
+        # back from the log
+        assert "into the oil" in await shown(pilot, "into the oil", screen=LiveScreen)
         title = str(pilot.app.screen.query_one("#live-title").content)
         await pilot.press("z")
-        await settle(pilot)
+        await eventually(lambda: "last hour" in str(
+            pilot.app.screen.query_one("#live-title").content), 20, "the chart's last hour")
         assert "whole run" in title
         assert "last hour" in str(pilot.app.screen.query_one("#live-title").content)
 
@@ -127,8 +141,9 @@ async def test_pause_step_names_the_key(tmp_path: Path) -> None:
     engine.advance(60)
     engine.enter_pause()
     async with make_app(engine).run_test(size=SIZE) as pilot:
-        await settle(pilot)
-        text = screen_text(pilot.app.screen)
+        text = await shown(pilot, "☛ WAITING FOR YOU: Quench",
+                           "WAITING FOR THE QUENCH: press a when done", "you're needed NOW")
+        await laid_out(pilot)
         # The pause's words in a full-width band, with a symbol and capitals (no colour needed).
         notice = pilot.app.screen.query_one("#live-notice")
         assert notice.display and notice.region.width == SIZE[0]
@@ -137,8 +152,10 @@ async def test_pause_step_names_the_key(tmp_path: Path) -> None:
         assert "WAITING FOR THE QUENCH: press a when done" in text
         assert "you're needed NOW" in text
         await pilot.press("a")
-        await settle(pilot)
-        assert "cooling with the heater off to 400 °F" in screen_text(pilot.app.screen)
+        assert "cooling with the heater off to 400 °F" in await shown(
+            pilot, "cooling with the heater off to 400 °F")
+        await eventually(lambda: not pilot.app.screen.query_one("#live-notice").display, 20,
+                         "the pause's notice gone")
         assert not pilot.app.screen.query_one("#live-notice").display
 
 
@@ -147,9 +164,9 @@ async def test_leaving_keeps_the_run_going(tmp_path: Path) -> None:
     engine.advance(60)
     app = make_app(engine)
     async with app.run_test(size=SIZE) as pilot:
-        await settle(pilot)
+        await shown(pilot, "step 1 of 8")
         await pilot.press("q")
-        await settle(pilot)
+        await eventually(lambda: app.return_value is not None, 20, "the screen to close")
     assert app.return_value is not None and "tuikiln watch" in app.return_value
     assert all(name not in ("abort", "pause") for name, _ in engine.commands)
     # The engine side still answers and the log still grows after the screen is gone.
@@ -163,7 +180,9 @@ async def test_everything_that_matters_shows_at_80x24(tmp_path: Path) -> None:
     engine.advance(1800)
     engine.raise_alarm("overshoot", OVERSHOOT)
     async with make_app(engine).run_test(size=(80, 24)) as pilot:
-        await settle(pilot, 0.3)
+        await shown(pilot, "target  1200 °F", "heating to 1200 °F", "next step",
+                    "you're needed", "end ", "│ now", "WARNING ALARM")
+        await laid_out(pilot)
         screen = pilot.app.screen
         chart = screen.query_one("#live-chart")
         legend = strips_text(chart.strips())[0]
@@ -198,14 +217,15 @@ async def test_heat_not_yet_confirmed_off_shows_above_everything(tmp_path: Path)
     engine.advance(600)
     engine.raise_alarm("overshoot", OVERSHOOT)
     async with make_app(engine).run_test(size=SIZE) as pilot:
-        await settle(pilot, 0.3)
         banner = pilot.app.screen.query_one(AlarmBanner)
+        await eventually(lambda: banner.display and "WARNING ALARM" in str(banner.content), 20,
+                         "the alarm banner with the safe-state line")
         assert banner.display and banner.has_class("-active")
         lines = str(banner.content).splitlines()
         assert lines[0] == (f"✖ CRITICAL: {SAFE_RETRY_WORDS} "
                             "(4 tries so far, 2m30s since the run ended)"), lines
         assert "WARNING ALARM" in lines[1]
         await pilot.press("a")  # acknowledging the alarm does not quiet the safe-state line
-        await settle(pilot)
+        await eventually(lambda: "(seen)" in str(banner.content), 20, "the alarm marked seen")
         assert not banner.has_class("-seen")
         assert str(banner.content).splitlines()[0].startswith("✖ CRITICAL")

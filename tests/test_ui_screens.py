@@ -6,7 +6,7 @@ from __future__ import annotations
 from collections.abc import Callable
 from pathlib import Path
 
-from tests.test_ui_fakes import DEMO_PROFILE, OVERSHOOT, ScriptedEngine, screen_text
+from tests.test_ui_fakes import DEMO_PROFILE, OVERSHOOT, ScriptedEngine, screen_text, shown
 from tests.waiting import eventually
 from tuikiln import control
 from tuikiln.ui.app import TuikilnApp
@@ -36,8 +36,8 @@ def past_run(data_dir: Path) -> ScriptedEngine:
 async def test_preview_shows_plan_table_total_and_open_steps() -> None:
     app = TuikilnApp(lambda: PreviewScreen(DEMO_PROFILE), units="F")
     async with app.run_test(size=SIZE) as pilot:
-        await pilot.pause(0.1)
-        text = screen_text(pilot.app.screen)
+        text = await shown(pilot, "Profile: Demo: 1084 blade, harden and temper",
+                           "open-ended step(s)", "ends at least")
         assert "Profile: Demo: 1084 blade, harden and temper" in text
         assert "heat at 900°F/h to 1200 °F" in text
         assert "wait for you: Quench" in text and "until you acknowledge" in text
@@ -45,11 +45,10 @@ async def test_preview_shows_plan_table_total_and_open_steps() -> None:
         assert "…" in text  # open-ended steps are marked in the table
         assert "ends at least" in text  # the clock time if started now
         await pilot.press("u")
-        await pilot.pause(0.1)
-        celsius = screen_text(pilot.app.screen)
+        celsius = await shown(pilot, "to 649 °C", absent=("°F",))
         assert "°F" not in celsius and "to 649 °C" in celsius
         await pilot.press("question_mark")
-        await pilot.pause(0.05)
+        await shown(pilot, "Start this run", screen=HelpScreen)
         assert isinstance(pilot.app.screen, HelpScreen)
         assert "Start this run" in screen_text(pilot.app.screen)
         await pilot.press("escape")
@@ -61,13 +60,12 @@ async def test_preview_lists_mistakes_with_lines(tmp_path: Path) -> None:
     bad.write_text('units = "F"\n\n[[step]]\nramp = "fast"\nto = 1500\n\n[[step]]\nhold = "x"\n')
     app = TuikilnApp(lambda: PreviewScreen(bad), units="F")
     async with app.run_test(size=SIZE) as pilot:
-        await pilot.pause(0.1)
-        text = screen_text(pilot.app.screen)
+        text = await shown(pilot, "mistake(s) to fix", f"✖ {bad}:4: step 1:")
         assert "mistake(s) to fix" in text
         assert f"✖ {bad}:4: step 1:" in text  # file:line, plain words
         assert f"✖ {bad}:8: step 2: \"hold\" needs a duration" in text
         await pilot.press("s")  # cannot start a profile with mistakes
-        await pilot.pause(0.05)
+        await pilot.pause()  # the key handled (the app idle), not a fixed time
         assert isinstance(pilot.app.screen, PreviewScreen)
 
 
@@ -75,8 +73,8 @@ async def test_replay_cursor_readings_verdicts_and_notes(tmp_path: Path) -> None
     engine = past_run(tmp_path)
     app = TuikilnApp(lambda: ReplayScreen(engine.link()), units="F")
     async with app.run_test(size=SIZE) as pilot:
-        await pilot.pause(0.5)
-        text = screen_text(pilot.app.screen)
+        text = await shown(pilot, "Replay · run 1", "at +1s", "Verdicts", "blade looks even",
+                           "▲ chamber 1530 °F, 40 °F above the target")
         assert "Replay · run 1" in text and "aborted" in text
         assert "at +1s" in text and "chamber  68.4 °F" in text  # the first sample: 20.2 °C
         assert "Verdicts" in text and "✖ missed: step 1 (preheat)" in text
@@ -84,15 +82,13 @@ async def test_replay_cursor_readings_verdicts_and_notes(tmp_path: Path) -> None
         assert "blade looks even" in text and "WARNING" not in text  # log lines, not banner
         assert "▲ chamber 1530 °F, 40 °F above the target" in text
         await pilot.press("end")
-        await pilot.pause(0.1)
-        assert "at +30m" in screen_text(pilot.app.screen)
+        assert "at +30m" in await shown(pilot, "at +30m")
         await pilot.press("home", "shift+right")
-        await pilot.pause(0.1)
-        moved = screen_text(pilot.app.screen)
+        moved = await shown(pilot, "┃ cursor", absent=("at +1s",))
         assert "at +1s" not in moved and "┃ cursor" in moved
         await pilot.press("u")
-        await pilot.pause(0.1)
-        assert "chamber 832 °C, 22 °C above the target" in screen_text(pilot.app.screen)
+        assert "chamber 832 °C, 22 °C above the target" in await shown(
+            pilot, "chamber 832 °C, 22 °C above the target")
 
 
 async def test_home_lists_kiln_profiles_and_runs(tmp_path: Path) -> None:
@@ -100,16 +96,16 @@ async def test_home_lists_kiln_profiles_and_runs(tmp_path: Path) -> None:
     launcher = Launcher(tmp_path, None)
     app = TuikilnApp(lambda: HomeScreen(launcher), units="F")
     async with app.run_test(size=SIZE) as pilot:
-        await pilot.pause(0.5)
-        text = screen_text(pilot.app.screen)
+        text = await shown(pilot, "built-in simulator", "No run is going",
+                           "Demo: 1084 blade, harden and temper", "✖ aborted")
         assert "built-in simulator" in text and "No run is going" in text
         assert "Demo: 1084 blade, harden and temper" in text
         assert "✖ aborted" in text
         await pilot.press("enter")
-        await pilot.pause(0.1)
+        await shown(pilot, screen=PreviewScreen)
         assert isinstance(pilot.app.screen, PreviewScreen)
         await pilot.press("escape", "tab", "enter")
-        await pilot.pause(0.3)
+        await shown(pilot, screen=ReplayScreen)
         assert isinstance(pilot.app.screen, ReplayScreen)
 
 
@@ -120,25 +116,22 @@ async def test_run_started_from_home_goes_on_after_leaving(
     app = TuikilnApp(lambda: HomeScreen(launcher), units="C")
     try:
         async with app.run_test(size=SIZE) as pilot:
-            await pilot.pause(0.5)
+            await shown(pilot, DEMO_PROFILE.name, screen=HomeScreen)
             table = pilot.app.screen.query_one("#home-profiles")
             names = [str(table.get_row_at(i)[3]) for i in range(table.row_count)]
             table.move_cursor(row=names.index(DEMO_PROFILE.name))
             await pilot.press("enter", "s")
-            await pilot.pause(0.1)
+            await shown(pilot, "tuikiln is not a safety device", screen=ConfirmScreen)
             assert isinstance(pilot.app.screen, ConfirmScreen)
             assert "tuikiln is not a safety device" in screen_text(pilot.app.screen)
             await pilot.press("y")
-            for _ in range(100):
-                await pilot.pause(0.1)
-                if isinstance(pilot.app.screen, LiveScreen) and "chamber" in screen_text(
-                        pilot.app.screen) and pilot.app.screen.status:
-                    break
+            await shown(pilot, "chamber", screen=LiveScreen)
+            await eventually(lambda: pilot.app.screen.status, 20, "the live screen's status")
             live = pilot.app.screen
             assert isinstance(live, LiveScreen) and live.status is not None
             assert "step 1 of 8: ramp (preheat)" in screen_text(live)
             await pilot.press("q")
-            await pilot.pause(0.3)
+            await shown(pilot, screen=HomeScreen)
             assert isinstance(pilot.app.screen, HomeScreen)
             assert "goes on" in str(pilot.app._notifications).lower() or True
         active = control.active_runs(tmp_path / "data")

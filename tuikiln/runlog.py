@@ -251,7 +251,7 @@ class RunInfo:
         return {"id": self.id, "kiln": self.kiln, "profile": self.profile,
                 "started": self.started, "ended": self.ended, "outcome": self.status,
                 "units": self.units, "device": self.device, "speed": self.speed,
-                "watch_only": self.watch_only}
+                "watch_only": self.watch_only, "wall_started": self.wall_started}
 
 
 def pid_alive(pid: int) -> bool:

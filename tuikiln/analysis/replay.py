@@ -43,6 +43,10 @@ MET = "met"
 REMARKS = "met with remarks"
 MISSED = "missed"
 VERDICTS = (MET, REMARKS, MISSED)
+# A run still going is judged only where it has been: its step under way and the steps to
+# come have no verdict yet (a miss already made, out of band past the grace, say, stays one).
+UNDER_WAY = "under way"
+NOT_YET = "not yet"
 
 # Out of band for less than this in all during a hold is reading noise at the band's edge:
 # shown as a figure, not a remark (our choice).
@@ -332,6 +336,8 @@ class _Analysis:
                  events: Sequence[Mapping[str, Any]], outcome: str | None = None) -> None:
         self.trace = trace
         self.outcome = outcome
+        self.going = outcome == st.RUN_RUNNING
+        """The run is still going: an unfinished step is under way, not missed."""
         self.profile = profile
         self.limits = limits
         self.units = units
@@ -386,6 +392,9 @@ class _Analysis:
         lo, hi, start_t, end_t, finished = self.bounds(index)
         alarms = [a for a in self.alarms if self._step_at(a.raised_t) == index]
         if start_t is None:
+            if self.going:
+                return StepResult(index, step, NOT_YET, ["not yet: the run is still going"],
+                                  None, None, {}, alarms)
             return StepResult(index, step, MISSED, ["never started: the run ended before it"],
                               None, None, {}, alarms)
         result = StepResult(index, step, MET, [], self.rel(start_t), self.rel(end_t),
@@ -403,7 +412,24 @@ class _Analysis:
         self._alarm_reasons(result)
         if skipped and result.verdict == MET:
             _worse(result, REMARKS, "skipped by you")
+        if self.going and not result.figures["finished"] and result.verdict != MISSED:
+            result.reasons.insert(0, self._so_far(result, step, start_t))
+            result.verdict = UNDER_WAY
         return result
+
+    def _so_far(self, result: StepResult, step: Step, start_t: float) -> str:
+        """How far the step under way has got, in plain words."""
+        w = self.words
+        since = format_duration(float(self.t[-1]) - start_t) if self.t.size else "0s"
+        if isinstance(step, Hold):
+            clock_s = result.figures.get("hold_clock_s") or 0.0
+            return (f"under way: {format_duration(clock_s)} of the "
+                    f"{format_duration(step.duration_s)} hold at temperature so far")
+        if isinstance(step, Pause):
+            return f"under way: waiting for you for {since}"
+        now = result.figures.get("reached_c")
+        return (f"under way for {since}: at {w.t(now)} now, the target is {w.t(step.to_c)}"
+                if now is not None else f"under way for {since}")
 
     def _step_at(self, t: float) -> int:
         i = int(np.searchsorted(self.t, t, "right")) - 1
@@ -444,6 +470,8 @@ class _Analysis:
             self._overshoot(figures, temps, times, step.to_c)
         if not finished:
             now = figures.get("reached_c")
+            if self.going:
+                return  # under way: judged when it has ended
             if self._reached_between_samples(step, times, temps):
                 result.figures["finished"] = True
                 return
@@ -626,7 +654,7 @@ class _Analysis:
                        f"{w.t(target)}; the band is ± {w.d(band)}, the grace "
                        f"{format_duration(grace)})")
         clock_s = figures["hold_clock_s"]
-        if not finished or clock_s < step.duration_s - 1.0:
+        if (not finished and not self.going) or (finished and clock_s < step.duration_s - 1.0):
             why = "skipped by you" if figures.get("skipped") else self._ending()
             if not finished or figures.get("skipped"):
                 _worse(result, MISSED, f"{why} after {format_duration(clock_s)} of the "
@@ -654,7 +682,7 @@ class _Analysis:
     def _pause(self, result: StepResult, step: Pause, start_t: float, end_t: float | None,
                finished: bool) -> None:
         result.figures["waited_s"] = None if end_t is None else end_t - start_t
-        if not finished:
+        if not finished and not self.going:
             _worse(result, MISSED, f"never acknowledged: {self._ending()} while waiting for you")
 
     # ----- alarms -----
@@ -721,6 +749,18 @@ def _run_verdict(steps: list[StepResult], outcome: str | None, rerun: Rerun | No
                  units: Units) -> tuple[str, list[str]]:
     verdict = MET
     reasons: list[str] = []
+    if outcome == st.RUN_RUNNING:
+        # Judged so far: a miss already made is one; else the run is under way.
+        here = next((s for s in steps if s.verdict == UNDER_WAY), None)
+        where = f"step {here.index + 1} of {len(steps)}" if here else "its last step"
+        verdict = UNDER_WAY
+        reasons.append(f"the run is still going ({where}); judged so far")
+        for s in steps:
+            if s.verdict in (MISSED, REMARKS):
+                verdict = MISSED if s.verdict == MISSED else verdict
+                first = s.reasons[0] if s.reasons else ""
+                reasons.append(f"{s.title(units)}: {s.verdict}: {first}")
+        return verdict, reasons
     if outcome not in (None, st.COMPLETED):
         verdict = MISSED
         why = f" ({rerun.end_reason})" if rerun is not None and rerun.end_reason else ""

@@ -11,7 +11,7 @@ from datetime import UTC, datetime
 from html import escape
 from typing import Any
 
-from tuikiln.analysis.replay import MET, MISSED, Replay, StepResult, clock
+from tuikiln.analysis.replay import MET, MISSED, NOT_YET, UNDER_WAY, Replay, StepResult, clock
 from tuikiln.analysis.whatif import AlarmChange
 from tuikiln.limits import LIMIT_KEYS
 from tuikiln.plan import load_words
@@ -43,7 +43,8 @@ def step_figures(s: StepResult, units: Units) -> list[str]:
     duration = f.get("duration_s")
     if s.kind in ("ramp", "cool"):
         planned = f.get("planned_s")
-        took = f"took {format_duration(duration)}"
+        took = (f"took {format_duration(duration)}" if duration is not None or
+                s.verdict != UNDER_WAY else "still going")
         if planned is not None:
             took += f" (planned {format_duration(planned)})"
         out.append(took)
@@ -290,6 +291,7 @@ h1 { font-size: clamp(1.3em, 5vw, 2em); }
 .met { color: #1b6e20; font-weight: bold; }
 .remarks { color: #8a5a00; font-weight: bold; }
 .missed { color: #b00020; font-weight: bold; }
+.going { color: #35507a; font-style: italic; }
 .safety { border: 2px solid #b00020; padding: 0.6em; margin-top: 2em; }
 /* The chart takes the page's width; below 640 px it keeps that width and scrolls sideways,
    so its labels stay big enough to read on a phone. */
@@ -300,7 +302,7 @@ figure.chart svg { display: block; width: 100%; height: auto; min-width: 640px; 
   body { color: #000; background: #fff; margin: 0; padding: 0; max-width: none;
          font-size: 10pt; }
   h1 { font-size: 16pt; } h2 { font-size: 13pt; break-after: avoid; }
-  .met, .remarks, .missed { color: #000; }
+  .met, .remarks, .missed, .going { color: #000; }
   th { background: #fff; border-bottom: 2px solid #000; }
   th, td { border-color: #000; padding: 2px 5px; }
   figure.chart { overflow: visible; break-inside: avoid; page-break-inside: avoid; }
@@ -314,7 +316,8 @@ figure.chart svg { display: block; width: 100%; height: auto; min-width: 640px; 
 
 
 def _verdict_class(verdict: str) -> str:
-    return {MET: "met", MISSED: "missed"}.get(verdict, "remarks")
+    return {MET: "met", MISSED: "missed", UNDER_WAY: "going", NOT_YET: "going"}.get(
+        verdict, "remarks")
 
 
 def _ul(lines: list[str]) -> str:

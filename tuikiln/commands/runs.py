@@ -102,6 +102,22 @@ def _when(t: float | None) -> str:
     return "--" if t is None else time.strftime("%Y-%m-%d %H:%M", time.localtime(t))
 
 
+def _length(run: Any) -> str:
+    """How long the run lasted (or has lasted, while going), with its speed when simulated
+    faster than real time ("2h15m ×60")."""
+    from tuikiln.units import format_duration
+
+    if run.ended is None:
+        return "--"
+    length = format_duration(max(0.0, run.ended - run.started))
+    speed = str(run.speed or "").lstrip("x×")
+    try:
+        fast = float(speed) != 1.0
+    except ValueError:  # "max": as fast as the simulator goes
+        return f"{length} (sim {speed})" if speed else length
+    return f"{length} ×{speed}" if fast else length
+
+
 def with_end_marks(log: Any, runs: list[Any]) -> tuple[list[Any], set[int]]:
     """The runs, each one the database holds no end for but whose end mark does (the
     engine ended it while the disk was full: tuikiln/runlog.py, EndMark) with that end;
@@ -127,11 +143,13 @@ def _list(args: argparse.Namespace, log: Any) -> int:
     if not runs:
         print("no runs logged yet")
         return 0
-    print(f"{'id':>4}  {'started':16}  {'ended':16}  {'outcome':16}  profile")
+    # The start on the wall clock and the length on the run's own clock: a simulated run
+    # sped up 60 times lasts its simulated hours, which ended minutes after it started.
+    print(f"{'id':>4}  {'started':16}  {'length':>14}  {'outcome':16}  profile")
     for r in runs:
         star = "*" if r.id in marked else " "
-        print(f"{r.id:>4}  {_when(r.started):16}  {_when(r.ended):16}  {r.status:16}{star} "
-              f"{r.profile}")
+        print(f"{r.id:>4}  {_when(r.wall_started or r.started):16}  {_length(r):>14}  "
+              f"{r.status:16}{star} {r.profile}")
     if marked:
         print("* the end is in the run's end mark (the disk was full when the run ended); "
               "`tuikiln run --resume` writes it into the log")

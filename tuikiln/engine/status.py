@@ -52,6 +52,15 @@ SAFE_RETRY_WORDS = ("the run has ended but the controller has not yet confirmed 
                     "off: switch it off by hand")
 
 
+def status_from_json(value: Any) -> Status | None:
+    """A status object read back from JSON (the control socket, a file): the Status it is,
+    or None when it is not one (not an object, or a key missing): a screen then shows no
+    status rather than failing on another program's answer."""
+    if not isinstance(value, dict) or not all(key in value for key in STATUS_KEYS):
+        return None
+    return value  # type: ignore[return-value]  # its values are the JSON the engine sent
+
+
 def safe_state(since: float, attempts: int, now: float) -> SafeState:
     return {"state": SAFE_RETRYING, "severity": Severity.CRITICAL, "since": since,
             "since_s": _round(max(0.0, now - since), 1) or 0.0, "attempts": attempts,

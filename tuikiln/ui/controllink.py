@@ -7,11 +7,10 @@ freezes the screen; a vanished engine reads as "no status" (the run ended or was
 from __future__ import annotations
 
 import asyncio
-from collections.abc import Mapping
 from pathlib import Path
-from typing import Any
 
 from tuikiln import control
+from tuikiln.engine.status import Status, status_from_json
 from tuikiln.errors import UserError
 
 REQUEST_TIMEOUT_S = 3.0
@@ -28,13 +27,13 @@ class SocketControl:
                 return cls(active.socket)
         return None
 
-    async def status(self) -> Mapping[str, Any] | None:
+    async def status(self) -> Status | None:
         try:
             answer = await asyncio.to_thread(control.request, self.socket_path, "status", None,
                                              REQUEST_TIMEOUT_S)
         except (UserError, OSError, ValueError):
             return None
-        return answer.get("status") if answer.get("ok") else None
+        return status_from_json(answer.get("status")) if answer.get("ok") else None
 
     async def command(self, name: str, arg: str | None = None) -> tuple[bool, str]:
         try:

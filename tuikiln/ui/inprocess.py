@@ -9,13 +9,13 @@ plus a `Control` that calls the engine directly instead of through the socket.
 from __future__ import annotations
 
 import asyncio
-from collections.abc import Mapping
 from pathlib import Path
 from typing import Any
 
 from tuikiln.drivers.factory import open_device
 from tuikiln.engine.host import host_engine, settings_for
 from tuikiln.engine.runner import RunEngine
+from tuikiln.engine.status import Status
 from tuikiln.kiln import Kiln
 from tuikiln.profile import Profile
 
@@ -26,7 +26,7 @@ class EngineControl:
     def __init__(self, engine: RunEngine) -> None:
         self.engine = engine
 
-    async def status(self) -> Mapping[str, Any] | None:
+    async def status(self) -> Status | None:
         return self.engine.status()
 
     async def command(self, name: str, arg: str | None = None) -> tuple[bool, str]:

@@ -13,6 +13,7 @@ from typing import Any, Protocol
 import numpy as np
 
 from tuikiln.engine.states import RunState
+from tuikiln.engine.status import Status
 from tuikiln.errors import FileProblems, UserError
 from tuikiln.plan import plan_profile
 from tuikiln.profile import parse_profile
@@ -24,7 +25,7 @@ from tuikiln.units import ROOM_C
 class Control(Protocol):
     """The engine's side: the live status object and the operator's commands."""
 
-    async def status(self) -> Mapping[str, Any] | None: ...
+    async def status(self) -> Status | None: ...
 
     async def command(self, name: str, arg: str | None = None) -> tuple[bool, str]: ...
 
@@ -68,7 +69,7 @@ class LogLink:
     def read_events(self, after_id: int) -> Sequence[Mapping[str, Any]]:
         return self.log.events(self.run_id, after_id)
 
-    async def status(self) -> Mapping[str, Any] | None:
+    async def status(self) -> Status | None:
         if self.control is None:
             return None
         return await self.control.status()

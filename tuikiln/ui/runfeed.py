@@ -14,6 +14,7 @@ from typing import Any, Protocol
 
 import numpy as np
 
+from tuikiln.engine.status import Status
 from tuikiln.plan import Plan
 from tuikiln.profile import Profile
 from tuikiln.units import Units
@@ -53,7 +54,7 @@ class RunLink(Protocol):
     def read_events(self, after_id: int) -> Sequence[Mapping[str, Any]]:
         """Events with id > after_id: dicts with id, time, kind, message, severity, detail."""
 
-    async def status(self) -> Mapping[str, Any] | None: ...
+    async def status(self) -> Status | None: ...
 
     async def command(self, name: str, arg: str | None = None) -> tuple[bool, str]:
         """Send one command (`arg`: a note's text, an alarm's code); (accepted, words)."""

@@ -21,6 +21,7 @@ from textual.screen import Screen
 from textual.widgets import Static
 
 from tuikiln.engine.states import SCREEN_BELL, RunState, StepState
+from tuikiln.engine.status import Status
 from tuikiln.profile import Pause
 from tuikiln.ui.chartdata import LAST_HOUR, WHOLE_RUN, live_chart
 from tuikiln.ui.runfeed import RunHeader, RunLink, SampleBuffer, finite
@@ -85,7 +86,7 @@ class LiveScreen(Screen[None]):
         self.title_words = title
         self.header: RunHeader | None = None
         self.samples = SampleBuffer()
-        self.status: Mapping[str, Any] | None = None
+        self.status: Status | None = None
         self.last_event_id = 0
         self.zoom = WHOLE_RUN
         self.bell_on = True
@@ -139,7 +140,7 @@ class LiveScreen(Screen[None]):
             await asyncio.sleep(self.poll_s)
 
     def take(self, batch: Mapping[str, Any], events: list | tuple | Any,
-             status: Mapping[str, Any] | None) -> None:
+             status: Status | None) -> None:
         self.ticks += 1
         self.samples.append(batch)
         if events:
@@ -171,7 +172,9 @@ class LiveScreen(Screen[None]):
         self.query_one(TemperatureChart).spec = live_chart(
             header.plan, self.samples, self.status, header.started, self.now(), units,
             zoom=self.zoom)
-        status = dict(self.status) if self.status else self.last_reading_status()
+        # What the readout shows: the engine's status, or the last sample's figures when no
+        # engine answers (a partial status: the screens read it with .get).
+        status: dict[str, Any] = dict(self.status) if self.status else self.last_reading_status()
         readout = self.query_one(Readout)
         readout.units = units
         readout.status = status

@@ -18,6 +18,7 @@ from textual.css.query import NoMatches
 from textual.screen import Screen
 from textual.widgets import Static
 
+from tuikiln.analysis.replay import MET, MISSED, NOT_YET, REMARKS, UNDER_WAY
 from tuikiln.events import EventKind
 from tuikiln.profile import describe_step
 from tuikiln.ui.chartdata import replay_chart
@@ -36,7 +37,7 @@ if TYPE_CHECKING:
 ABOUT = ("Replay of a past run. The dashed line is the plan, each step drawn from the "
          "moment it really began. Move the cursor with ← → (Shift: ten times further), "
          "Home/End; the readings under it show on the right.")
-VERDICT_MARK = {"met": "✔", "met with remarks": "▲", "missed": "✖"}
+VERDICT_MARK = {MET: "✔", REMARKS: "▲", MISSED: "✖", UNDER_WAY: "…", NOT_YET: "·"}
 KEPT_KINDS = (EventKind.NOTE, EventKind.ALARM_RAISED, EventKind.ALARM_ACKNOWLEDGED,
               EventKind.ALARM_CLEARED, EventKind.STEP_START, EventKind.OPERATOR_NEEDED,
               EventKind.OPERATOR_ACKNOWLEDGED, EventKind.RUN_END, EventKind.SAFE_STATE,
