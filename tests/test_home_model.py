@@ -8,6 +8,8 @@ from __future__ import annotations
 
 from pathlib import Path
 
+import pytest
+
 from tests.test_ui_fakes import shown
 from tests.waiting import eventually
 from tuikiln.ovenmodel import OvenModel
@@ -88,3 +90,37 @@ async def test_preview_without_a_learned_oven_shows_the_plan_alone(tmp_path: Pat
         text = await shown(pilot, "total at least", "counted at their shortest")
         assert "total at least" in text and "counted at their shortest" in text
         assert "on this oven" not in text and "this oven" not in text
+
+
+class SlowLauncher(Launcher):
+    """A launcher that finds the going run slowly (a control socket slow to answer): it
+    waits for `release` before answering, in the thread the screen awaits."""
+
+    def __init__(self, *args, **kwargs) -> None:  # noqa: ANN002, ANN003
+        import threading
+
+        super().__init__(*args, **kwargs)
+        self.release = threading.Event()
+        self.asked = threading.Event()
+
+    def going_run(self):  # noqa: ANN201
+        self.asked.set()
+        self.release.wait(10.0)
+        return super().going_run()
+
+
+@pytest.mark.parametrize("late_s", [0.0, 0.02])
+async def test_leaving_home_while_it_reads_the_log_is_quiet(tmp_path: Path, late_s: float
+                                                            ) -> None:
+    """The home screen reads profiles and runs off the loop; an app that quits meanwhile
+    must not fail when the answer comes back to a screen that is gone (it did: a
+    traceback, "No nodes match '#home-kiln'")."""
+    import threading
+
+    launcher = SlowLauncher(tmp_path, None)
+    app = TuikilnApp(lambda: HomeScreen(launcher), units="C")
+    async with app.run_test(size=(120, 30)):
+        await eventually(launcher.asked.is_set, 10.0, "home asking for the going run")
+        # The answer arrives while the app is taking its screens down.
+        threading.Timer(late_s, launcher.release.set).start()
+    assert app.return_code in (None, 0)

@@ -302,7 +302,7 @@ def _announce(active: Any, kiln: Any, profile: Any, log_path: Path,
 
 
 async def run_headless(kiln: Any, profile: Any, data_dir: Path, settings: RunSettings, *,
-                       speed: float | None, stream: Any = None, resume: Any = None) -> int:
+                       speed: float | None, resume: Any = None) -> int:
     """The run in this process: `settings` (tuikiln.engine.host.settings_for) are the
     engine's, `speed` the simulator's (None: the kiln file's)."""
     from tuikiln import control
@@ -311,7 +311,7 @@ async def run_headless(kiln: Any, profile: Any, data_dir: Path, settings: RunSet
     from tuikiln.engine import states as st
     from tuikiln.engine.host import host_engine
 
-    out = stream or sys.stdout
+    out = sys.stdout
     lock = control.KilnLock(data_dir, kiln.name)
     lock.acquire()
     try:

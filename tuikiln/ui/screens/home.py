@@ -3,6 +3,7 @@
 from __future__ import annotations
 
 import asyncio
+import contextlib
 import time
 from pathlib import Path
 from typing import TYPE_CHECKING
@@ -12,6 +13,7 @@ from textual import events, work
 from textual.app import ComposeResult
 from textual.binding import Binding
 from textual.containers import Horizontal, Vertical
+from textual.css.query import NoMatches
 from textual.screen import Screen
 from textual.widgets import DataTable, Static
 
@@ -125,7 +127,9 @@ class HomeScreen(Screen[None]):
 
     @work(exclusive=True, group="home-going")
     async def refresh_going(self) -> None:
-        self.show_kiln(await asyncio.to_thread(self.launcher.going_run))
+        going = await asyncio.to_thread(self.launcher.going_run)
+        with contextlib.suppress(NoMatches):  # the screen is being taken down meanwhile
+            self.show_kiln(going)
 
     def units_changed(self, _units: str) -> None:
         self.action_refresh()
@@ -136,6 +140,15 @@ class HomeScreen(Screen[None]):
         paths = await asyncio.to_thread(find_profiles)
         rows = await asyncio.to_thread(self.profile_rows, paths)
         runs = await asyncio.to_thread(launcher.runs)
+        going = await asyncio.to_thread(launcher.going_run)
+        # The files were read off the loop; the screen may have been left (or the app quit)
+        # meanwhile: then there is nothing to show them in.
+        with contextlib.suppress(NoMatches):
+            self.show_lists(paths, rows, runs)
+            self.show_kiln(going)
+
+    def show_lists(self, paths: list[Path], rows: list[tuple[str, str, str, str]],
+                   runs: list[RunInfo]) -> None:
         self.profile_paths = paths
         self.run_list = runs
         table = self.query_one("#home-profiles", DataTable)
@@ -154,7 +167,6 @@ class HomeScreen(Screen[None]):
                                                                    run.started))
             runs_table.add_row(str(run.id), run.profile[:28], started, length,
                                self.app.glyphs.plain(f"{OUTCOME_MARK.get(status, '·')} {status}"))
-        self.show_kiln(await asyncio.to_thread(launcher.going_run))
 
     def profile_rows(self, paths: list[Path]) -> list[tuple[str, str, str, str]]:
         rows = []
