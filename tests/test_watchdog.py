@@ -161,7 +161,8 @@ async def test_a_served_controller_that_reboots_comes_back_stopped_and_is_armed_
     assert regs[4] == 0  # and the end turned it off again
 
 
-async def test_a_controller_reboot_mid_ramp_is_re_armed_at_once_and_the_run_log_says_so(tmp_path):
+async def test_a_controller_reboot_mid_ramp_is_re_armed_at_once_and_the_run_log_says_so(
+        tmp_path, capsys):
     # The in-process simulator's driver writes "run" with every setpoint, so the ramp's next
     # regular write alone would restore the rebooted controller (setpoint 0, stopped: the
     # simulator's defaults) -- and the run log would never say it had lost its setpoint.
@@ -191,7 +192,19 @@ async def test_a_controller_reboot_mid_ramp_is_re_armed_at_once_and_the_run_log_
     heating = (t >= back) & (samples["output_pct"] > 0.0)
     assert heating.any() and t[heating][0] - back <= 5.0
     assert engine.rearms == 1
+    # The record says so too: the replay of the run remarks on the ramp it happened in.
+    import json
 
+    from tuikiln.analysis.replay import REMARKS, clock
+    from tuikiln.cli import main
+
+    capsys.readouterr()
+    assert main(["replay", "last", "--json", "--data", str(tmp_path)]) == 0
+    ramp = json.loads(capsys.readouterr().out)["steps"][0]
+    assert ramp["verdict"] == REMARKS, ramp["reasons"]
+    assert f"the controller was armed again at {clock(back)}" in " ".join(ramp["reasons"])
+    assert main(["replay", "last", "--data", str(tmp_path)]) == 0
+    assert "armed again" in capsys.readouterr().out
 
 class Record(Events):
     """Events and samples as the engine tells its sinks."""

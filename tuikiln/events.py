@@ -72,6 +72,10 @@ LOG_QUEUE = EventKind.LOG_QUEUE
 
 SEVERITIES: tuple[Severity, ...] = tuple(Severity)
 
+# A DEVICE event's detail["words"] when the engine armed the controller again (it held
+# another setpoint or had stopped: a reboot, most often). Replay remarks on it.
+REARMED = "controller re-armed"
+
 # Units as data: an event's words keep their numbers apart. detail["template"] is the
 # message with "{name}" where a number goes; detail["numbers"] holds each as {"kind": ...,
 # "value": ...} in the engine's inside units, so a screen or report shows it in its own

@@ -315,7 +315,11 @@ def replay_run(
         step_codes, state_codes = trace.step, trace.state
         rule_events = logged_events
         source = "log"
-    analysis = _Analysis(trace, profile, limits, units, step_codes, state_codes, rule_events,
+    # The rules re-run over the samples know nothing of the device: its events (a controller
+    # armed again after a reboot) come from the log.
+    device_events = [e for e in logged_events if e["kind"] == ev.DEVICE]
+    analysis = _Analysis(trace, profile, limits, units, step_codes, state_codes,
+                         rule_events if source == "log" else [*rule_events, *device_events],
                          outcome)
     steps = [analysis.step(i) for i in range(len(profile.steps))]
     verdict, reasons = _run_verdict(steps, outcome, rerun_result, units)
@@ -350,6 +354,9 @@ class _Analysis:
         self.starts: dict[int, Mapping[str, Any]] = {}
         self.ends: dict[int, Mapping[str, Any]] = {}
         self.equalized: dict[int, float] = {}
+        self.rearmed = [float(e["time"]) for e in events if e["kind"] == ev.DEVICE
+                        and (e.get("detail") or {}).get("words") == ev.REARMED]
+        """When the engine armed the controller again (it may have rebooted)."""
         for e in events:
             index = (e.get("detail") or {}).get("index")
             if index is None:
@@ -410,6 +417,11 @@ class _Analysis:
         else:
             self._pause(result, step, start_t, end_t, finished)
         self._alarm_reasons(result)
+        for when in self.rearmed:
+            if self._step_at(when) == index:
+                _worse(result, REMARKS, f"the controller was armed again at "
+                       f"{clock(self.rel(when))}: it held another setpoint or had stopped "
+                       "(it may have rebooted)")
         if skipped and result.verdict == MET:
             _worse(result, REMARKS, "skipped by you")
         if self.going and not result.figures["finished"] and result.verdict != MISSED:

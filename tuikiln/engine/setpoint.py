@@ -140,5 +140,5 @@ class SetpointKeeper:
         self._written_at = now
         self.emit(Event(now, ev.DEVICE, f"The controller held {held}: it may have rebooted. "
                         f"Setpoint {format_temp(setpoint_c, self.units)} and run written "
-                        "again", "warning", {"words": "controller re-armed",
+                        "again", "warning", {"words": ev.REARMED,
                                              "setpoint_c": setpoint_c}))

@@ -41,7 +41,7 @@ VERDICT_MARK = {MET: "✔", REMARKS: "▲", MISSED: "✖", UNDER_WAY: "…", NOT
 KEPT_KINDS = (EventKind.NOTE, EventKind.ALARM_RAISED, EventKind.ALARM_ACKNOWLEDGED,
               EventKind.ALARM_CLEARED, EventKind.STEP_START, EventKind.OPERATOR_NEEDED,
               EventKind.OPERATOR_ACKNOWLEDGED, EventKind.RUN_END, EventKind.SAFE_STATE,
-              EventKind.GAP)
+              EventKind.GAP, EventKind.DEVICE)
 
 
 def step_starts(events: Sequence[Mapping[str, Any]]) -> dict[int, float]:
