@@ -26,6 +26,7 @@ For engine tests (a plain function, imported: `from tests.conftest import oven_s
 
 from __future__ import annotations
 
+from collections import Counter
 from collections.abc import Callable, Iterator
 from dataclasses import replace
 from pathlib import Path
@@ -40,6 +41,35 @@ from tuikiln.limits import Limits
 from tuikiln.runlog import RunLog
 
 TEST_OVEN = RunSettings(KilnInfo("Test oven", "C", 1100.0), Limits())
+
+FUZZ_TALLY: Counter[str] = Counter()
+"""Hostile-input examples run per parser (tests/test_hostile_*.py count into it). Each test's
+share rides on its report (`user_properties`), so the table at the end adds up the workers'
+when the suite runs on several cores."""
+
+
+@pytest.fixture(autouse=True)
+def _fuzz_share(request: pytest.FixtureRequest) -> Iterator[None]:
+    before = Counter(FUZZ_TALLY)
+    yield
+    share = FUZZ_TALLY - before
+    if share:
+        request.node.user_properties.append(("fuzz_examples", dict(share)))
+
+
+def pytest_terminal_summary(terminalreporter: Any) -> None:
+    total: Counter[str] = Counter()
+    for reports in terminalreporter.stats.values():
+        for report in reports:
+            if getattr(report, "when", None) != "teardown":
+                continue
+            for key, value in getattr(report, "user_properties", ()):
+                if key == "fuzz_examples":
+                    total.update(value)
+    if total:
+        terminalreporter.section("hostile input: fuzz examples per parser")
+        for name, count in sorted(total.items()):
+            terminalreporter.write_line(f"{name:<28} {count:>6}")
 
 
 def oven_settings(**changes: Any) -> RunSettings:

@@ -22,6 +22,7 @@ import pytest
 from hypothesis import HealthCheck, given, settings
 from hypothesis import strategies as st
 
+from tests.conftest import FUZZ_TALLY
 from tuikiln.analysis.csvlog import CsvLayout, parse_csv_log
 from tuikiln.drivers.maps import MapError, parse_map
 from tuikiln.errors import FileProblems
@@ -32,8 +33,8 @@ from tuikiln.simulator.config import check_sim_settings
 # ---- shared by the hostile tests ---------------------------------------------------------
 
 FUZZ_EXAMPLES = int(os.environ.get("TUIKILN_FUZZ_EXAMPLES", "0") or 0)
-TALLY: Counter[str] = Counter()
-"""Examples run per parser, printed at the end of the session."""
+TALLY: Counter[str] = FUZZ_TALLY
+"""Examples run per parser, printed at the end of the session (tests/conftest.py)."""
 HANG_S = 5.0  # one parse of a few KiB taking this long is a hang
 
 
@@ -62,22 +63,6 @@ def no_hang(what: str, seconds: float = HANG_S) -> Iterator[None]:
     finally:
         signal.setitimer(signal.ITIMER_REAL, 0)
         signal.signal(signal.SIGALRM, previous)
-
-
-class _TallyReport:
-    def pytest_terminal_summary(self, terminalreporter: Any) -> None:
-        if not TALLY:
-            return
-        terminalreporter.section("hostile input: fuzz examples per parser")
-        for name, count in sorted(TALLY.items()):
-            terminalreporter.write_line(f"{name:<28} {count:>6}")
-
-
-@pytest.fixture(autouse=True, scope="session")
-def _report_tally(pytestconfig: pytest.Config) -> None:
-    name = "tuikiln-hostile-tally"
-    if pytestconfig.pluginmanager.get_plugin(name) is None:
-        pytestconfig.pluginmanager.register(_TallyReport(), name)
 
 
 # ---- TOML text, good and bad -------------------------------------------------------------
