@@ -177,3 +177,25 @@ def test_a_log_from_before_reads_the_same_and_a_resumed_run_goes_on_in_it(tmp_pa
     assert log.sample_count(rec.run_id) == BLOCK_ROWS * 3 + 100
     resumed.close()
     log.close()
+
+
+def test_threads_reading_one_log_at_once_each_get_every_sample(tmp_path):
+    """Screens read the log from worker threads; two reads at once on one RunLog must not
+    trip over each other's read transaction ("cannot start a transaction within a
+    transaction")."""
+    from concurrent.futures import ThreadPoolExecutor
+
+    log = RunLog(tmp_path / "runs.sqlite")
+    rec = log.start_run(kiln="k", profile="p", started=0.0)
+    fill(rec, BLOCK_ROWS * 2 + 30)
+    rec.flush()
+
+    def read(_: int) -> tuple[int, int, float]:
+        return (len(log.samples(rec.run_id)["t"]), log.sample_count(rec.run_id),
+                log.last_sample(rec.run_id)["t"])
+
+    n = BLOCK_ROWS * 2 + 30
+    with ThreadPoolExecutor(max_workers=8) as pool:
+        assert set(pool.map(read, range(400))) == {(n, n, n - 1.0)}
+    rec.close()
+    log.close()

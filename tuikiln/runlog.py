@@ -53,7 +53,8 @@ run has BLOCK_ROWS rows past its last block, the commit that crosses that line a
 them into one row of `sample_blocks` (a BLOB in columns: t as float64, temperatures and
 output as float32, step, state and flags as integers) and deletes those rows, in the same
 transaction. A block is never rewritten: a commit costs the new rows, not the growing block
-(before, each commit rewrote a block of up to 1,024 rows, some 40 KB a second on an SD card).
+(before, each commit rewrote a block of up to 1,024 rows: 53 KB of WAL a sample at one
+sample a commit, 8.4 KB now; tests/bench/runlog_write.py).
 `samples()` reads, in one read transaction, the run's blocks (a few hundred BLOBs and
 `numpy.frombuffer`) and the rows after the last block (fewer than BLOCK_ROWS), so a live
 run's reader sees every committed sample. Logs from before this (every sample a row, and
@@ -312,6 +313,8 @@ class RunLog:
     def __init__(self, path: str | os.PathLike[str], *, read_only: bool = False) -> None:
         self.path = Path(path)
         self.read_only = read_only
+        self._reading = threading.Lock()
+        """One read transaction at a time on this connection (screens read from threads)."""
         try:
             if read_only:
                 self._conn = _connect_reader(self.path)
@@ -355,7 +358,7 @@ class RunLog:
         return None if row is None else _run_info(row)
 
     def sample_count(self, run_id: int) -> int:
-        with _snapshot(self._conn):
+        with self._reading, _snapshot(self._conn):
             packed, sealed_t = self._conn.execute(
                 "SELECT COALESCE(SUM(n), 0), MAX(last_t) FROM sample_blocks WHERE run_id = ?",
                 (run_id,)).fetchone()
@@ -370,7 +373,7 @@ class RunLog:
         Temperatures and output come back as float64 (stored as float32: 0.0001 °C steps at
         1000 °C, far below any thermocouple's resolution).
         """
-        with _snapshot(self._conn):
+        with self._reading, _snapshot(self._conn):
             blocks, tail = _blocks_and_tail(self._conn, run_id, since_t)
         parts: dict[str, list[np.ndarray]] = {name: [] for name, _ in _BLOCK_TYPES}
         for n, data in blocks:
@@ -392,7 +395,7 @@ class RunLog:
 
     def last_sample(self, run_id: int) -> dict[str, Any] | None:
         """The run's newest committed sample (time and readings), or None."""
-        with _snapshot(self._conn):
+        with self._reading, _snapshot(self._conn):
             row = self._conn.execute(
                 "SELECT t, chamber_c, load_c, setpoint_c, step, state FROM samples "
                 "WHERE run_id = ? ORDER BY t DESC LIMIT 1", (run_id,)).fetchone()
