@@ -36,6 +36,19 @@ to = 100
 """
 
 
+def screen_verdicts(data: str, run_id: int) -> list[str]:
+    """The review screen's verdict lines for the run, read as the screen reads it."""
+    from tuikiln.ui.loglink import LogLink
+    from tuikiln.ui.runfeed import SampleBuffer
+    from tuikiln.ui.screens.replay import verdict_lines
+
+    link = LogLink(data, run_id)
+    header = link.info()
+    samples = SampleBuffer()
+    samples.append(link.read_samples(None))
+    return verdict_lines(header, samples, link.read_events(0), "C")
+
+
 class ReplayMidHold(Sink):
     """Twenty minutes into the hold: `tuikiln replay --json` and `report` on the log, then
     an abort (a local command)."""
@@ -45,6 +58,7 @@ class ReplayMidHold(Sink):
         self.capsys, self.data, self.report = capsys, data, report
         self.seen: dict | None = None
         self.text = ""
+        self.screen: list[str] = []
 
     def reading(self, sample) -> None:
         engine = self.engine
@@ -60,6 +74,7 @@ class ReplayMidHold(Sink):
         assert main(["replay", "last", "--data", self.data]) == 0
         self.text = self.capsys.readouterr().out
         assert main(["report", "last", "-o", self.report, "--data", self.data]) == 0
+        self.screen = screen_verdicts(self.data, engine.run_id)
         engine.command("abort", "enough", "socket")
 
 
@@ -84,6 +99,9 @@ async def test_a_going_run_is_under_way_not_missed(tmp_path, capsys) -> None:
     assert "Verdict: UNDER WAY" in sink.text and "not yet" in sink.text
     html = (tmp_path / "run.html").read_text(encoding="utf-8")
     assert "under way" in html and 'class="going"' in html
+    # The review screen judges it the same way (it read "run: missed" before).
+    assert sink.screen[0] == f"run: {UNDER_WAY}", sink.screen
+    assert not any("missed" in line for line in sink.screen), sink.screen
     # Once it has ended, the same log is judged as before: aborted mid-hold is a miss.
     capsys.readouterr()
     assert main(["replay", "last", "--json", "--data", str(tmp_path)]) == 0

@@ -19,6 +19,7 @@ from textual.screen import Screen
 from textual.widgets import Static
 
 from tuikiln.analysis.replay import MET, MISSED, NOT_YET, REMARKS, UNDER_WAY
+from tuikiln.engine.states import RunState
 from tuikiln.events import EventKind
 from tuikiln.profile import describe_step
 from tuikiln.ui.chartdata import replay_chart
@@ -70,8 +71,10 @@ def verdict_lines(header: RunHeader, samples: SampleBuffer,
     try:
         # The same loader as `tuikiln replay`: the kiln's [alarms] count here too.
         shown = "F" if units == "F" else "C" if units == "C" else header.profile.units
+        # A header with no outcome is a run still going (tuikiln.ui.loglink): judged so far.
+        outcome = header.outcome if header.outcome is not None else RunState.RUNNING
         loaded = from_log(columns, events, started=header.started, profile=header.profile,
-                          outcome=header.outcome, units=shown,
+                          outcome=outcome, units=shown,
                           kiln_text=str(header.extra.get("kiln_text") or ""))
         result = loaded.replay()
     except Exception as exc:  # the analysis is another module's: show its failure in words
@@ -167,7 +170,7 @@ class ReplayScreen(Screen[None]):
         self.query_one(TemperatureChart).spec = replay_chart(
             header.plan, self.samples, header.started, self.ended, units,
             step_starts(self.events), self.cursor, self.window())
-        outcome = header.outcome or "no end written"
+        outcome = header.outcome or "still going (as far as it has got)"
         self.query_one("#replay-title", Static).update(
             f"Replay · run {header.run_id}: {header.profile.name} · "
             f"{format_duration(self.ended - header.started)} · {outcome}")
