@@ -162,9 +162,25 @@ def _literals(node: ast.expr) -> list[str]:
     return []
 
 
+def _event_severity(node: ast.Call) -> ast.expr | None:
+    """The severity an `Event(...)` call is given: its fourth argument or `severity=`."""
+    name = node.func.id if isinstance(node.func, ast.Name) else (
+        node.func.attr if isinstance(node.func, ast.Attribute) else "")
+    if name != "Event":
+        return None
+    if len(node.args) >= 4:
+        return node.args[3]
+    return next((k.value for k in node.keywords if k.arg == "severity"), None)
+
+
 def hand_spelled(source: str) -> list[tuple[int, str]]:
     found = []
     for node in ast.walk(ast.parse(source)):
+        if isinstance(node, ast.Call):
+            given = _event_severity(node)
+            if given is not None:
+                found.extend((node.lineno, v) for v in _literals(given)
+                             if v in CONTRACT_VALUES["severity"])
         if isinstance(node, ast.Compare):
             sides = [node.left, *node.comparators]
             for side in sides:
@@ -182,6 +198,10 @@ def test_the_finder_sees_a_hand_spelled_state() -> None:
         (1, "running"), (1, "unfinished")]
     assert hand_spelled('if step.kind == "hold": pass') == []
     assert hand_spelled('if event["kind"] == "step-start": pass') == [(1, "step-start")]
+    assert hand_spelled('e = Event(t, ev.NOTE, "words", "warning", {})') == [(1, "warning")]
+    assert hand_spelled('e = Event(t, ev.NOTE, "words", severity="critical")') == [
+        (1, "critical")]
+    assert hand_spelled('e = Event(t, ev.NOTE, "words", Severity.INFO)') == []
     assert hand_spelled('if e.severity in ("warning", "critical"): pass') == [
         (1, "warning"), (1, "critical")]
 

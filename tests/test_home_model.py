@@ -124,3 +124,14 @@ async def test_leaving_home_while_it_reads_the_log_is_quiet(tmp_path: Path, late
         # The answer arrives while the app is taking its screens down.
         threading.Timer(late_s, launcher.release.set).start()
     assert app.return_code in (None, 0)
+
+
+async def test_preview_with_a_model_and_no_kiln_alarms(tmp_path: Path) -> None:
+    """A preview given the learned oven but no kiln alarms (its defaults) predicts with the
+    built-in limits; it failed on the missing alarms before."""
+    from tuikiln.ui.screens.preview import PreviewScreen
+
+    demo = next(p for p in find_profiles() if p.name == "demo-harden-temper.toml")
+    app = TuikilnApp(lambda: PreviewScreen(demo, model=INVENTED), units="C")
+    async with app.run_test(size=(140, 40)) as pilot:
+        await shown(pilot, "on this oven (learned): about")

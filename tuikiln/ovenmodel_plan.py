@@ -35,6 +35,7 @@ from the hardening temperature leaves them untempered that long.
 from __future__ import annotations
 
 import math
+from collections.abc import Mapping
 from dataclasses import dataclass
 from typing import Any
 
@@ -208,11 +209,11 @@ def _load_watch(profile: Profile, limits: Limits | None, units: Units) -> Any:
     return make_load_watch(profile, merged, units)
 
 
-def predict_on_kiln(plan: Plan, model: OvenModel, alarms: Any, units: Units = "C"
-                    ) -> Prediction:
+def predict_on_kiln(plan: Plan, model: OvenModel, alarms: Mapping[str, float] | None,
+                    units: Units = "C") -> Prediction:
     """`predict` with the limits a run of this plan on this kiln has: the built-in ones,
-    the kiln file's `alarms` over them, the profile's over those."""
-    limits = Limits().merged(alarms).merged(plan.profile.limits)
+    the kiln file's `alarms` over them (None: the kiln sets none), the profile's over those."""
+    limits = Limits().merged(alarms or {}).merged(plan.profile.limits)
     return predict(plan, model, limits.band, units, limits=limits)
 
 

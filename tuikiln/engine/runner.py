@@ -65,7 +65,7 @@ from tuikiln.engine.setpoint import SetpointKeeper
 from tuikiln.engine.states import RestartPolicy
 from tuikiln.engine.status import LastReading, RunFacts, Status, build_status
 from tuikiln.errors import UserError
-from tuikiln.events import Event
+from tuikiln.events import Event, Severity
 from tuikiln.limits import Limits
 from tuikiln.ovenmodel_plan import LiveForecast
 from tuikiln.profile import Profile
@@ -304,7 +304,7 @@ class RunEngine:
                 speed=self.settings.speed, watch_only=self.watch_only))
         watch = " (watching only: this device cannot take a setpoint)" if self.watch_only else ""
         self._emit(Event(self.started, ev.RUN_START, f"Run started: {self.profile.name} on "
-                         f"{self.kiln.name}{watch}", "info",
+                         f"{self.kiln.name}{watch}", Severity.INFO,
                          {"profile": self.profile.name, "kiln": self.kiln.name,
                           "device": self.device.description, "watch_only": self.watch_only,
                           "speed": self.settings.speed}))
@@ -399,7 +399,7 @@ class RunEngine:
         if not await self.setpoint.write(now, setpoint_c):
             self.watch_only = True
             self._emit(Event(now, ev.DEVICE, "The device refused a setpoint: watching only from "
-                             "now on", "warning", {"words": "setpoint not supported"}))
+                             "now on", Severity.WARNING, {"words": "setpoint not supported"}))
 
     def _sample(self, now: float, setpoint_c: float | None, heat_off: bool) -> None:
         if self.recorder is None and not self.sinks:
@@ -453,7 +453,7 @@ class RunEngine:
                                  f"the run log ({queued * 100 // bound} % of the "
                                  f"{bound:,} kept there); past that the oldest go to "
                                  f"{spill}, in order, and are written when the log can be",
-                                 "warning", {"queued": queued, "bound": bound}))
+                                 Severity.WARNING, {"queued": queued, "bound": bound}))
 
     # ----- endings -----
 
@@ -482,14 +482,15 @@ class RunEngine:
                 self.safe_retry.pending = True
                 result_words += RETRY_WORDS
         self._emit(Event(now, ev.SAFE_STATE, f"Safe state: {reason}; {result_words}",
-                         "critical" if not done or outcome != st.ABORTED else "warning",
+                         (Severity.CRITICAL if not done or outcome != st.ABORTED
+                          else Severity.WARNING),
                          {"reason": reason, "done": done, "words": result_words}))
         self._end(now, outcome, f"Run ended ({outcome.replace('-', ' ')}): {reason}")
 
     def _end(self, now: float, outcome: str, message: str) -> None:
         self.outcome = outcome
         self.end_words = message
-        severity = "info" if outcome == st.COMPLETED else "warning"
+        severity = Severity.INFO if outcome == st.COMPLETED else Severity.WARNING
         self._emit(Event(now, ev.RUN_END, message, severity, {"outcome": outcome}))
         if self.recorder is not None:
             self.recorder.end(outcome, now)
@@ -502,7 +503,7 @@ class RunEngine:
         words = result.words if result is not None else "watching only"
         self._emit(Event(now, ev.SAFE_STATE, f"Safe state: {reason}; {words}. The run is left "
                          "unfinished: it is taken up again when the engine starts again",
-                         "warning" if done else "critical",
+                         Severity.WARNING if done else Severity.CRITICAL,
                          {"reason": reason, "done": done, "words": words, "suspended": True}))
         self.outcome = SUSPENDED
         self.end_words = f"Run suspended: {reason}"
@@ -524,7 +525,7 @@ class RunEngine:
         why = f" ({plan.why})" if plan.why else ""
         self._emit(Event(now, ev.GAP, f"The engine was away {format_duration(away)}: "
                          f"{format_temp(plan.before_c, u)} before, {format_temp(after, u)} now. "
-                         f'On restart: "{plan.policy}"{why}', "warning",
+                         f'On restart: "{plan.policy}"{why}', Severity.WARNING,
                          {"seconds": away, "since": plan.away_since, "before_c": plan.before_c,
                           "after_c": after, "policy": plan.policy, "asked": plan.asked,
                           "why": plan.why}))
@@ -535,7 +536,8 @@ class RunEngine:
                                    else plan.why)
         words = recovery.restore_stepper(stepper, plan, now, after)
         if plan.policy == RestartPolicy.CONTINUE:
-            self._emit(Event(now, ev.COMMAND, f"Carrying on after the restart: {words}", "info",
+            self._emit(Event(now, ev.COMMAND, f"Carrying on after the restart: {words}",
+                             Severity.INFO,
                              {"name": "resume", "source": "restart"}))
             return None
         # "hold": heat off now, then wait for a person.
@@ -548,12 +550,12 @@ class RunEngine:
         safe_words = (result.words if result is not None else "watching only: switch the oven "
                       "off at its controller")
         self._emit(Event(now, ev.SAFE_STATE, f"Safe state after the restart: {safe_words}",
-                         "warning" if done else "critical",
+                         Severity.WARNING if done else Severity.CRITICAL,
                          {"reason": "restart", "done": done, "words": safe_words}))
         self._emit(Event(now, ev.OPERATOR_NEEDED, "The engine restarted and holds the oven safe "
                          "(heat off, clocks stopped): `tuikiln resume` carries on with step "
                          f"{min(stepper.index, len(stepper.steps) - 1) + 1} from the "
-                         "temperature then, `tuikiln abort` ends the run", "warning",
+                         "temperature then, `tuikiln abort` ends the run", Severity.WARNING,
                          {"index": stepper.index, "text": "restart: resume or abort",
                           "reminder": False}))
         return None
@@ -567,7 +569,7 @@ class RunEngine:
             return CommandResult(False, "the run holds safe after a restart: `tuikiln resume` "
                                  "first (or `tuikiln abort`)", [Event(
                                      now, ev.COMMAND_REFUSED, f"Refused {name}: holding safe "
-                                     "after a restart", "info",
+                                     "after a restart", Severity.INFO,
                                      {"name": name, "source": source, "reason": "held"})])
         plan = self.resume
         assert plan is not None
@@ -575,7 +577,7 @@ class RunEngine:
         words = recovery.restore_stepper(self.rules.stepper, plan, now, self.last.chamber_c)
         self.setpoint.forget()  # write the setpoint (and run) afresh on the next tick
         message = f"Carrying on after the restart: {words}"
-        events = [Event(now, ev.COMMAND, message, "info", {"name": name, "source": source})]
+        events = [Event(now, ev.COMMAND, message, Severity.INFO, {"name": name, "source": source})]
         events.extend(self.rules.alarms.set_condition("paused-too-long", False, now))
         return CommandResult(True, message, events)
 

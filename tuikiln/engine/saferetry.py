@@ -21,7 +21,7 @@ from tuikiln.drivers.base import Device
 from tuikiln.engine.rules import REMOTE_SOURCES
 from tuikiln.engine.safety import SAFE_PATH_TIMEOUT_S, drive_safe
 from tuikiln.engine.status import SafeState, safe_state
-from tuikiln.events import Event
+from tuikiln.events import Event, Severity
 from tuikiln.units import format_duration
 
 SAFE_RETRY_MAX_S = 30.0     # after a run ended unable to stop the heat: retry at least this often
@@ -67,7 +67,7 @@ class SafeRetry:
         if source in REMOTE_SOURCES:
             message = (f"Refused {name} from {source}: the run has ended and tuikiln keeps "
                        "trying to turn the heat off; only a local abort ends that")
-            self.emit(Event(self.clock.now(), ev.COMMAND_REFUSED, message, "warning",
+            self.emit(Event(self.clock.now(), ev.COMMAND_REFUSED, message, Severity.WARNING,
                             {"command": name, "source": source}))
             return {"ok": False, "message": message}
         self.ask_stop()
@@ -101,14 +101,14 @@ class SafeRetry:
                 now = self.clock.now()
                 self.emit(Event(now, ev.SAFE_STATE, "The controller answers again: "
                                 f"{result.words}, {format_duration(now - since)} after the run "
-                                "ended", "warning",
+                                "ended", Severity.WARNING,
                                 {"reason": "link back", "done": True, "words": result.words,
                                  "after_end": True}))
                 self.publish()
                 return
         self.pending = False
         self.emit(Event(self.clock.now(), ev.SAFE_STATE, STOPPED_TRYING_WORDS,
-                        "critical", {"reason": "stopped trying", "done": False,
+                        Severity.CRITICAL, {"reason": "stopped trying", "done": False,
                                      "words": "not reached", "after_end": True,
                                      "attempts": self.attempts}))
         self.publish()

@@ -29,7 +29,7 @@ from collections.abc import Callable
 from tuikiln import events as ev
 from tuikiln.drivers.base import Device, Reading
 from tuikiln.drivers.errors import DeviceError, NotSupported
-from tuikiln.events import Event
+from tuikiln.events import Event, Severity
 from tuikiln.units import format_temp
 
 REWRITE_AFTER_S = 5.0      # a moving setpoint is written at most this often ...
@@ -140,5 +140,5 @@ class SetpointKeeper:
         self._written_at = now
         self.emit(Event(now, ev.DEVICE, f"The controller held {held}: it may have rebooted. "
                         f"Setpoint {format_temp(setpoint_c, self.units)} and run written "
-                        "again", "warning", {"words": ev.REARMED,
+                        "again", Severity.WARNING, {"words": ev.REARMED,
                                              "setpoint_c": setpoint_c}))

@@ -4,9 +4,9 @@ time it would end if started now, open-ended steps marked; or its mistakes, with
 from __future__ import annotations
 
 import time
-from collections.abc import Callable
+from collections.abc import Callable, Mapping
 from pathlib import Path
-from typing import TYPE_CHECKING, Any
+from typing import TYPE_CHECKING
 
 from rich.text import Text
 from textual.app import ComposeResult
@@ -85,7 +85,7 @@ class PreviewScreen(Screen[None]):
 
     def __init__(self, path: str | Path, *, max_c: float | None = None,
                  start: Callable[[str], None] | None = None, model: OvenModel | None = None,
-                 alarms: Any = None) -> None:
+                 alarms: Mapping[str, float] | None = None) -> None:
         """`model`: the kiln's learned oven (its times go beside the plan's), with the kiln
         file's `alarms` (the band the prediction waits for)."""
         super().__init__()
